@@ -1,0 +1,34 @@
+"""Relative optical airmass as a function of zenith distance.
+
+Kasten & Young (1989), Applied Optics 28, 4735, eq. (3):
+    X = 1 / [cos z + 0.50572 (96.07995 deg - z)^-1.6364]
+valid down to the horizon (X ~ 38 at z = 90 deg).  Used by the planner for
+window airmass and by the exposure model for extinction and seeing.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+_A, _B, _C = 0.50572, 96.07995, 1.6364
+
+
+def airmass_kasten_young(zenith_deg):
+    """Airmass for zenith distance ``zenith_deg`` (degrees, array-like); NaN below the horizon."""
+    z = np.asarray(zenith_deg, dtype=float)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        x = 1.0 / (np.cos(np.radians(z)) + _A * (_B - z) ** (-_C))
+    return np.where((z >= 0) & (z <= 90.0), x, np.nan)
+
+
+def airmass_from_altitude(altitude_deg):
+    """Airmass for altitude ``altitude_deg`` above the horizon (degrees)."""
+    return airmass_kasten_young(90.0 - np.asarray(altitude_deg, dtype=float))
+
+
+def zenith_from_airmass(airmass):
+    """Invert Kasten & Young numerically: zenith distance (deg) for airmass >= 1."""
+    x = np.atleast_1d(np.asarray(airmass, dtype=float))
+    grid = np.linspace(0.0, 90.0, 90001)
+    table = airmass_kasten_young(grid)
+    z = np.interp(x, table, grid, left=np.nan, right=90.0)
+    return z if np.ndim(airmass) else float(z[0])

@@ -1,0 +1,1 @@
+"""Bundled forecast data: line list, telluric bands, abundance table."""

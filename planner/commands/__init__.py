@@ -1,0 +1,1 @@
+"""Sub-commands of the ``kncast`` command line, one module each (see planner/cli.py)."""

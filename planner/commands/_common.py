@@ -1,0 +1,164 @@
+"""Options and helpers shared by several sub-commands.
+
+Everything here is light to import; heavy modules load inside functions.
+"""
+from __future__ import annotations
+
+import argparse
+import sys
+
+from planner.errors import InputError, OptionError
+
+
+def add_event_options(p: argparse.ArgumentParser, distance: bool = True) -> None:
+    """``--event FILE`` or ``--ra/--dec/--t0 [--distance-mpc]``."""
+    g = p.add_argument_group("event (a file, or position and time)")
+    g.add_argument("--event", metavar="FILE", help="event file (TOML, or VOEvent XML)")
+    g.add_argument("--ra", help="right ascension: degrees, or sexagesimal hours '10:42:30'")
+    g.add_argument("--dec", help="declination: degrees, or sexagesimal '-35:12:00'")
+    g.add_argument("--t0", metavar="ISO", help="merger/alert time, ISO 8601 UTC, e.g. 2027-03-14T02:17:00Z")
+    g.add_argument("--event-id", default="cli-event", help="id used in outputs with --ra/--dec (default: cli-event)")
+    if distance:
+        g.add_argument("--distance-mpc", type=finite_float("--distance-mpc"), metavar="D", help="luminosity distance, Mpc")
+        g.add_argument("--redshift", type=finite_float("--redshift"), metavar="Z", help="redshift (instead of distance)")
+        g.add_argument("--ebv-mw", type=finite_float("--ebv-mw"), default=0.0, metavar="MAG",
+                       help="Milky Way E(B-V), mag (default 0)")
+
+
+def event_from_args(args):
+    """The Event named by ``--event`` or built from ``--ra/--dec/--t0``."""
+    from planner.events import event_from_options, load_event
+
+    coords = [args.ra, args.dec, args.t0]
+    if args.event:
+        if any(v is not None for v in coords):
+            raise InputError("--event: give either --event FILE or --ra/--dec/--t0, not both")
+        return load_event(args.event)
+    if any(v is None for v in coords):
+        missing = [n for n, v in zip(("--ra", "--dec", "--t0"), coords) if v is None]
+        raise InputError(f"no event: give --event FILE, or all of --ra --dec --t0 (missing {' '.join(missing)})")
+    return event_from_options(args.ra, args.dec, args.t0, getattr(args, "distance_mpc", None),
+                              event_id=args.event_id, redshift=getattr(args, "redshift", None),
+                              ebv_mw=getattr(args, "ebv_mw", 0.0) or 0.0)
+
+
+def add_site_options(p: argparse.ArgumentParser, select: bool = True) -> None:
+    g = p.add_argument_group("sites")
+    if select:
+        g.add_argument("--sites", action="append", metavar="ID,...",
+                       help="site ids, comma separated (default: every known site)")
+    g.add_argument("--sites-dir", action="append", default=[], metavar="DIR",
+                   help="extra folder of site TOML files (repeatable)")
+
+
+def sites_from_args(args):
+    """(registry, selected sites) from ``--sites-dir`` and ``--sites``."""
+    from planner.sites import SiteRegistry
+
+    registry = SiteRegistry.load(args.sites_dir)
+    ids = split_list(getattr(args, "sites", None))
+    return registry, registry.select(ids)
+
+
+def add_output_options(p: argparse.ArgumentParser, plot: bool = True) -> None:
+    g = p.add_argument_group("output")
+    g.add_argument("--json", metavar="PATH", help="write machine-readable JSON to PATH ('-' for stdout)")
+    if plot:
+        g.add_argument("--plot", metavar="PATH", help="write a figure to PATH (.png, .pdf or .svg)")
+
+
+def check_plot_path(path) -> None:
+    if path and not str(path).lower().endswith((".png", ".pdf", ".svg")):
+        raise OptionError("--plot", path, "a path ending in .png, .pdf or .svg")
+
+
+def emit_json(path, doc: dict) -> None:
+    """Write ``doc`` to PATH atomically, or to stdout for '-'."""
+    import json
+
+    from planner.output import to_jsonable, write_json
+
+    if path == "-":
+        sys.stdout.write(json.dumps(to_jsonable(doc), indent=2, allow_nan=False) + "\n")
+    else:
+        write_json(path, doc)
+
+
+def split_list(values) -> list[str]:
+    """Flatten repeatable comma-separated option values into a list of non-empty strings."""
+    out: list[str] = []
+    for v in values or []:
+        out.extend(x.strip() for x in v.split(",") if x.strip())
+    return out
+
+
+def finite_float(option: str, low=None, high=None, low_open=False):
+    """argparse ``type=`` for a finite float in [low, high] with a one-line error."""
+
+    def convert(text: str) -> float:
+        try:
+            v = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+        bad = v != v or v in (float("inf"), float("-inf"))
+        bad |= low is not None and (v <= low if low_open else v < low)
+        bad |= high is not None and v > high
+        if bad:
+            lo = "-inf" if low is None else f"{low:g}"
+            hi = "inf" if high is None else f"{high:g}"
+            raise argparse.ArgumentTypeError(f"{text!r} out of range (allowed {'(' if low_open else '['}{lo}, {hi}])")
+        return v
+
+    convert.__name__ = option
+    return convert
+
+
+def positive_int(option: str, high: int = 10_000):
+    """argparse ``type=`` for a whole number in [1, high]."""
+
+    def convert(text: str) -> int:
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if not 1 <= v <= high:
+            raise argparse.ArgumentTypeError(f"{v} out of range (allowed 1 to {high})")
+        return v
+
+    convert.__name__ = option
+    return convert
+
+
+def parse_phases(text: str, option: str = "--phases", high: float = 100.0) -> list[float]:
+    """Comma-separated epochs in days since t0, each in (0, high]."""
+    out = []
+    for item in text.split(","):
+        item = item.strip()
+        if not item:
+            continue
+        try:
+            v = float(item)
+        except ValueError:
+            raise OptionError(option, item, f"comma-separated days since t0, each in (0, {high:g}]") from None
+        if not 0.0 < v <= high:
+            raise OptionError(option, item, f"days since t0 in (0, {high:g}]")
+        out.append(v)
+    if not out:
+        raise OptionError(option, text, "at least one epoch in days since t0")
+    return out
+
+
+def console(stderr: bool = False):
+    """A rich Console; decoration only on a terminal (plain text when piped)."""
+    from rich.console import Console
+
+    return Console(stderr=stderr, highlight=False, soft_wrap=False, width=None if sys.stdout.isatty() else 160)
+
+
+def progress(disable: bool = False):
+    """A rich Progress on stderr, shown only when stderr is a terminal."""
+    from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
+
+    return Progress(TextColumn("{task.description}"), BarColumn(), TimeElapsedColumn(),
+                    console=console(stderr=True), transient=True,
+                    disable=disable or not sys.stderr.isatty())

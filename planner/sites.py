@@ -1,0 +1,162 @@
+"""Observing sites: location, pointing limits, horizon profile, telescopes.
+
+One TOML file per site (schema in README.md, section "Site files").  The
+bundled sites live in the top-level ``sites/`` folder (installed as the
+``planner._sites`` package data); users add folders with ``--sites-dir``.
+A site id in a user folder replaces a bundled site of the same id.
+"""
+from __future__ import annotations
+
+import zoneinfo
+from dataclasses import dataclass, field as dc_field
+from importlib import resources
+from pathlib import Path
+
+import numpy as np
+
+from forecast.datafiles import field, read_toml, table
+from forecast.errors import DataFileError
+from planner.errors import InputError, UnknownNameError
+
+
+@dataclass(frozen=True)
+class Horizon:
+    """Minimum altitude (deg) as a function of azimuth (deg, N=0, E=90), linearly interpolated."""
+
+    azimuth_deg: np.ndarray
+    altitude_deg: np.ndarray
+
+    def min_altitude_deg(self, azimuth_deg):
+        """Horizon altitude (deg) at the given azimuths (deg), periodic in 360 deg."""
+        return np.interp(np.mod(azimuth_deg, 360.0), self.azimuth_deg, self.altitude_deg, period=360.0)
+
+
+@dataclass(frozen=True)
+class Site:
+    """An observatory site.  Angles in degrees (longitude east positive), elevation in metres."""
+
+    id: str
+    name: str
+    latitude_deg: float
+    longitude_deg: float
+    elevation_m: float
+    timezone: str
+    min_altitude_deg: float
+    horizon: Horizon | None = None
+    telescopes: tuple = ()
+    atmosphere: dict = dc_field(default_factory=dict)
+    source: str = ""
+
+    @property
+    def tz(self) -> zoneinfo.ZoneInfo:
+        return zoneinfo.ZoneInfo(self.timezone)
+
+
+def bundled_sites_dir() -> Path:
+    """Folder of the sites shipped with kncast (works for wheel and editable installs)."""
+    return Path(str(resources.files("planner._sites")))
+
+
+def load_site(path) -> Site:
+    """Read and validate one site file."""
+    doc = read_toml(path)
+    st = table(doc, "site", path)
+    f = lambda key, **kw: field(st, key, path, prefix="site", **kw)  # noqa: E731
+    tzname = f("timezone", kind=str)
+    try:
+        zoneinfo.ZoneInfo(tzname)
+    except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+        raise DataFileError(path, "site.timezone", f"unknown time zone {tzname!r}",
+                            "an IANA name such as America/Santiago") from None
+    return Site(
+        id=f("id", kind=str).strip(),
+        name=f("name", kind=str),
+        latitude_deg=f("latitude_deg", low=-90, high=90, unit="deg"),
+        longitude_deg=f("longitude_deg", low=-180, high=360, unit="deg (east positive)"),
+        elevation_m=f("elevation_m", low=-500, high=6000, unit="m"),
+        timezone=tzname,
+        min_altitude_deg=f("min_altitude_deg", low=0, high=89, unit="deg"),
+        horizon=_horizon(st, path),
+        telescopes=_telescopes(doc, path),
+        atmosphere=table(doc, "atmosphere", path, required=False),
+        source=str(path),
+    )
+
+
+def _horizon(st: dict, path) -> Horizon | None:
+    hz = st.get("horizon")
+    if hz is None:
+        return None
+    if not isinstance(hz, dict):
+        raise DataFileError(path, "site.horizon", "expected a table with azimuth_deg and altitude_deg arrays")
+    az = field(hz, "azimuth_deg", path, prefix="site.horizon", kind=list)
+    alt = field(hz, "altitude_deg", path, prefix="site.horizon", kind=list)
+    try:
+        az, alt = np.asarray(az, dtype=float), np.asarray(alt, dtype=float)
+    except (TypeError, ValueError):
+        raise DataFileError(path, "site.horizon", "azimuth_deg and altitude_deg must hold numbers") from None
+    if az.size < 2 or az.shape != alt.shape:
+        raise DataFileError(path, "site.horizon", "azimuth_deg and altitude_deg need the same length, at least 2")
+    if np.any((az < 0) | (az >= 360)) or np.any(np.diff(az) <= 0):
+        raise DataFileError(path, "site.horizon.azimuth_deg", "must increase strictly", "0 <= az < 360 deg")
+    if np.any((alt < 0) | (alt > 89)):
+        raise DataFileError(path, "site.horizon.altitude_deg", "out of range", "[0, 89] deg")
+    return Horizon(az, alt)
+
+
+def _telescopes(doc: dict, path) -> tuple:
+    """Telescopes and their instruments (parsed by forecast.instruments)."""
+    rows = doc.get("telescope", [])
+    if not rows:
+        return ()
+    from forecast.instruments import parse_telescopes
+
+    return parse_telescopes(rows, path)
+
+
+class SiteRegistry:
+    """Sites by id (case-insensitive), from the bundled folder plus user folders."""
+
+    def __init__(self, sites: dict[str, Site]):
+        self._sites = sites
+
+    @classmethod
+    def load(cls, extra_dirs=()) -> "SiteRegistry":
+        sites: dict[str, Site] = {}
+        for folder in [bundled_sites_dir(), *map(Path, extra_dirs)]:
+            sites.update(_load_folder(folder))
+        return cls(sites)
+
+    def __iter__(self):
+        return iter(self._sites.values())
+
+    def __len__(self):
+        return len(self._sites)
+
+    def ids(self) -> list[str]:
+        return [s.id for s in self._sites.values()]
+
+    def get(self, site_id: str) -> Site:
+        try:
+            return self._sites[site_id.strip().lower()]
+        except KeyError:
+            raise UnknownNameError("site", site_id, self.ids()) from None
+
+    def select(self, ids=None) -> list[Site]:
+        """Sites named in ``ids`` (iterable of ids), or all sites in file order."""
+        if not ids:
+            return list(self._sites.values())
+        return [self.get(i) for i in ids]
+
+
+def _load_folder(folder: Path) -> dict[str, Site]:
+    if not folder.is_dir():
+        raise InputError(f"--sites-dir {str(folder)!r}: not a folder")
+    found: dict[str, Site] = {}
+    for path in sorted(folder.glob("*.toml")):
+        site = load_site(path)
+        key = site.id.lower()
+        if key in found:
+            raise DataFileError(path, "site.id", f"duplicate id {site.id!r} (also in {found[key].source})")
+        found[key] = site
+    return found

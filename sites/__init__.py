@@ -1,0 +1,1 @@
+"""Bundled site files (TOML); installed as package data of planner._sites."""
