@@ -1,0 +1,101 @@
+"""``kncast visibility``: from which sites, on which nights, between which times."""
+from __future__ import annotations
+
+from planner.commands._common import (add_event_options, add_output_options, add_site_options, check_plot_path,
+                                      console, emit_json, event_from_args, finite_float, positive_int,
+                                      sites_from_args)
+
+HELP = "observing windows per site and night: dusk, dawn, airmass and Moon"
+
+CAUTION = ("Windows are computed from geometry only: check Sun-avoidance limits and the observatory's own "
+           "tools and rules, which take precedence.")
+
+
+def add_arguments(p) -> None:
+    add_event_options(p)
+    add_site_options(p)
+    g = p.add_argument_group("nights and rules")
+    g.add_argument("--nights", type=positive_int("--nights", high=366), default=3, metavar="N",
+                   help="local nights from the one in progress at t0 (default 3)")
+    g.add_argument("--twilight", choices=["civil", "nautical", "astronomical"], default="nautical",
+                   help="darkness starts when the Sun is below -6 / -12 / -18 deg (default nautical)")
+    g.add_argument("--min-altitude", type=finite_float("--min-altitude", 0, 89), metavar="DEG",
+                   help="lowest target altitude, replaces each site's own limit (0-89 deg)")
+    g.add_argument("--max-airmass", type=finite_float("--max-airmass", 1, 38, low_open=True), metavar="X",
+                   help="highest airmass (Kasten & Young 1989), in (1, 38]")
+    g.add_argument("--min-moon-sep", type=finite_float("--min-moon-sep", 0, 180), metavar="DEG",
+                   help="smallest Moon-target separation (0-180 deg)")
+    add_output_options(p)
+
+
+def run(args) -> int:
+    check_plot_path(args.plot)
+    event = event_from_args(args)
+    _, sites = sites_from_args(args)
+    from planner.visibility import compute_visibility
+
+    result = compute_visibility(event, sites, nights=args.nights, twilight=args.twilight,
+                                min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
+                                min_moon_sep_deg=args.min_moon_sep)
+    if args.plot:
+        from planner.plots_campaign import campaign_figure
+        from planner.output import save_figure
+
+        save_figure(campaign_figure(result), args.plot)
+    if args.json:
+        emit_json(args.json, visibility_document(result))
+    if args.json != "-":
+        print_tables(result)
+    return 0
+
+
+def visibility_document(result) -> dict:
+    """The ``--json`` document (schema in docs/visibility.md)."""
+    from planner.output import document
+
+    return document("visibility", event=result.event.summary(), settings=result.settings(),
+                    nights=[n.summary() for n in result.nights], caution=CAUTION)
+
+
+def _local(t, tz) -> str:
+    return t.to_datetime(timezone=tz).strftime("%H:%M")
+
+
+def _utc(t, with_date: bool = False) -> str:
+    return t.utc.strftime("%m-%d %H:%M" if with_date else "%H:%M")
+
+
+def print_tables(result) -> None:
+    """One rich table per site: each night with its windows (or the reason there is none)."""
+    from rich.table import Table
+
+    out = console()
+    ev = result.event
+    out.print(f"[bold]{ev.id}[/bold]  RA {ev.ra_deg:.4f} deg  Dec {ev.dec_deg:+.4f} deg  "
+              f"t0 {ev.t0.utc.strftime('%Y-%m-%d %H:%M:%S')} UTC   twilight: {result.twilight} "
+              f"(Sun < {result.rules.twilight_deg:g} deg)")
+    for site in result.sites:
+        tz = site.tz
+        table = Table(title=f"{site.name} [{site.id}]  ({site.timezone})", title_justify="left")
+        for col, just in [("night", "left"), ("dusk-dawn UTC", "left"), ("window UTC", "left"),
+                          ("window local", "left"), ("hours", "right"), ("best X", "right"),
+                          ("best UTC", "left"), ("Moon illum.", "right"), ("Moon sep", "right"),
+                          ("days since t0", "right")]:
+            table.add_column(col, justify=just)
+        for rec in result.for_site(site.id):
+            dark = (f"{_utc(rec.dusk)}-{_utc(rec.dawn)}" if rec.dusk is not None and rec.dawn is not None
+                    else "-")
+            if not rec.windows:
+                table.add_row(rec.night.isoformat(), dark, f"[dim]{rec.note}[/dim]", *[""] * 7)
+                continue
+            for k, w in enumerate(rec.windows):
+                table.add_row(
+                    rec.night.isoformat() if k == 0 else "", dark if k == 0 else "",
+                    f"{_utc(w.start, True)} - {_utc(w.end)}", f"{_local(w.start, tz)} - {_local(w.end, tz)}",
+                    f"{w.hours:.2f}", f"{w.best_airmass:.2f}", _utc(w.best_time),
+                    f"{100 * w.moon_illumination:.0f}%", f"{w.moon_sep_deg:.0f} deg",
+                    f"{w.phase_start_d:.2f}-{w.phase_end_d:.2f}")
+            if rec.note:
+                table.add_row("", "", f"[dim]{rec.note}[/dim]", *[""] * 7)
+        out.print(table)
+    out.print(f"[dim]{CAUTION}[/dim]")
