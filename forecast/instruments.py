@@ -110,7 +110,7 @@ class Setup:
                 pieces.append((lo, g_lo))
                 lo = g_hi
             pieces.append((lo, arm.max_A))
-        pieces.sort()
+        pieces = sorted(p for p in pieces if p[1] > p[0])
         merged = [list(pieces[0])]
         for lo, hi in pieces[1:]:
             if lo <= merged[-1][1]:
