@@ -1,0 +1,257 @@
+"""Photosphere models: temperature, radius and luminosity of each emitting component vs time.
+
+Two models, both evaluated at rest-frame ages ``age_d`` (days since the
+merger in the source frame), vectorized over epochs:
+
+``powerlaw``  an empirical cooling, expanding blackbody
+    T_free(t) = T_ref (t / t_ref)^-alpha,   v(t) = min(v_ref (t / t_ref)^-beta, v_max),
+    R = v t (homologous),   L = 4 pi R^2 sigma T_free^4,
+    and the same temperature floor as ``heating``: T = max(T_free, T_floor); once
+    at the floor the photosphere recedes, R = (L / (4 pi sigma T_floor^4))^1/2,
+    so the luminosity keeps falling smoothly instead of rising with R = v t.
+
+``heating``  one or more ejecta components, each a one-zone radioactive
+    model (``forecast.heating``): Korobkin et al. (2012) heating times the
+    Barnes et al. (2016) thermalization, diffused with Arnett (1982), and a
+    photosphere with a temperature floor (Nicholl et al. 2017, ApJ 848, L18):
+    T = max[(L / (4 pi sigma v^2 t^2))^1/4, T_floor]; R = v t above the
+    floor, R = (L / (4 pi sigma T_floor^4))^1/2 once the floor is reached.
+    Components radiate as separate blackbodies.
+
+Models are built from a plain dict (the event file's ``[model]`` table
+merged with command-line overrides) by :func:`build_model`; every value
+is validated and a bad one raises ForecastInputError naming it.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from forecast.blackbody import C_CGS, SIGMA_SB_CGS, stefan_boltzmann_luminosity
+from forecast.errors import ForecastInputError
+from forecast.heating import DAY_S, arnett_luminosity
+
+MODEL_NAMES = ("powerlaw", "heating")
+V_LIMIT_C = 0.8  # ejecta velocities allowed in (0, 0.8) c
+
+
+# (parameter, low, high, low_open, high_open, unit)
+POWERLAW_RANGES = (
+    ("t_ref_d", 0.0, 100.0, True, False, "d"),
+    ("temperature_ref_K", 500.0, 1e5, False, False, "K"),
+    ("temperature_index", 0.0, 3.0, False, False, ""),
+    ("temperature_floor_K", 0.0, 2e4, True, False, "K"),
+    ("velocity_ref_c", 0.0, V_LIMIT_C, True, True, "c"),
+    ("velocity_index", 0.0, 2.0, False, False, ""),
+    ("v_max_c", 0.0, V_LIMIT_C, True, True, "c"),
+    ("mass_msun", 0.0, 1.0, True, False, "Msun"),
+)
+COMPONENT_RANGES = (
+    ("mass_msun", 0.0, 1.0, True, False, "Msun"),
+    ("velocity_c", 0.0, V_LIMIT_C, True, True, "c"),
+    ("opacity_cm2_g", 0.0, 1000.0, True, False, "cm^2/g"),
+    ("temperature_floor_K", 0.0, 2e4, True, False, "K"),
+)
+
+
+
+def _check(key, value, lo, hi, lo_open, hi_open, unit, where):
+    ok = isinstance(value, (int, float)) and not isinstance(value, bool) and np.isfinite(value)
+    if ok:
+        ok = (value > lo if lo_open else value >= lo) and (value < hi if hi_open else value <= hi)
+    if not ok:
+        interval = f"{'(' if lo_open else '['}{lo:g}, {hi:g}{')' if hi_open else ']'}"
+        shown = f"{value:g}" if isinstance(value, (int, float)) and not isinstance(value, bool) else repr(value)
+        raise ForecastInputError(f"{where}.{key} = {shown}: allowed {interval}{(' ' + unit) if unit else ''}")
+
+
+@dataclass(frozen=True)
+class PowerLawPhotosphere:
+    """Empirical cooling blackbody.  Defaults: common practice for kilonovae
+    (about 5000 K at 1.5 days, reaching the 2500 K floor after 6 days,
+    photospheric velocity 0.2 c at 1.5 days slowly receding, 0.1-0.3 c)."""
+
+    t_ref_d: float = 1.5
+    temperature_ref_K: float = 5000.0
+    temperature_index: float = 0.5
+    temperature_floor_K: float = 2500.0
+    velocity_ref_c: float = 0.2
+    velocity_index: float = 0.3
+    v_max_c: float = 0.35        # outer edge of the ejecta; the photosphere never lies outside it
+    mass_msun: float = 0.04      # total ejecta mass, used by line-strength estimates
+
+    name = "powerlaw"
+
+    def __post_init__(self):
+        for key, lo, hi, lo_open, hi_open, unit in POWERLAW_RANGES:
+            _check(key, getattr(self, key), lo, hi, lo_open, hi_open, unit, "model")
+        if self.velocity_ref_c > self.v_max_c:
+            raise ForecastInputError(f"model.velocity_ref_c = {self.velocity_ref_c:g}: must not exceed "
+                                     f"model.v_max_c = {self.v_max_c:g} (the outer ejecta velocity)")
+
+    @property
+    def component_names(self) -> tuple[str, ...]:
+        return ("photosphere",)
+
+    @property
+    def ejecta_mass_msun(self) -> float:
+        return self.mass_msun
+
+    def parameters(self) -> dict:
+        return {key: getattr(self, key) for key, *_ in POWERLAW_RANGES}
+
+    def components(self, age_d):
+        """(T_K, R_cm, L_erg_s, v_phot_c), each shaped (1, n_epoch)."""
+        t = np.asarray(age_d, dtype=float).reshape(1, -1)
+        x = t / self.t_ref_d
+        t_free = self.temperature_ref_K * x ** -self.temperature_index
+        v_free = np.minimum(self.velocity_ref_c * x ** -self.velocity_index, self.v_max_c)
+        r_free = v_free * C_CGS * t * DAY_S
+        lum = stefan_boltzmann_luminosity(t_free, r_free)
+        # at the floor the photosphere recedes into the ejecta and keeps L (Nicholl et al. 2017)
+        temp = np.maximum(t_free, self.temperature_floor_K)
+        radius = np.where(t_free >= self.temperature_floor_K, r_free,
+                          np.sqrt(lum / (4.0 * np.pi * SIGMA_SB_CGS * temp**4)))
+        return temp, radius, lum, radius / (C_CGS * t * DAY_S)
+
+    def v_max(self, age_d):
+        return np.full(np.shape(age_d), self.v_max_c)
+
+
+@dataclass(frozen=True)
+class EjectaComponent:
+    """One ejecta component of the ``heating`` model."""
+
+    name: str
+    mass_msun: float
+    velocity_c: float
+    opacity_cm2_g: float
+    temperature_floor_K: float
+
+    def __post_init__(self):
+        for key, lo, hi, lo_open, hi_open, unit in COMPONENT_RANGES:
+            _check(key, getattr(self, key), lo, hi, lo_open, hi_open, unit, f"model.component {self.name!r}")
+
+    def parameters(self) -> dict:
+        return {"name": self.name, **{key: getattr(self, key) for key, *_ in COMPONENT_RANGES}}
+
+
+# Typical values (common practice for two-component kilonova fits): a fast lanthanide-poor "blue"
+# component with a low grey opacity and a slower lanthanide-rich "red" one with kappa ~ 10 cm^2/g.
+# The floors follow the recombination temperatures used in such fits (~2500 K lanthanide-rich,
+# a little warmer for lanthanide-poor matter; common practice).
+DEFAULT_COMPONENTS = (
+    EjectaComponent("blue", 0.025, 0.25, 0.5, 3000.0),
+    EjectaComponent("red", 0.04, 0.15, 10.0, 2500.0),
+)
+
+
+@dataclass(frozen=True)
+class HeatingPhotosphere:
+    """Radioactively powered multi-component photosphere (see module docstring)."""
+
+    ejecta: tuple[EjectaComponent, ...] = DEFAULT_COMPONENTS
+    points_per_decade: int = 400
+
+    name = "heating"
+
+    def __post_init__(self):
+        if not self.ejecta:
+            raise ForecastInputError("model.component: no components (allowed: one or more [[model.component]])")
+        names = [c.name for c in self.ejecta]
+        if len(set(names)) != len(names):
+            raise ForecastInputError(f"model.component names {names}: must be unique")
+
+    @property
+    def component_names(self) -> tuple[str, ...]:
+        return tuple(c.name for c in self.ejecta)
+
+    @property
+    def ejecta_mass_msun(self) -> float:
+        return float(sum(c.mass_msun for c in self.ejecta))
+
+    def parameters(self) -> dict:
+        return {"component": [c.parameters() for c in self.ejecta]}
+
+    def components(self, age_d):
+        """(T_K, R_cm, L_erg_s, v_phot_c), each shaped (n_comp, n_epoch)."""
+        t = np.asarray(age_d, dtype=float).ravel()
+        lum = np.array([arnett_luminosity(t, c.mass_msun, c.velocity_c, c.opacity_cm2_g, self.points_per_decade)
+                        for c in self.ejecta]).reshape(len(self.ejecta), t.size)
+        vel = np.array([c.velocity_c for c in self.ejecta])[:, None]
+        floor = np.array([c.temperature_floor_K for c in self.ejecta])[:, None]
+        r_free = vel * C_CGS * t[None, :] * DAY_S
+        t_free = (lum / (4.0 * np.pi * SIGMA_SB_CGS * r_free**2)) ** 0.25
+        above = t_free >= floor
+        temp = np.where(above, t_free, floor)
+        radius = np.where(above, r_free, np.sqrt(lum / (4.0 * np.pi * SIGMA_SB_CGS * floor**4)))
+        v_phot = radius / (C_CGS * t[None, :] * DAY_S)
+        return temp, radius, lum, v_phot
+
+    def v_max(self, age_d):
+        return np.full(np.shape(age_d), max(c.velocity_c for c in self.ejecta))
+
+
+def build_model(config: dict | None = None, where: str = "[model]"):
+    """A photosphere model from a ``[model]``-style dict (see docs/photosphere.md for the schema).
+
+    ``config["name"]`` selects ``powerlaw`` (default) or ``heating``; other
+    keys are that model's parameters.  ``where`` prefixes error messages
+    (a file name, or "command line").
+    """
+    config = dict(config or {})
+    name = config.pop("name", "powerlaw")
+    if name not in MODEL_NAMES:
+        raise ForecastInputError(f"{where}: name = {name!r}: allowed {' | '.join(MODEL_NAMES)}")
+    try:
+        if name == "powerlaw":
+            allowed = {key for key, *_ in POWERLAW_RANGES}
+            _no_unknown(config, allowed, where, name)
+            return PowerLawPhotosphere(**{k: _number(config[k], k, where) for k in config})
+        _no_unknown(config, {"component", "points_per_decade"}, where, name)
+        ppd = config.get("points_per_decade", 400)
+        if isinstance(ppd, bool) or not isinstance(ppd, int) or not 20 <= ppd <= 5000:
+            raise ForecastInputError(f"{where}: points_per_decade = {ppd!r}: allowed a whole number in [20, 5000]")
+        comps = config.get("component")
+        if comps is None:
+            return HeatingPhotosphere(DEFAULT_COMPONENTS, ppd)
+        if not isinstance(comps, list) or not all(isinstance(c, dict) for c in comps):
+            raise ForecastInputError(f"{where}: component: expected an array of [[model.component]] tables")
+        return HeatingPhotosphere(tuple(_component(c, i, where) for i, c in enumerate(comps)), ppd)
+    except ForecastInputError as err:
+        text = str(err)
+        raise ForecastInputError(text if text.startswith(where) else f"{where}: {text}") from None
+
+
+def _component(row: dict, i: int, where: str) -> EjectaComponent:
+    allowed = {"name"} | {key for key, *_ in COMPONENT_RANGES}
+    unknown = sorted(set(row) - allowed)
+    if unknown:
+        raise ForecastInputError(f"{where}: component[{i}].{unknown[0]}: unknown key "
+                                 f"(allowed: {', '.join(sorted(allowed))})")
+    missing = [k for k, *_ in COMPONENT_RANGES if k not in row]
+    if missing:
+        raise ForecastInputError(f"{where}: component[{i}].{missing[0]}: required key missing "
+                                 f"(keys: mass_msun, velocity_c, opacity_cm2_g, temperature_floor_K)")
+    name = row.get("name", f"component{i + 1}")
+    if not isinstance(name, str) or not name.strip():
+        raise ForecastInputError(f"{where}: component[{i}].name = {name!r}: allowed a non-empty string")
+    return EjectaComponent(name, *(_number(row[k], f"component[{i}].{k}", where) for k, *_ in COMPONENT_RANGES))
+
+
+def _number(value, key, where):
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise ForecastInputError(f"{where}: {key} = {value!r}: expected a number")
+    return float(value)
+
+
+def _no_unknown(config, allowed, where, name):
+    unknown = sorted(set(config) - set(allowed))
+    if unknown:
+        raise ForecastInputError(f"{where}: {unknown[0]}: not a parameter of the {name} model "
+                                 f"(allowed: name, {', '.join(sorted(allowed))})")
+
+
+__all__ = ["MODEL_NAMES", "PowerLawPhotosphere", "EjectaComponent", "HeatingPhotosphere", "DEFAULT_COMPONENTS",
+           "build_model"]

@@ -1,0 +1,152 @@
+"""A transient as the observer sees it: photosphere model + distance, redshift and dust.
+
+:class:`Transient` is the one object the later forecasts (line features,
+exposure times, the campaign plan) use.  Phases are observer-frame days
+since t0; the model is evaluated at the rest-frame age phase_d / (1 + z).
+Observed flux density at observed vacuum wavelength lambda:
+
+    F_lambda,obs(lambda) = L_lambda,rest(lambda / (1 + z)) / (4 pi D_L^2 (1 + z))
+                           * T_host(lambda / (1 + z)) * T_MW(lambda)
+
+with host extinction applied in the rest frame and Milky Way extinction
+in the observer frame, both Fitzpatrick (1999) with R_V = 3.1
+(``forecast.extinction``).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from astropy.cosmology import Planck18
+
+from forecast.blackbody import planck_flam
+from forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
+from forecast.errors import ForecastInputError, check_range
+from forecast.extinction import transmission
+from forecast.photometry import ab_minus_vega, band_set
+
+
+@dataclass(frozen=True)
+class PhotosphereState:
+    """The photosphere at a set of epochs (arrays over epochs; per-component arrays (n_comp, n_epoch)).
+
+    For several components the totals are: ``luminosity_erg_s`` the sum;
+    ``temperature_K`` the luminosity-weighted mean of the component
+    temperatures; ``radius_cm`` the radius that gives L = 4 pi R^2 sigma T^4
+    with those; ``v_phot_c`` the luminosity-weighted mean photospheric
+    velocity (R_i / t of each component, in c).  ``v_max_c`` is the outer
+    ejecta velocity (the fastest component's velocity for ``heating``).
+    """
+
+    phase_d: np.ndarray
+    age_d: np.ndarray
+    temperature_K: np.ndarray
+    radius_cm: np.ndarray
+    luminosity_erg_s: np.ndarray
+    v_phot_c: np.ndarray
+    v_max_c: np.ndarray
+    component_names: tuple[str, ...]
+    comp_temperature_K: np.ndarray
+    comp_radius_cm: np.ndarray
+    comp_luminosity_erg_s: np.ndarray
+    comp_v_phot_c: np.ndarray
+
+
+class Transient:
+    """A photosphere model placed at a distance, redshifted and reddened.
+
+    Give ``distance_mpc`` (luminosity distance) or ``redshift`` (or both,
+    used as given); the other follows from ``cosmology`` (Planck18 by
+    default).  ``ebv_mw``/``ebv_host`` are colour excesses E(B-V) in mag.
+    """
+
+    def __init__(self, photosphere, distance_mpc=None, redshift=None, ebv_mw=0.0, ebv_host=0.0,
+                 cosmology=Planck18):
+        if distance_mpc is None and redshift is None:
+            raise ForecastInputError("distance needed: give --distance-mpc or distance_mpc in the event file")
+        if redshift is None:
+            redshift = redshift_for_distance(distance_mpc, cosmology)
+        elif distance_mpc is None:
+            distance_mpc = distance_for_redshift(redshift, cosmology)
+        check_range("distance_mpc", distance_mpc, 0.0, 1e5, low_open=True, unit=" Mpc")
+        check_range("redshift", redshift, 0.0, 10.0, low_open=True)
+        check_range("ebv_mw", ebv_mw, 0.0, 10.0, unit=" mag")
+        check_range("ebv_host", ebv_host, 0.0, 10.0, unit=" mag")
+        self.photosphere = photosphere
+        self.distance_mpc = float(distance_mpc)
+        self.redshift = float(redshift)
+        self.ebv_mw = float(ebv_mw)
+        self.ebv_host = float(ebv_host)
+        self.cosmology = cosmology
+        self.luminosity_distance_cm = self.distance_mpc * MPC_CM
+
+    @property
+    def ejecta_mass_msun(self) -> float:
+        """Total ejecta mass of the model, Msun."""
+        return float(self.photosphere.ejecta_mass_msun)
+
+    @property
+    def component_names(self) -> tuple[str, ...]:
+        return tuple(self.photosphere.component_names)
+
+    def _phases(self, phase_d) -> np.ndarray:
+        p = np.atleast_1d(np.asarray(phase_d, dtype=float))
+        if p.ndim != 1:
+            p = p.ravel()
+        check_range("phase_d", p, 0.0, None, low_open=True, unit=" d")
+        return p
+
+    def state(self, phase_d) -> PhotosphereState:
+        """The photosphere at observer-frame phases (days since t0, > 0)."""
+        phase = self._phases(phase_d)
+        age = phase / (1.0 + self.redshift)
+        temp, radius, lum, v_phot = (np.asarray(a, float) for a in self.photosphere.components(age))
+        total = lum.sum(axis=0)
+        weights = lum / np.where(total > 0, total, 1.0)
+        t_eff = (weights * temp).sum(axis=0)
+        from forecast.blackbody import SIGMA_SB_CGS
+
+        r_eff = np.sqrt(total / (4.0 * np.pi * SIGMA_SB_CGS * t_eff**4))
+        return PhotosphereState(
+            phase_d=phase, age_d=age, temperature_K=t_eff, radius_cm=r_eff, luminosity_erg_s=total,
+            v_phot_c=(weights * v_phot).sum(axis=0), v_max_c=np.asarray(self.photosphere.v_max(age), float),
+            component_names=self.component_names, comp_temperature_K=temp, comp_radius_cm=radius,
+            comp_luminosity_erg_s=lum, comp_v_phot_c=v_phot)
+
+    def flux_flam(self, phase_d, wavelength_A) -> np.ndarray:
+        """Observed F_lambda (erg s^-1 cm^-2 A^-1), shape (n_epoch, n_wave), at observed vacuum wavelengths."""
+        phase = self._phases(phase_d)
+        lam_obs = np.atleast_1d(np.asarray(wavelength_A, dtype=float)).ravel()
+        check_range("wavelength_A", lam_obs, 0.0, None, low_open=True, unit=" A")
+        st = self.state(phase)
+        return self._flux_from_state(st, lam_obs)
+
+    def _flux_from_state(self, st: PhotosphereState, lam_obs: np.ndarray) -> np.ndarray:
+        z1 = 1.0 + self.redshift
+        lam_rest = lam_obs / z1
+        # L_lambda = 4 pi R^2 * pi B_lambda  ->  per unit area at the observer / (4 pi D_L^2 (1+z))
+        scale = np.pi * st.comp_radius_cm**2 / (self.luminosity_distance_cm**2 * z1)  # (n_comp, n_epoch)
+        out = np.zeros((st.phase_d.size, lam_rest.size))
+        for k in range(scale.shape[0]):  # a handful of components; each step is a whole (epoch, wave) grid
+            out += scale[k][:, None] * planck_flam(lam_rest[None, :], st.comp_temperature_K[k][:, None])
+        dust = transmission(lam_obs, self.ebv_mw)
+        if self.ebv_host:
+            dust = dust * transmission(lam_rest, self.ebv_host)
+        return out * dust[None, :]
+
+    def mag_ab(self, phase_d, bands) -> dict[str, np.ndarray]:
+        """Synthetic AB magnitudes per band (speclite names) at each phase: {band: array (n_epoch,)}."""
+        bands = (bands,) if isinstance(bands, str) else tuple(bands)
+        bs = band_set(bands)
+        flux = self.flux_flam(phase_d, bs.wavelength_A)
+        mags = bs.mag_ab(flux)
+        return {b: mags[:, j] for j, b in enumerate(bands)}
+
+    def mag_vega(self, phase_d, bands) -> dict[str, np.ndarray]:
+        """Vega magnitudes, from the AB ones and tabulated Vega zero points."""
+        bands = (bands,) if isinstance(bands, str) else tuple(bands)
+        offsets = {b: ab_minus_vega(b) for b in bands}  # validate before computing
+        return {b: m - offsets[b] for b, m in self.mag_ab(phase_d, bands).items()}
+
+
+__all__ = ["Transient", "PhotosphereState"]
