@@ -1,0 +1,35 @@
+"""``kncast demo``: the campaign plan for the bundled southern demo event, in one command."""
+from __future__ import annotations
+
+HELP = "plan the bundled demo event (kn-demo-south) into a folder and say where the report is"
+
+DEMO_EVENT = "kn-demo-south.toml"
+
+
+def add_arguments(p) -> None:
+    p.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/kn-demo-south/)")
+    from planner.commands._common import positive_int
+
+    p.add_argument("--nights", type=positive_int("--nights", 60), default=10, metavar="N",
+                   help="local nights after t0 to plan (default 10)")
+
+
+def demo_event_path():
+    """The bundled demo event file (works for wheel and editable installs)."""
+    from importlib import resources
+
+    return resources.files("planner._demo_events").joinpath(DEMO_EVENT)
+
+
+def run(args) -> int:
+    from importlib import resources
+
+    from planner.cli import build_parser
+
+    with resources.as_file(demo_event_path()) as path:
+        argv = ["plan", "--event", str(path), "--nights", str(args.nights)]
+        if args.out:
+            argv += ["--out", args.out]
+        plan_args = build_parser().parse_args(argv)
+        plan_args.debug = args.debug
+        return plan_args.run(plan_args)

@@ -1,0 +1,135 @@
+"""``kncast plan``: a night-by-night spectroscopy plan and a proposal-ready report.
+
+Writes one output folder (default ``./kncast-out/<event id>/``), atomically:
+``plan.json``, ``windows.ecsv``, ``features.ecsv``, ``exposures.ecsv``,
+``figures/*.png``, ``report.md`` and a self-contained ``report.html``
+(layout and schema in ``docs/plan.md``).
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+from planner.commands import _common
+
+HELP = "plan a spectroscopy campaign: best setup per site and night, exposure times, report"
+
+TWILIGHTS = ("civil", "nautical", "astronomical")
+
+
+def add_arguments(p) -> None:
+    _common.add_event_options(p)
+    _common.add_site_options(p)
+    g = p.add_argument_group("plan")
+    g.add_argument("--nights", type=_common.positive_int("--nights", 60), default=7, metavar="N",
+                   help="local nights after t0 to plan (default 7)")
+    g.add_argument("--snr", type=_common.finite_float("--snr", 0, 1000, low_open=True), default=10.0,
+                   metavar="TARGET", help="target S/N per resolution element at the strongest clear feature "
+                                          "(default 10)")
+    g.add_argument("--max-hours", type=_common.finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
+                   metavar="H", help="at most this many hours per night on the target (default 4)")
+    g.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
+                   metavar="MIN", help="acquisition and readout overhead per night, minutes (default 15)")
+    g.add_argument("--twilight", choices=TWILIGHTS, default="nautical",
+                   help="Sun altitude that ends twilight (default nautical, -12 deg)")
+    o = p.add_argument_group("output")
+    o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")
+    o.add_argument("--json", metavar="PATH", help="also write plan.json to PATH ('-' for stdout); quiet terminal")
+    from planner.commands._model_options import add_model_options
+
+    add_model_options(p)
+
+
+def run(args) -> int:
+    quiet = bool(args.json)
+    event = _common.event_from_args(args)
+    registry, sites = _common.sites_from_args(args)
+    from planner.commands._model_options import overrides_from_args
+
+    overrides = overrides_from_args(args)
+    out = Path(args.out) if args.out else Path("kncast-out") / safe_name(event.id)
+    check_out(out)
+    with _common.progress(disable=quiet) as bar:
+        task = bar.add_task("planning", total=7)
+
+        def say(text):
+            bar.update(task, description=text, advance=1)
+
+        from planner.plan import build_plan
+
+        plan = build_plan(event, sites, nights=args.nights, snr_target=args.snr, max_hours=args.max_hours,
+                          overhead_s=args.overhead_min * 60.0, twilight=args.twilight, registry=registry,
+                          overrides=overrides, progress=say)
+        doc = write_folder(plan, out, say)
+    if args.json:
+        _common.emit_json(args.json, doc)
+    if args.json != "-":
+        print_summary(plan, out, quiet=quiet)
+    return 0
+
+
+def safe_name(text: str) -> str:
+    """A folder name from an event id (letters, digits, '.', '_', '-')."""
+    import re
+
+    name = re.sub(r"[^A-Za-z0-9._-]+", "_", text).strip("._") or "event"
+    return name[:80]
+
+
+def check_out(out: Path) -> None:
+    from planner.errors import OptionError
+
+    if out.exists() and not out.is_dir():
+        raise OptionError("--out", str(out), "a folder path (this is an existing file)")
+    if out.exists() and any(out.iterdir()) and not (out / "plan.json").exists():
+        raise OptionError("--out", str(out), "a new folder or an earlier kncast plan folder "
+                          "(this folder holds other files)")
+
+
+def write_folder(plan, out: Path, say=lambda text: None) -> dict:
+    """Write every output file of ``plan`` into ``out`` atomically; returns the plan document."""
+    from planner import plan_outputs
+    from planner.output import atomic_dir, write_json
+
+    with atomic_dir(out) as tmp:
+        say("tables")
+        files = plan_outputs.write_tables(plan, tmp)
+        say("figures")
+        figures = plan_outputs.write_figures(plan, tmp)
+        files["figures"] = [f["path"] for f in figures]
+        files.update(plan="plan.json", report_md="report.md", report_html="report.html")
+        doc = plan_outputs.document(plan, files)
+        write_json(tmp / "plan.json", doc)
+        say("report")
+        from planner.report import write_report
+
+        write_report(tmp, doc, figures)
+    return doc
+
+
+def print_summary(plan, out: Path, quiet: bool = False) -> None:
+    """A rich table of nights (chosen setup, epoch, exposure, S/N, reason), the report path, the cautions."""
+    from rich.table import Table
+
+    from planner.report import CAUTION_LINE
+
+    con = _common.console()
+    if not quiet:
+        t = Table(title=f"Spectroscopy plan for {plan.event.id}", show_lines=False)
+        for col in ("site", "night", "day", "setup", "exposure", "S/N", "reason"):
+            t.add_column(col, overflow="fold")
+        for p in plan.nights:
+            c = p.choice
+            t.add_row(p.site.id, p.record.night.isoformat(), "-" if p.phase_d is None else f"{p.phase_d:.2f}",
+                      c.setup if c else "-",
+                      f"{c.nexp} x {c.exposure_s:.0f} s" if c and c.nexp else "-",
+                      f"{c.snr:.1f}" if c else "-", p.reason)
+        con.print(t)
+        camp = plan.campaign
+        if camp["last_useful"]:
+            lu = camp["last_useful"]
+            con.print(f"Last useful night: {lu['night']} at {lu['site']} (day {lu['phase_d']:.2f}); "
+                      f"{camp['useful_nights']} useful site-night(s).")
+        else:
+            con.print("Nothing useful can be done: " + camp.get("why_nothing", ""))
+    con.print(f"Report: {out / 'report.html'}")
+    con.print(CAUTION_LINE)

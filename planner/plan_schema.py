@@ -1,0 +1,105 @@
+"""JSON Schema (draft 2020-12) of ``plan.json``, the document ``kncast plan`` writes.
+
+Kept as a Python dict (package data is limited to TOML/ECSV/... files).
+``docs/plan.md`` describes every member in words.
+"""
+from __future__ import annotations
+
+_num = {"type": "number"}
+_num_or_null = {"type": ["number", "null"]}
+_int_or_null = {"type": ["integer", "null"]}
+_str_or_null = {"type": ["string", "null"]}
+_utc = {"type": "string", "pattern": r"^\d{4}-\d{2}-\d{2}T\d{2}:\d{2}:\d{2}Z$"}
+_utc_or_null = {"anyOf": [_utc, {"type": "null"}]}
+_date = {"type": "string", "pattern": r"^\d{4}-\d{2}-\d{2}$"}
+_strings = {"type": "array", "items": {"type": "string"}}
+
+
+def _obj(required: dict, optional: dict | None = None, extra: bool = False) -> dict:
+    return {"type": "object", "required": list(required), "properties": {**required, **(optional or {})},
+            "additionalProperties": extra}
+
+
+WINDOW = _obj({
+    "start_utc": _utc, "end_utc": _utc, "hours": {"type": "number", "minimum": 0}, "best_airmass": _num,
+    "best_utc": _utc, "moon_illumination": {"type": "number", "minimum": 0, "maximum": 1},
+    "moon_sep_deg": _num, "phase_start_d": _num, "phase_end_d": _num,
+}, extra=True)
+
+SETUP_OUTCOME = _obj({
+    "setup": {"type": "string"}, "aperture_m": _num, "n_strong": {"type": "integer", "minimum": 0},
+    "n_clear_strong": {"type": "integer", "minimum": 0}, "strong_features": _strings, "clear_features": _strings,
+    "feature": _str_or_null, "species": _str_or_null, "trough_obs_A": _num_or_null, "tau_sobolev": _num_or_null,
+    "snr_window": _num_or_null, "time_for_target_s": _num_or_null, "nexp": _int_or_null,
+    "exposure_s": _num_or_null, "reaches_target": {"type": "boolean"}, "score": {"type": "number", "minimum": 0},
+    "verdict": {"type": "string"},
+})
+
+EPOCH = _obj({
+    "phase_d": _num, "utc": _utc, "window_index": {"type": "integer", "minimum": 0},
+    "window_start_utc": _utc, "window_end_utc": _utc, "window_hours": _num, "hours_available": _num,
+    "airmass": _num, "altitude_deg": _num, "moon_illumination": _num, "moon_sep_deg": _num,
+    "moon_altitude_deg": _num,
+    "photosphere": _obj({"phase_d": _num, "temperature_K": _num, "radius_cm": _num, "luminosity_erg_s": _num,
+                         "v_phot_c": _num}, extra=True),
+})
+
+CHOICE = _obj({
+    "setup": {"type": "string"}, "score": _num, "feature": _str_or_null, "species": _str_or_null,
+    "trough_obs_A": _num_or_null, "snr": _num, "time_for_target_s": _num_or_null, "nexp": _int_or_null,
+    "exposure_s": _num_or_null, "n_clear_strong": {"type": "integer"}, "n_strong": {"type": "integer"},
+})
+
+STATUS = {"enum": ["observe", "no-window", "no-spectrograph", "too-short", "hidden", "no-strong", "too-faint"]}
+
+NIGHT = _obj({
+    "site": {"type": "string"}, "night": _date, "dusk_utc": _utc_or_null, "dawn_utc": _utc_or_null,
+    "note": {"type": "string"}, "windows": {"type": "array", "items": WINDOW}, "status": STATUS,
+    "reason": {"type": "string", "minLength": 1}, "epoch": {"anyOf": [EPOCH, {"type": "null"}]},
+    "setups": {"type": "array", "items": SETUP_OUTCOME}, "choice": {"anyOf": [CHOICE, {"type": "null"}]},
+}, {"dark_hours": _num})
+
+POINT = {"anyOf": [{"type": "null"}, _obj({"site": {"type": "string"}, "night": _date, "phase_d": _num,
+                                            "setup": {"type": "string"}})]}
+
+CAMPAIGN = _obj({
+    "useful_nights": {"type": "integer", "minimum": 0},
+    "sites": {"type": "array", "items": _obj({
+        "site": {"type": "string"}, "useful_phases_d": {"type": "array", "items": _num},
+        "useful_nights": {"type": "array", "items": _date}, "last_useful_night": {"anyOf": [_date, {"type": "null"}]},
+        "last_useful_phase_d": _num_or_null})},
+    "setups": {"type": "array", "items": _obj({
+        "setup": {"type": "string"}, "epochs_evaluated": {"type": "integer"},
+        "last_reaches_target_phase_d": _num_or_null, "too_faint_from_phase_d": _num_or_null,
+        "too_faint_from_night": {"anyOf": [_date, {"type": "null"}]}})},
+    "first_useful": POINT, "last_useful": POINT,
+}, {"why_nothing": {"type": "string"}})
+
+PLAN_SCHEMA = {
+    "$schema": "https://json-schema.org/draft/2020-12/schema",
+    "title": "kncast plan.json",
+    **_obj({
+        "kncast": {"type": "string"}, "kind": {"const": "plan"}, "schema": {"type": "integer", "minimum": 1},
+        "event": _obj({"id": {"type": "string"}, "ra_deg": _num, "dec_deg": _num, "t0_utc": _utc,
+                       "distance_mpc": _num_or_null, "redshift": _num_or_null}, extra=True),
+        "settings": _obj({
+            "nights": {"type": "integer", "minimum": 1}, "twilight": {"enum": ["civil", "nautical", "astronomical"]},
+            "snr_target": {"type": "number", "exclusiveMinimum": 0}, "snr_per": {"const": "resolution element"},
+            "max_hours": {"type": "number", "exclusiveMinimum": 0}, "overhead_s": {"type": "number", "minimum": 0},
+            "strong_tau": _num, "sites": _strings, "setups": _strings, "score": {"type": "string"}}),
+        "model": _obj({"name": {"type": "string"}, "parameters": {"type": "object"}}, extra=True),
+        "sites": {"type": "array", "items": _obj({
+            "id": {"type": "string"}, "name": {"type": "string"}, "latitude_deg": _num, "longitude_deg": _num,
+            "elevation_m": _num, "setups": _strings})},
+        "nights": {"type": "array", "items": NIGHT},
+        "campaign": CAMPAIGN,
+        "files": _obj({"plan": {"const": "plan.json"}, "windows": {"const": "windows.ecsv"},
+                       "features": {"const": "features.ecsv"}, "exposures": {"const": "exposures.ecsv"},
+                       "figures": _strings, "report_md": {"const": "report.md"},
+                       "report_html": {"const": "report.html"}}),
+        "assumptions": _strings,
+        "references": {"type": "array", "items": _obj({"model": {"type": "string"}, "module": {"type": "string"},
+                                                       "reference": {"type": "string"}})},
+        "cautions": {**_strings, "minItems": 3},
+    }),
+}

@@ -1,0 +1,351 @@
+"""The campaign report: ``report.md`` and a self-contained ``report.html``.
+
+Both files are rendered from the same list of blocks built from the
+``plan.json`` document (see ``docs/plan.md``), so they always say the same
+thing.  The HTML embeds every figure as a base64 ``data:image/png`` URI and
+carries its own small style sheet: it opens anywhere, offline, as one file.
+"""
+from __future__ import annotations
+
+import base64
+import html
+import importlib
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+
+CAUTIONS = (
+    "Sun avoidance: every telescope has its own Sun-avoidance and pointing limits; kncast only "
+    "reports windows in the dark part of the night and does not know them. Never point near the "
+    "Sun on the strength of a kncast window.",
+    "Forecasts are model estimates: temperatures, magnitudes, line strengths, S/N and exposure times "
+    "come from simplified physical models with uncertain inputs (distance, ejecta mass, opacity).",
+    "The observatory's own exposure-time tools and operating rules take precedence over these numbers.",
+)
+CAUTION_LINE = ("Cautions: forecasts are model estimates; check Sun-avoidance limits; the observatory's "
+                "own exposure-time tools and rules take precedence.")
+
+# Modules whose models feed a plan; their docstrings (or a REFERENCES tuple) name the sources.
+MODEL_MODULES = (
+    ("Sky geometry (Sun, Moon, target)", "planner.sky"),
+    ("Airmass", "forecast.airmass"),
+    ("Nights and twilight", "planner.nights"),
+    ("Observing windows", "planner.windows"),
+    ("Observing windows", "planner.visibility"),
+    ("Blackbody", "forecast.blackbody"),
+    ("Photosphere", "forecast.photosphere"),
+    ("Photosphere (radioactive heating)", "forecast.heating"),
+    ("Transient (distance, redshift, dust)", "forecast.source"),
+    ("Dust extinction", "forecast.extinction"),
+    ("Synthetic magnitudes", "forecast.magnitudes"),
+    ("Air/vacuum wavelengths", "forecast.airvac"),
+    ("Line list", "forecast.lines"),
+    ("Line features and LTE strengths", "forecast.features"),
+    ("LTE ionization and excitation", "forecast.lte"),
+    ("Telluric bands", "forecast.tellurics"),
+    ("Instruments", "forecast.instruments"),
+    ("Atmospheric extinction", "forecast.atmosphere"),
+    ("Sky background and moonlight", "forecast.skybrightness"),
+    ("Sky background and moonlight", "forecast.sky"),
+    ("Slit losses and seeing", "forecast.slit"),
+    ("Signal-to-noise and exposure time", "forecast.exposure"),
+    ("Signal-to-noise and exposure time", "forecast.snr"),
+)
+
+# An author-year citation: "Kasten & Young 1989", "Korobkin et al. (2012)", "Benn & Ellison 1998, ...".
+_CITATION = re.compile(
+    r"\b((?:[A-Z][A-Za-z'\-]+)(?:,? (?:&|and) [A-Z][A-Za-z'\-]+| et al\.)?,? \(?(?:19|20)\d{2}[a-z]?\)?"
+    r"(?:,? (?:[A-Z][A-Za-z&.]+ ?)+\d+(?:, ?\d+)?)?)"
+)
+_NOT_AUTHORS = {"January", "February", "March", "April", "May", "June", "July", "August", "September",
+                "October", "November", "December", "The", "In", "See", "Since", "From", "Until", "Before",
+                "After", "Version", "Table", "Figure", "Eq", "Equation", "Schema", "Python", "IAU",
+                "DE", "WGS", "CODATA", "UTC", "TT", "MJD", "JD", "AB", "Vega", "IERS"}
+
+
+@dataclass
+class Block:
+    """One piece of the report: a heading, paragraph, list, table or figure."""
+
+    kind: str  # "h1" | "h2" | "h3" | "p" | "ul" | "table" | "img" | "note"
+    text: str = ""
+    items: list = field(default_factory=list)
+    header: list = field(default_factory=list)
+    path: str = ""
+
+
+# ----------------------------------------------------------------------------------- references
+def collect_references(modules=MODEL_MODULES) -> list[dict]:
+    """Citations found in the documentation of every model module kncast used.
+
+    A module may define ``REFERENCES`` (a sequence of strings); otherwise the
+    author-year citations in its docstring are taken.  Modules that are not
+    installed are skipped.  Returns ``[{"model", "module", "reference"}]``.
+    """
+    out, seen = [], set()
+    for model, name in modules:
+        try:
+            mod = importlib.import_module(name)
+        except ImportError:
+            continue
+        refs = getattr(mod, "REFERENCES", None)
+        found = [str(r) for r in refs] if refs else citations_in(mod.__doc__ or "")
+        for ref in _longest(found):
+            key = (model, _norm(ref))
+            if key not in seen:
+                seen.add(key)
+                out.append({"model": model, "module": name, "reference": ref})
+    return out
+
+
+def _longest(refs: list[str]) -> list[str]:
+    """Drop a citation that is the start of a fuller one ("Morton 2000" beside "Morton 2000, ApJS 130, 403")."""
+    keys = [_norm(r) for r in refs]
+    return [r for r, k in zip(refs, keys) if not any(o != k and o.startswith(k) for o in keys)]
+
+
+def citations_in(text: str) -> list[str]:
+    """Author-year citations in ``text`` (order kept, duplicates removed)."""
+    text = " ".join(text.split())
+    out, seen = [], set()
+    for m in _CITATION.finditer(text):
+        ref = m.group(1).strip(" ,;()").replace("(", "").replace(")", "")
+        if ref.split()[0].rstrip(",") in _NOT_AUTHORS:
+            continue
+        if _norm(ref) not in seen:
+            seen.add(_norm(ref))
+            out.append(ref)
+    return out
+
+
+def _norm(ref: str) -> str:
+    return re.sub(r"[^a-z0-9]", "", ref.lower())
+
+
+# ----------------------------------------------------------------------------------- content
+def _fmt(value, spec: str = ".1f", none: str = "-") -> str:
+    if value is None:
+        return none
+    try:
+        return format(value, spec)
+    except (TypeError, ValueError):
+        return str(value)
+
+
+def _hm(iso: str | None) -> str:
+    """'2027-03-14T23:10:00Z' -> '03-14 23:10'."""
+    return f"{iso[5:10]} {iso[11:16]}" if iso else "-"
+
+
+def _exposure_words(choice: dict) -> str:
+    n, t = choice.get("nexp"), choice.get("exposure_s")
+    if n and t:
+        return f"{n} x {t:.0f} s"
+    return _fmt(choice.get("time_for_target_s"), ".0f") + " s"
+
+
+def build_blocks(doc: dict, figures: list[dict]) -> list[Block]:
+    """The report as blocks, from a plan document and its figures ``[{"title", "path", "caption"}]``."""
+    ev, st, camp = doc["event"], doc["settings"], doc["campaign"]
+    blocks = [Block("h1", f"Spectroscopy campaign plan for {ev['id']}")]
+    blocks.append(Block("note", CAUTION_LINE))
+    blocks += _summary(doc)
+    blocks += _night_table(doc)
+    blocks += _campaign(doc)
+    if figures:
+        blocks.append(Block("h2", "Figures"))
+        for fig in figures:
+            blocks.append(Block("img", fig["title"], path=fig["path"], items=[fig.get("caption", "")]))
+    blocks += _justification(doc)
+    blocks.append(Block("h2", "Cautions"))
+    blocks.append(Block("ul", items=list(doc.get("cautions") or CAUTIONS)))
+    blocks.append(Block("p", f"Generated by kncast {doc['kncast']} (plan schema {doc['schema']}); all numbers "
+                             f"behind this report are in plan.json and the ECSV tables beside it."))
+    del st, camp
+    return blocks
+
+
+def _summary(doc: dict) -> list[Block]:
+    ev, st, camp = doc["event"], doc["settings"], doc["campaign"]
+    dist = (f"{ev['distance_mpc']:g} Mpc" if ev.get("distance_mpc") else f"z = {ev.get('redshift')}")
+    if ev.get("distance_err_mpc"):
+        dist += f" +/- {ev['distance_err_mpc']:g} Mpc"
+    lines = [
+        f"Event {ev['id']} at RA {ev['ra_deg']:.4f} deg, Dec {ev['dec_deg']:+.4f} deg, t0 {ev['t0_utc']}, "
+        f"distance {dist}, Milky Way E(B-V) {ev.get('ebv_mw', 0):.3f} mag.",
+        f"Searched {len(doc['sites'])} site(s) over {st['nights']} night(s) after t0 ({st['twilight']} twilight), "
+        f"aiming for S/N {st['snr_target']:g} per resolution element with at most {st['max_hours']:g} h per night "
+        f"and {st['overhead_s'] / 60:.0f} min of acquisition and readout overhead.",
+    ]
+    last = camp.get("last_useful")
+    n_useful = camp.get("useful_nights", 0)
+    if n_useful:
+        first = camp.get("first_useful")
+        lines.append(f"{n_useful} site-night(s) can deliver a useful spectrum, from day {first['phase_d']:.2f} "
+                     f"({first['site']}, night of {first['night']}) to day {last['phase_d']:.2f} "
+                     f"({last['site']}, night of {last['night']}), the last useful night.")
+    else:
+        lines.append("Nothing useful can be done with these sites and settings: " + camp.get("why_nothing", "") )
+    out = [Block("h2", "Summary")] + [Block("p", s) for s in lines]
+    return out
+
+
+def _night_table(doc: dict) -> list[Block]:
+    rows = []
+    for n in doc["nights"]:
+        ep, ch = n.get("epoch"), n.get("choice")
+        rows.append([
+            n["site"], n["night"],
+            _fmt(ep and ep["phase_d"], ".2f"),
+            f"{_hm(ep['window_start_utc'])} - {_hm(ep['window_end_utc'])[6:]}" if ep else "-",
+            _fmt(ep and ep["airmass"], ".2f"),
+            ch["setup"] if ch else "-",
+            _exposure_words(ch) if ch else "-",
+            _fmt(ch and ch["snr"], ".1f"),
+            n["reason"],
+        ])
+    return [Block("h2", "Night by night"),
+            Block("p", "The chosen setup per site and night, with the epoch (days since t0 at the middle of the "
+                       "observing block), the window used (UTC), its best airmass, the exposure for the target S/N at "
+                       "the strongest clear feature and the S/N reachable in the whole usable window."),
+            Block("table", header=["Site", "Night", "Day", "Window (UTC)", "Airmass", "Setup", "Exposure",
+                                   "S/N in window", "Reason"], items=rows)]
+
+
+def _campaign(doc: dict) -> list[Block]:
+    camp = doc["campaign"]
+    out = [Block("h2", "Across the campaign")]
+    rows = [[s["site"], ", ".join(f"{d:.2f}" for d in s["useful_phases_d"]) or "none",
+             s["last_useful_night"] or "-"] for s in camp["sites"]]
+    out.append(Block("table", header=["Site", "Useful epochs (days since t0)", "Last useful night"], items=rows))
+    rows = [[s["setup"], _fmt(s["last_reaches_target_phase_d"], ".2f"),
+             _fmt(s["too_faint_from_phase_d"], ".2f", "not within the campaign")] for s in camp["setups"]]
+    if rows:
+        out.append(Block("p", "When each setup stops reaching the target S/N even with the full usable window "
+                              "(the source is too faint for it from that epoch on):"))
+        out.append(Block("table", header=["Setup", "Last epoch reaching target (d)", "Too faint from (d)"],
+                         items=rows))
+    return out
+
+
+def _justification(doc: dict) -> list[Block]:
+    ev, st = doc["event"], doc["settings"]
+    out = [Block("h2", "Technical justification"),
+           Block("p", "Ready to adapt for a target-of-opportunity proposal; every value is a model estimate.")]
+    out.append(Block("h3", "Targets"))
+    targets = ev.get("candidates") or [{"id": ev["id"], "ra_deg": ev["ra_deg"], "dec_deg": ev["dec_deg"]}]
+    out.append(Block("table", header=["Target", "RA (deg)", "Dec (deg)"],
+                     items=[[t["id"], f"{t['ra_deg']:.5f}", f"{t['dec_deg']:+.5f}"] for t in targets]))
+    out.append(Block("h3", "Epochs, setups, exposure times and S/N"))
+    rows = []
+    for n in doc["nights"]:
+        ch, ep = n.get("choice"), n.get("epoch")
+        if not ch:
+            continue
+        ph = ep["photosphere"]
+        rows.append([n["site"], n["night"], f"{ep['phase_d']:.2f}", ch["setup"], _fmt(ph.get("temperature_K"), ".0f"),
+                     ch["feature"] or "-", _fmt(ch["trough_obs_A"], ".0f"), _exposure_words(ch),
+                     f"{st['snr_target']:g}", _fmt(ch["snr"], ".1f"), _fmt(ep["airmass"], ".2f")])
+    if rows:
+        out.append(Block("table", header=["Site", "Night", "Day", "Setup", "T (K)", "Feature", "Trough (A)",
+                                          "Exposure", "Target S/N", "S/N in window", "Airmass"], items=rows))
+    else:
+        out.append(Block("p", "No night reaches the target S/N at a clear strong feature."))
+    out.append(Block("h3", "Assumptions"))
+    out.append(Block("ul", items=list(doc.get("assumptions", []))))
+    out.append(Block("h3", "References"))
+    refs = doc.get("references", [])
+    out.append(Block("ul", items=[f"{r['model']}: {r['reference']}" for r in refs] or ["(none found)"]))
+    return out
+
+
+# ----------------------------------------------------------------------------------- rendering
+def _md_cell(text) -> str:
+    return str(text).replace("|", "\\|").replace("\n", " ")
+
+
+def render_markdown(blocks: list[Block]) -> str:
+    """Markdown text; figures are linked by their relative paths."""
+    parts = []
+    for b in blocks:
+        if b.kind in ("h1", "h2", "h3"):
+            parts.append("#" * int(b.kind[1]) + " " + b.text)
+        elif b.kind == "p":
+            parts.append(b.text)
+        elif b.kind == "note":
+            parts.append("> " + b.text)
+        elif b.kind == "ul":
+            parts.append("\n".join(f"* {item}" for item in b.items))
+        elif b.kind == "table":
+            lines = ["| " + " | ".join(map(_md_cell, b.header)) + " |", "|" + "---|" * len(b.header)]
+            lines += ["| " + " | ".join(map(_md_cell, row)) + " |" for row in b.items]
+            parts.append("\n".join(lines))
+        elif b.kind == "img":
+            caption = b.items[0] if b.items else ""
+            parts.append(f"![{b.text}]({b.path})" + (f"\n\n*{caption}*" if caption else ""))
+    return "\n\n".join(parts) + "\n"
+
+
+_CSS = """
+:root { --ink: #1d2433; --muted: #5b6478; --rule: #d8dce6; --band: #f3f5f9; --accent: #2f5d8a; }
+* { box-sizing: border-box; }
+body { font: 15px/1.5 system-ui, -apple-system, "Segoe UI", sans-serif; color: var(--ink);
+       max-width: 1100px; margin: 2rem auto; padding: 0 1.2rem; }
+h1 { font-size: 1.6rem; margin-bottom: .4rem; }
+h2 { font-size: 1.25rem; margin-top: 2.2rem; padding-bottom: .2rem; border-bottom: 2px solid var(--accent); }
+h3 { font-size: 1.05rem; margin-top: 1.4rem; color: var(--accent); }
+p.note { background: #fff6e0; border-left: 4px solid #d9a400; padding: .5rem .8rem; }
+table { border-collapse: collapse; width: 100%; margin: .6rem 0 1rem; font-size: .86rem; }
+th, td { border-bottom: 1px solid var(--rule); padding: .3rem .45rem; text-align: left; vertical-align: top; }
+th { background: var(--band); font-weight: 600; }
+tr:nth-child(even) td { background: #fafbfd; }
+figure { margin: 1.2rem 0; }
+figure img { max-width: 100%; height: auto; border: 1px solid var(--rule); }
+figcaption { color: var(--muted); font-size: .85rem; }
+footer, .muted { color: var(--muted); font-size: .85rem; }
+"""
+
+
+def render_html(blocks: list[Block], folder: Path, title: str) -> str:
+    """Self-contained HTML: figures read from ``folder`` and embedded as data URIs."""
+    esc = html.escape
+    parts = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
+             '<meta name="viewport" content="width=device-width, initial-scale=1">',
+             f"<title>{esc(title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>"]
+    for b in blocks:
+        if b.kind in ("h1", "h2", "h3"):
+            parts.append(f"<{b.kind}>{esc(b.text)}</{b.kind}>")
+        elif b.kind == "p":
+            parts.append(f"<p>{esc(b.text)}</p>")
+        elif b.kind == "note":
+            parts.append(f'<p class="note">{esc(b.text)}</p>')
+        elif b.kind == "ul":
+            parts.append("<ul>" + "".join(f"<li>{esc(str(i))}</li>" for i in b.items) + "</ul>")
+        elif b.kind == "table":
+            head = "".join(f"<th>{esc(str(h))}</th>" for h in b.header)
+            body = "".join("<tr>" + "".join(f"<td>{esc(str(c))}</td>" for c in row) + "</tr>" for row in b.items)
+            parts.append(f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
+        elif b.kind == "img":
+            data = base64.b64encode((folder / b.path).read_bytes()).decode("ascii")
+            caption = esc(b.items[0]) if b.items and b.items[0] else esc(b.text)
+            parts.append(f'<figure><img alt="{esc(b.text)}" src="data:image/png;base64,{data}">'
+                         f"<figcaption><strong>{esc(b.text)}.</strong> {caption}</figcaption></figure>")
+    parts += ["</body>", "</html>"]
+    return "\n".join(parts) + "\n"
+
+
+def write_report(folder, doc: dict, figures: list[dict]) -> tuple[Path, Path]:
+    """Write ``report.md`` and ``report.html`` into ``folder``; returns their paths.
+
+    ``figures`` lists PNG files relative to ``folder``: ``[{"title", "path", "caption"}]``.
+    """
+    from planner.output import atomic_path
+
+    folder = Path(folder)
+    blocks = build_blocks(doc, figures)
+    md, page = folder / "report.md", folder / "report.html"
+    with atomic_path(md) as tmp:
+        tmp.write_text(render_markdown(blocks), encoding="utf-8")
+    with atomic_path(page) as tmp:
+        tmp.write_text(render_html(blocks, folder, f"kncast plan: {doc['event']['id']}"), encoding="utf-8")
+    return md, page
