@@ -31,6 +31,33 @@ def planck_flam(wavelength_A, temperature_K):
     return _TWO_HC2_A / lam**5 * (np.exp(-x) / -np.expm1(-x))
 
 
+def planck_sum_flam(wavelength_A, temperature_K, weight):
+    """sum_k weight[k, i] * B_lambda(T[k, i]) on a wavelength vector: shape (n_epoch, n_wave).
+
+    ``temperature_K`` and ``weight`` are (n_comp, n_epoch); the result is in
+    erg s^-1 cm^-2 A^-1 sr^-1 times the unit of ``weight``.  Same function
+    as :func:`planck_flam`, computed in place with one exponential per
+    point (1 - exp(-x) loses accuracy only for x < 1e-2, where expm1 is used).
+    """
+    lam = np.asarray(wavelength_A, dtype=float).ravel()
+    temp = np.atleast_2d(np.asarray(temperature_K, dtype=float))
+    w = np.atleast_2d(np.asarray(weight, dtype=float))
+    inv_lam = 1.0 / lam
+    out = np.zeros((temp.shape[1], lam.size))
+    for k in range(temp.shape[0]):  # components: a handful, each a whole (epoch, wave) grid
+        x = np.multiply.outer(-_HC_OVER_K_A / temp[k], inv_lam)  # -x
+        e = np.exp(x)
+        denom = 1.0 - e
+        small = x > -1e-2
+        if small.any():
+            denom[small] = -np.expm1(x[small])
+        np.divide(e, denom, out=e)
+        e *= w[k][:, None]
+        out += e
+    out *= _TWO_HC2_A * inv_lam**5
+    return out
+
+
 def blackbody_luminosity_density(wavelength_A, temperature_K, radius_cm):
     """L_lambda of a sphere radiating as a blackbody: 4 pi R^2 * pi B_lambda, erg s^-1 A^-1."""
     r = np.asarray(radius_cm, dtype=float)
@@ -47,5 +74,5 @@ def wien_peak_A(temperature_K):
     return const.b_wien.to_value("Angstrom K") / np.asarray(temperature_K, float)
 
 
-__all__ = ["planck_flam", "blackbody_luminosity_density", "stefan_boltzmann_luminosity", "wien_peak_A",
+__all__ = ["planck_flam", "planck_sum_flam", "blackbody_luminosity_density", "stefan_boltzmann_luminosity", "wien_peak_A",
            "SIGMA_SB_CGS", "C_CGS", "C_A_PER_S"]

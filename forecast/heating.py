@@ -94,34 +94,43 @@ def input_luminosity_erg_s(time_d, mass_msun: float, velocity_c: float):
 
 
 def arnett_luminosity(time_d, mass_msun: float, velocity_c: float, opacity_cm2_g: float,
-                      points_per_decade: int = 200, t_start_d: float = 1e-3):
-    """Bolometric luminosity (erg s^-1) of one ejecta component at rest-frame ages ``time_d`` > 0.
+                      points_per_decade: int = 400, t_start_d: float = 1e-3):
+    """Bolometric luminosity (erg s^-1) of one ejecta component at rest-frame ages ``time_d`` > 0."""
+    td_d = diffusion_time_s(mass_msun, velocity_c, opacity_cm2_g) / DAY_S
+    return diffuse(time_d, td_d, lambda t: input_luminosity_erg_s(t, mass_msun, velocity_c),
+                   head_index=KOROBKIN_ALPHA, points_per_decade=points_per_decade, t_start_d=t_start_d)
 
-    Diffusion integral as described in the module docstring, on a log grid
+
+def diffuse(time_d, diffusion_time_d: float, input_erg_s, head_index: float = KOROBKIN_ALPHA,
+            points_per_decade: int = 400, t_start_d: float = 1e-3):
+    """Arnett's diffusion of a deposited power ``input_erg_s(t_d)`` (vectorized callable), erg s^-1.
+
+    L(t) = exp(-u) int_0^u L_in exp(u') du', u = (t / t_d)^2, on a log grid
     from ``t_start_d`` with ``points_per_decade`` points, merged with the
-    requested ages (so no interpolation happens at the output times).
+    requested ages (no interpolation at the output times).  Before the
+    first grid time the input is taken as the power law t^-head_index
+    (head_index < 2), integrated analytically.
     """
     t_out = np.asarray(time_d, dtype=float)
     flat = t_out.ravel()
-    td_d = diffusion_time_s(mass_msun, velocity_c, opacity_cm2_g) / DAY_S
     t_lo = min(t_start_d, flat.min() if flat.size else t_start_d)
     t_hi = max(flat.max() if flat.size else 1.0, t_lo * 10)
     n = max(int(np.ceil(np.log10(t_hi / t_lo) * points_per_decade)) + 1, 2)
     grid, index = np.unique(np.concatenate([np.geomspace(t_lo, t_hi, n), flat]), return_inverse=True)
     index = index[n:]
 
-    u = (grid / td_d) ** 2
-    lin = input_luminosity_erg_s(grid, mass_msun, velocity_c)
-    # interval contributions c_k = int_{u_{k-1}}^{u_k} L_in(u') exp(u' - u_k) du', L_in linear in u
+    u = (grid / diffusion_time_d) ** 2
+    lin = np.broadcast_to(np.asarray(input_erg_s(grid), dtype=float), grid.shape)
+    # interval contributions c_k = int_{u_{k-1}}^{u_k} L_in(u') exp(u' - u_k) du', L_in linear in u,
+    # exact for the exponential; a Taylor series where the interval is short (no cancellation)
     du = np.diff(u)
     la, lb = lin[:-1], lin[1:]
     slope = (lb - la) / du
     exact = lb - la * np.exp(-du) + slope * np.expm1(-du)
     series = du * (la + lb) / 2 - du**2 * (la / 3 + lb / 6) + du**3 * (la / 8 + lb / 24)
     contrib = np.where(du < 1e-2, series, exact)
-    # before grid[0]: L_in ~ t^-alpha ~ u^(-alpha/2); int_0^u0 L_in du' = L_in(u0) u0 / (1 - alpha/2)
-    # (exp(u') ~ 1 there because u0 << 1 for t_start_d << t_d)
-    head = lin[0] * u[0] / (1.0 - KOROBKIN_ALPHA / 2.0)
+    # before grid[0]: L_in ~ t^-n ~ u^(-n/2), int_0^u0 L_in du' = L_in(u0) u0 / (1 - n/2), exp(u') ~ 1 (u0 << 1)
+    head = lin[0] * u[0] / (1.0 - head_index / 2.0)
     terms = np.concatenate([[head], contrib])
     with np.errstate(divide="ignore"):
         log_terms = np.log(np.maximum(terms, 0.0)) + u
@@ -130,4 +139,4 @@ def arnett_luminosity(time_d, mass_msun: float, velocity_c: float, opacity_cm2_g
 
 
 __all__ = ["heating_rate_erg_g_s", "barnes_coefficients", "thermalization_efficiency", "diffusion_time_s",
-           "input_luminosity_erg_s", "arnett_luminosity"]
+           "input_luminosity_erg_s", "arnett_luminosity", "diffuse"]

@@ -19,7 +19,7 @@ from dataclasses import dataclass
 import numpy as np
 from astropy.cosmology import Planck18
 
-from forecast.blackbody import planck_flam
+from forecast.blackbody import SIGMA_SB_CGS, planck_sum_flam
 from forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
 from forecast.errors import ForecastInputError, check_range
 from forecast.extinction import transmission
@@ -104,8 +104,6 @@ class Transient:
         total = lum.sum(axis=0)
         weights = lum / np.where(total > 0, total, 1.0)
         t_eff = (weights * temp).sum(axis=0)
-        from forecast.blackbody import SIGMA_SB_CGS
-
         r_eff = np.sqrt(total / (4.0 * np.pi * SIGMA_SB_CGS * t_eff**4))
         return PhotosphereState(
             phase_d=phase, age_d=age, temperature_K=t_eff, radius_cm=r_eff, luminosity_erg_s=total,
@@ -126,13 +124,12 @@ class Transient:
         lam_rest = lam_obs / z1
         # L_lambda = 4 pi R^2 * pi B_lambda  ->  per unit area at the observer / (4 pi D_L^2 (1+z))
         scale = np.pi * st.comp_radius_cm**2 / (self.luminosity_distance_cm**2 * z1)  # (n_comp, n_epoch)
-        out = np.zeros((st.phase_d.size, lam_rest.size))
-        for k in range(scale.shape[0]):  # a handful of components; each step is a whole (epoch, wave) grid
-            out += scale[k][:, None] * planck_flam(lam_rest[None, :], st.comp_temperature_K[k][:, None])
+        out = planck_sum_flam(lam_rest, st.comp_temperature_K, scale)
         dust = transmission(lam_obs, self.ebv_mw)
         if self.ebv_host:
             dust = dust * transmission(lam_rest, self.ebv_host)
-        return out * dust[None, :]
+        out *= dust[None, :]
+        return out
 
     def mag_ab(self, phase_d, bands) -> dict[str, np.ndarray]:
         """Synthetic AB magnitudes per band (speclite names) at each phase: {band: array (n_epoch,)}."""
