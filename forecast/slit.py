@@ -98,7 +98,7 @@ def _moffat_table(beta):
     def frac(half_w, half_l):
         hw, hl = np.broadcast_arrays(np.asarray(half_w, float), np.asarray(half_l, float))
         pts = np.stack([np.log(np.clip(hw, u[0], u[-1])), np.log(np.clip(hl, u[0], u[-1]))], axis=-1)
-        return interp(pts)
+        return interp(pts.reshape(-1, 2)).reshape(hw.shape)
 
     return frac
 
