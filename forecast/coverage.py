@@ -23,6 +23,7 @@ from functools import lru_cache
 
 import numpy as np
 
+from forecast.errors import ForecastInputError
 from forecast.tellurics import REFERENCE_PWV_MM, _window
 
 __all__ = ["window_fractions", "verdict", "VERDICTS", "CLEAR_MIN_USABLE", "PARTLY_MIN_USABLE"]
@@ -79,17 +80,33 @@ def window_fractions(lo_A, hi_A, setup, tellurics=None, airmass=1.0, pwv_mm=REFE
         return {"coverage": np.array(c), "gap_loss": np.array(g), "telluric_loss": np.array(t)}
     n = len(setup)
     shape = lo.shape + (n,)
-    x = np.broadcast_to(np.asarray(airmass, dtype=float), np.broadcast_shapes(np.shape(airmass), shape))
-    w = np.broadcast_to(np.asarray(pwv_mm, dtype=float), np.broadcast_shapes(np.shape(pwv_mm), shape))
+    x, w = (_per_setup_view(v, shape, name) for v, name in ((airmass, "airmass"), (pwv_mm, "pwv_mm")))
     out = {"coverage": np.empty(shape), "gap_loss": np.empty(shape), "telluric_loss": np.empty(shape)}
     for k, s in enumerate(setup):  # a loop over setups only; each step is vectorized over all windows
-        c, g, t = _one_setup(lo, hi, s, tellurics, _scalar_or(x[..., k]), _scalar_or(w[..., k]))
+        xk = x if x.ndim == 0 else x[..., k if x.shape[-1] > 1 else 0]
+        wk = w if w.ndim == 0 else w[..., k if w.shape[-1] > 1 else 0]
+        c, g, t = _one_setup(lo, hi, s, tellurics, _scalar_or(xk), _scalar_or(wk))
         out["coverage"][..., k], out["gap_loss"][..., k], out["telluric_loss"][..., k] = c, g, t
     return out
 
 
+def _per_setup_view(value, shape, name):
+    """``value`` with as many axes as ``shape`` (windows + setup axis), singleton axes kept small."""
+    a = np.asarray(value, dtype=float)
+    if a.ndim == 0:
+        return a
+    try:
+        np.broadcast_shapes(a.shape, shape)
+    except ValueError:
+        raise ForecastInputError(f"{name} of shape {a.shape} does not broadcast to windows x setups "
+                                 f"{shape}") from None
+    return a.reshape((1,) * (len(shape) - a.ndim) + a.shape)
+
+
 def _scalar_or(a):
     """A constant array collapses to a scalar so the telluric kernel takes its fast path."""
+    if np.ndim(a) == 0:
+        return a
     flat = a.ravel()
     return float(flat[0]) if flat.size and np.all(flat == flat[0]) else a
 
