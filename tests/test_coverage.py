@@ -126,3 +126,30 @@ def test_features_sized_grid_is_fast():
     verdict(**f)
     assert f["coverage"].shape == (50, 40, 20)
     assert time.perf_counter() - t < 1.0  # generous on a shared 2-core machine; goal 0.2 s in total
+
+
+def test_fractions_agree_with_dense_sampling():
+    """Interval arithmetic against brute force: sample each window densely and count."""
+    tell = TelluricModel.load()
+    rng = np.random.default_rng(7)
+    lo = rng.uniform(3000, 10000, 30)
+    hi = lo + rng.uniform(20, 1500, 30)
+    f = window_fractions(lo, hi, SETUP, tell, airmass=1.5, pwv_mm=4.0)
+    w = np.linspace(lo, hi, 20001, axis=-1)
+    on = np.zeros(w.shape, bool)
+    for arm in SETUP.arms:
+        on |= arm.covers(w)
+    in_span = (w >= SETUP.min_A) & (w <= SETUP.max_A)
+    lost = np.where(on, 1 - tell.transmission(w, 1.5, 4.0), 0.0)
+    assert np.allclose(f["coverage"], on.mean(-1), atol=1e-3)
+    assert np.allclose(f["gap_loss"], (in_span & ~on).mean(-1), atol=1e-3)
+    assert np.allclose(f["telluric_loss"], lost.mean(-1), atol=1e-3)
+    assert np.all(f["coverage"] + f["gap_loss"] <= 1 + 1e-12)
+    assert np.all(f["telluric_loss"] <= f["coverage"] + 1e-12)
+
+
+def test_airmass_shape_must_fit_windows_and_setups():
+    from forecast.errors import ForecastInputError
+
+    with pytest.raises(ForecastInputError, match="airmass"):
+        window_fractions(np.zeros(4) + 5000, np.zeros(4) + 5100, [SETUP] * 3, None, airmass=np.ones(2))
