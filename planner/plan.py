@@ -44,6 +44,7 @@ STRONG_TAU = 1.0  # Sobolev optical depth above which a feature counts as strong
 DEFAULT_SNR = 10.0
 DEFAULT_MAX_HOURS = 4.0
 DEFAULT_OVERHEAD_S = 900.0
+MAX_EXPOSURE_S = 1800.0  # longest single exposure (cosmic rays, sky variation; common practice)
 
 STATUS_WORDS = {
     "observe": "observe",
@@ -118,6 +119,8 @@ class Plan:
     features: list = field(default_factory=list)   # rows for features.ecsv
     campaign: dict = field(default_factory=dict)
     model: dict = field(default_factory=dict)
+    tellurics: object = None                       # forecast.tellurics.TelluricModel used
+    atmospheres: dict = field(default_factory=dict)  # site id -> forecast.extinction_atm.Atmosphere
 
     def useful(self) -> list[NightPlan]:
         return [n for n in self.nights if n.choice is not None]
@@ -232,8 +235,136 @@ def _model_summary(transient) -> dict:
 
 # ---------------------------------------------------------------------------- per setup
 def evaluate_setups(plan: Plan, epochs: list, by_site: dict, snr_target: float, say) -> None:
-    """Fill ``NightPlan.outcomes`` for every epoch and every setup at its site (batched per setup)."""
-    raise NotImplementedError  # wired to forecast.features and forecast.exposure below
+    """Fill ``NightPlan.outcomes`` for every epoch and every setup at its site.
+
+    Features: one :func:`forecast.features.forecast_features` call for all
+    epochs x all setups (airmass and water vapour per epoch).  Exposures: per
+    epoch, one :func:`forecast.exposure.rates` call for all setups of the site
+    at once, sampled at the troughs of that epoch's strong features.
+    """
+    refs = [r for site_refs in by_site.values() for r in site_refs]
+    if not epochs or not refs:
+        return
+    fc = feature_forecast(plan, epochs, refs)
+    say("exposure times")
+    column = {r.id: k for k, r in enumerate(refs)}
+    for i, p in enumerate(epochs):  # one batched exposure evaluation per epoch (all setups of its site)
+        site_refs = by_site.get(p.site.id, [])
+        if site_refs:
+            cols = [column[r.id] for r in site_refs]
+            p.outcomes = _outcomes_for_epoch(plan, p, i, fc, site_refs, cols, snr_target)
+
+
+def site_conditions(site):
+    """(Atmosphere, TelluricModel) of a site: its ``[atmosphere]`` table or the defaults."""
+    from forecast.extinction_atm import atmosphere_for_site
+
+    return atmosphere_for_site(site)
+
+
+def feature_forecast(plan: Plan, epochs: list, refs: list):
+    """The feature forecast at every epoch for every setup (airmass, PWV of each epoch's night)."""
+    from forecast.features import forecast_features
+    from forecast.tellurics import TelluricModel
+
+    phases = np.array([p.phase_d for p in epochs])
+    airmass = np.array([p.window.best_airmass for p in epochs])[:, None, None]
+    atm = {s.id: site_conditions(s) for s in plan.sites}
+    pwv = np.array([atm[p.site.id].pwv_mm for p in epochs])[:, None, None]
+    plan.tellurics = TelluricModel.load()
+    plan.atmospheres = atm
+    return forecast_features(plan.transient, phases, setups=[r.setup for r in refs], tellurics=plan.tellurics,
+                             airmass=airmass, pwv_mm=pwv, setup_ids=[r.id for r in refs])
+
+
+def _outcomes_for_epoch(plan: Plan, p: NightPlan, i: int, fc, refs: list, cols: list, snr_target: float):
+    """SetupOutcome per setup of the site at epoch ``i`` (features from ``fc``, S/N from forecast.exposure)."""
+    tau = fc.tau[i]
+    strong_idx = [int(f) for f in fc.rank[i] if np.isfinite(tau[f]) and tau[f] >= STRONG_TAU]
+    clear = np.array([[fc.verdict[i, f, k] == "clear" for f in strong_idx] for k in cols], dtype=bool)
+    clear = clear.reshape(len(cols), len(strong_idx))
+    snr = t_need = n_need = None
+    if clear.any() and p.hours_available > 0:
+        snr, t_need, n_need = _exposures(plan, p, refs, fc.windows.trough_A[i, strong_idx], snr_target)
+    outcomes = []
+    for j, (k, ref) in enumerate(zip(cols, refs)):
+        o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m, n_strong=len(strong_idx),
+                         strong=[fc.features[f].id for f in strong_idx],
+                         clear=[fc.features[f].id for f, c in zip(strong_idx, clear[j]) if c])
+        if clear[j].any():
+            # reference feature: the clear strong feature with the highest S/N (all strong ones are optically
+            # thick; without usable time, the first by optical depth)
+            m = int(np.argmax(np.where(clear[j], snr[j], -np.inf))) if snr is not None else int(np.argmax(clear[j]))
+            f = strong_idx[m]
+            o.feature, o.species = fc.features[f].id, fc.features[f].species
+            o.trough_obs_A, o.tau_sobolev = float(fc.windows.trough_A[i, f]), float(tau[f])
+            if snr is not None:
+                o.snr = float(snr[j, m])
+                o.reaches_target = bool(o.snr >= snr_target)
+                if np.isfinite(t_need[j, m]):
+                    o.time_for_target_s, o.nexp = float(t_need[j, m]), int(n_need[j, m])
+                    o.exposure_s = o.time_for_target_s / o.nexp
+        o.verdict = _verdict(o)
+        outcomes.append(o)
+        plan.features.extend(_feature_rows(p, fc, i, k, ref.id, strong_idx))
+    return outcomes
+
+
+def _feature_rows(p: NightPlan, fc, i: int, k: int, setup_id: str, strong_idx: list) -> list[dict]:
+    strong = set(strong_idx)
+    rows = []
+    for f in fc.rank[i]:
+        feat, t = fc.features[f], fc.tau[i, f]
+        rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
+                     "setup": setup_id, "feature": feat.id, "species": feat.species,
+                     "trough_obs_A": float(fc.windows.trough_A[i, f]),
+                     "tau_sobolev": float(t) if np.isfinite(t) else None, "strong": f in strong,
+                     "coverage": float(fc.coverage[i, f, k]), "gap_loss": float(fc.gap_loss[i, f, k]),
+                     "telluric_loss": float(fc.telluric_loss[i, f, k]), "verdict": str(fc.verdict[i, f, k]),
+                     "clear": f in strong and fc.verdict[i, f, k] == "clear"})
+    return rows
+
+
+def exposure_conditions(site, window, atmosphere):
+    """forecast.exposure.Conditions for a window: best airmass, Moon at the best time, site seeing/PWV."""
+    from forecast.exposure import Conditions
+    from forecast.skybright import MoonGeometry
+
+    moon = MoonGeometry(illumination=float(np.clip(window.moon_illumination, 0.0, 1.0)),
+                        sep_deg=float(np.clip(window.moon_sep_deg, 0.0, 180.0)),
+                        altitude_deg=float(np.clip(window.moon_altitude_deg, -90.0, 90.0)))
+    return Conditions(airmass=float(window.best_airmass), seeing_arcsec=atmosphere.seeing_arcsec, moon=moon,
+                      pwv_mm=atmosphere.pwv_mm, atmosphere=atmosphere)
+
+
+def _exposures(plan: Plan, p: NightPlan, refs: list, trough_A, snr_target: float):
+    """S/N per resolution element in the usable time, and (time, n_exp) for the target, at every trough
+    for every setup of the site: arrays (n_setups, n_troughs), all setups in one batched call."""
+    from forecast import exposure
+
+    atm = plan.atmospheres[p.site.id]
+    cond = exposure_conditions(p.site, p.window, atm)
+    lam = np.asarray(trough_A, dtype=float)
+    grid = exposure.stack_grids([exposure.setup_grid(r.telescope, r.instrument, r.setup, wavelength_A=lam)
+                                 for r in refs])
+    flux = plan.transient.flux_flam(np.array([p.phase_d]), lam)                       # (1, n_troughs)
+    telluric = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
+    r = exposure.rates(flux, grid, cond, telluric)
+    available = p.hours_available * 3600.0
+    n_exp = max(1, math.ceil(available / MAX_EXPOSURE_S - 1e-9))
+    snr = exposure.expose(r, available, n_exp).snr_per_resel
+    t_need, n_need = exposure.time_for_snr(r, snr_target, MAX_EXPOSURE_S)
+    return np.asarray(snr), np.asarray(t_need), np.asarray(n_need)
+
+
+def _verdict(o: SetupOutcome) -> str:
+    if o.n_strong == 0:
+        return "no strong features"
+    if not o.clear:
+        return "only hidden features"
+    if o.snr is None:
+        return "no usable time"
+    return "reaches target" if o.reaches_target else "too faint"
 
 
 # ---------------------------------------------------------------------------- choice
