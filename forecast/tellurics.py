@@ -154,7 +154,9 @@ def _read_bands(path: Path):
     seen = set()
     for i, row in enumerate(t):
         where = f"row {i + 1} ({row['id']})"
-        _check(path, f"{where}.id", str(row["id"]).strip() != "" and row["id"] not in seen, row["id"], "unique non-empty ids")
+        _check(path, f"{where}.id", str(row["id"]).strip() != "", row["id"], "a non-empty id")
+        if row["id"] in seen:
+            raise DataFileError(path, f"{where}.id", f"duplicate id {row['id']!r}")
         seen.add(row["id"])
         lo, hi = _num(path, f"{where}.min_A", row["min_A"]), _num(path, f"{where}.max_A", row["max_A"])
         _check(path, f"{where}.min_A", 2500 <= lo, lo, "[2500, 30000] A (vacuum)")
