@@ -74,9 +74,9 @@ def feature_windows(rest_blue_A, rest_red_A, rest_trough_A, v_phot_c, v_max_c, r
     rest_blue_A, rest_red_A : array (n_features,)
         Shortest and longest vacuum rest wavelength of each feature's members (A);
         equal for a single line.  A blend spans all its members.
-    rest_trough_A : array (n_features,)
+    rest_trough_A : array (n_features,) or (n_epochs, n_features)
         Rest wavelength whose blueshift marks the expected absorption minimum
-        (the strongest member of a blend).
+        (the strongest member of a blend, which may change with epoch).
     v_phot_c, v_max_c : array (n_epochs,)
         Photospheric and outer ejecta velocity (fraction of c) per epoch.
     redshift : float
@@ -88,7 +88,8 @@ def feature_windows(rest_blue_A, rest_red_A, rest_trough_A, v_phot_c, v_max_c, r
     d_max = doppler_factor(vm)[..., None]
     blue = np.asarray(rest_blue_A, dtype=float)[None, :]
     red = np.asarray(rest_red_A, dtype=float)[None, :]
-    trough = np.asarray(rest_trough_A, dtype=float)[None, :]
+    trough = np.asarray(rest_trough_A, dtype=float)
+    trough = trough[None, :] if trough.ndim == 1 else trough
     s = 1.0 + z
     shape = np.broadcast_shapes(d_ph.shape, blue.shape)
     full = lambda a: np.broadcast_to(a, shape).copy()  # noqa: E731 - tiny local helper

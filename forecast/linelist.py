@@ -97,6 +97,26 @@ class LineList:
         cols["gf"] = _gf(cols, path)
         return cls(cols, path)
 
+    @classmethod
+    def merge(cls, lists) -> "LineList":
+        """One list from several (e.g. the bundled list plus a user's file); feature ids must be unique."""
+        lists = list(lists)
+        if len(lists) == 1:
+            return lists[0]
+        seen: dict[str, str] = {}
+        for ll in lists:
+            for fid in dict.fromkeys(ll.feature):
+                if fid in seen:
+                    raise DataFileError(ll.path, "feature", f"id {fid!r} is already used by {seen[fid]}",
+                                        "feature ids unique across line lists")
+                seen[fid] = ll.path
+        names = ("feature", "species", "element", "ion_stage", "wavelength_A", "E_low_eV", "log_gf", "gf",
+                 "source", "uncertain", "note")
+        cols = {n: np.concatenate([np.asarray(getattr(ll, n)) for ll in lists]) for n in names}
+        for n in ("feature", "species", "element", "source", "note"):
+            cols[n] = cols[n].astype(object)
+        return cls(cols, " + ".join(ll.path for ll in lists))
+
     def features(self) -> list[Feature]:
         """Blended features in file order: rows sharing a ``feature`` id merge into one."""
         out, order = [], dict.fromkeys(self.feature)

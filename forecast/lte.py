@@ -3,9 +3,12 @@
 The estimate, evaluated at the photosphere of each epoch:
 
 1. Density.  Homologous ejecta with a power-law profile in velocity,
-   rho(v, t) = A v^-n t^-3 between v_ph and v_max, normalized so that the
-   ejecta mass M lies between those velocities:
-   M = 4 pi A (v_max^(3-n) - v_ph^(3-n)) / (3 - n)   (n != 3; ln(v_max / v_ph) for n = 3).
+   rho(v, t) = A v^-n t^-3 between an inner velocity v_in and v_max, normalized
+   so that the ejecta mass M lies between those velocities:
+   M = 4 pi A (v_max^(3-n) - v_in^(3-n)) / (3 - n)   (n != 3; A ln(v_max / v_in) for n = 3),
+   and evaluated at the photosphere, rho(v_ph, t).  v_in = min(inner_velocity_c,
+   v_ph) with inner_velocity_c from the abundance file (default 0.05 c): a fixed
+   profile, so the density at the photosphere stays finite when v_ph nears v_max.
 2. Ionization.  Saha equation for each pair of stages (Saha 1920; e.g. Rybicki &
    Lightman 1979, eq. 9.45; Carroll & Ostlie, An Introduction to Modern Astrophysics,
    eq. 8.8, from memory):
@@ -99,6 +102,7 @@ class Composition:
     chi_eV: np.ndarray
     partition: np.ndarray
     density_index: float
+    inner_velocity_c: float
     source: str
     path: str
 
@@ -116,6 +120,8 @@ class Composition:
         source = field(ab, "source", ab_path, prefix="abundances", kind=str, default="not stated")
         ej = table(doc, "ejecta", ab_path, required=False)
         n = field(ej, "density_index", ab_path, prefix="ejecta", default=3.0, low=0.0, high=12.0)
+        v_in = field(ej, "inner_velocity_c", ab_path, prefix="ejecta", default=0.05, low=0.0, high=0.5,
+                     low_open=True, unit="c")
         names, x = [], []
         for el, _ in fractions.items():
             if el not in atoms:
@@ -129,7 +135,7 @@ class Composition:
         return cls(tuple(names), np.array(x) / total,
                    np.array([atoms[e][0] for e in names]),
                    np.array([atoms[e][1] for e in names]),
-                   np.array([atoms[e][2] for e in names]), float(n), str(source), str(ab_path))
+                   np.array([atoms[e][2] for e in names]), float(n), float(v_in), str(source), str(ab_path))
 
     def index(self, element: str) -> int:
         return self.elements.index(element)
@@ -215,16 +221,20 @@ def solve_electron_density(temperature_K, n_atoms_cm3, chi_eV, partition, iterat
     return np.exp(0.5 * (lo + hi))
 
 
-def photospheric_density(ejecta_mass_g, v_phot_c, v_max_c, age_s, density_index=3.0):
-    """Mass density (g cm^-3) at v_ph of a rho ∝ v^-n t^-3 profile holding the mass between v_ph and v_max."""
+def photospheric_density(ejecta_mass_g, v_phot_c, v_max_c, age_s, density_index=3.0, inner_velocity_c=0.05):
+    """Mass density (g cm^-3) at v_ph of a rho = A v^-n t^-3 profile holding the mass between v_in and v_max.
+
+    v_in = min(inner_velocity_c, v_phot_c); all velocities as fractions of c, ``age_s`` in s.
+    """
     n = float(density_index)
     vp = np.asarray(v_phot_c, dtype=float) * _C
     vm = np.asarray(v_max_c, dtype=float) * _C
+    vi = np.minimum(float(inner_velocity_c) * _C, vp)
     t = np.asarray(age_s, dtype=float)
     if abs(n - 3.0) < 1e-9:
-        shell = np.log(vm / vp)
+        shell = np.log(vm / vi)
     else:
-        shell = (vm ** (3.0 - n) - vp ** (3.0 - n)) / (3.0 - n)
+        shell = (vm ** (3.0 - n) - vi ** (3.0 - n)) / (3.0 - n)
     a = np.asarray(ejecta_mass_g, dtype=float) / (4.0 * np.pi * shell)
     return a * vp ** (-n) / t**3
 
@@ -273,7 +283,7 @@ def lte_state(temperature_K, age_d, v_phot_c, v_max_c, ejecta_mass_msun, composi
     vp, vm = np.broadcast_arrays(np.atleast_1d(np.asarray(v_phot_c, float)), np.atleast_1d(np.asarray(v_max_c, float)))
     if np.any(vp >= vm) or np.any(vp <= 0):
         raise ForecastInputError("LTE estimate: need 0 < v_phot_c < v_max_c at every epoch")
-    rho = photospheric_density(mass_g, vp, vm, age_s, composition.density_index)
+    rho = photospheric_density(mass_g, vp, vm, age_s, composition.density_index, composition.inner_velocity_c)
     n_atoms = rho[:, None] * composition.mass_fraction[None, :] / (composition.mass_u[None, :] * _M_U)
     ne = solve_electron_density(t, n_atoms, composition.chi_eV, composition.partition)
     frac = ionization_fractions(t, ne, composition.chi_eV, composition.partition)

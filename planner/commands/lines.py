@@ -1,0 +1,255 @@
+"""``kncast lines``: where each diagnostic feature lands per epoch, how strong it is, which setups see it."""
+from __future__ import annotations
+
+from planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
+                                      event_from_args, finite_float, parse_phases, split_list)
+from planner.commands._model_options import add_model_options, overrides_from_args
+
+HELP = "forecast diagnostic line features per epoch: observed windows, LTE strength, coverage per setup"
+
+DEFAULT_PHASES = "1.5,2.5,3.5,4.5"
+DEFAULT_AIRMASS = 1.2
+DEFAULT_PWV_MM = 2.5
+MAX_VELOCITY_C = 0.8
+DETAIL_SETUPS = 4  # up to this many setups: one detailed column per setup in the feature table
+CAUTION = ("Model estimates: windows from a homologous P Cygni picture, strengths from an LTE/Sobolev estimate "
+           "with an illustrative composition; the observatory's own tools and rules take precedence.")
+
+
+def add_arguments(p) -> None:
+    add_event_options(p)
+    add_model_options(p)
+    p.add_argument("--phases", default=DEFAULT_PHASES, metavar="D,D,...",
+                   help=f"observer-frame days since t0, each in (0, 100] (default {DEFAULT_PHASES})")
+    g = p.add_argument_group("setups and atmosphere")
+    g.add_argument("--setup", action="append", metavar="SITE/TELESCOPE/INSTRUMENT[:SETUP]",
+                   help="spectrograph setup (repeatable or comma separated; default: every setup; "
+                        "see kncast setups)")
+    g.add_argument("--sites-dir", action="append", default=[], metavar="DIR",
+                   help="extra folder of site TOML files (repeatable)")
+    g.add_argument("--airmass", type=finite_float("--airmass", 1.0, 10.0), default=DEFAULT_AIRMASS, metavar="X",
+                   help=f"airmass for the telluric bands, 1-10 (default {DEFAULT_AIRMASS:g})")
+    g.add_argument("--pwv", type=finite_float("--pwv", 0.0, 50.0), default=DEFAULT_PWV_MM, metavar="MM",
+                   help=f"precipitable water vapour, mm, 0-50 (default {DEFAULT_PWV_MM:g})")
+    v = p.add_argument_group("what-if velocities (replace the model's at every epoch)")
+    v.add_argument("--vphot", type=finite_float("--vphot"), metavar="C",
+                   help=f"photospheric velocity, fraction of c, in (0, {MAX_VELOCITY_C:g})")
+    v.add_argument("--vmax", type=finite_float("--vmax"), metavar="C",
+                   help=f"outer ejecta velocity, fraction of c, in (0, {MAX_VELOCITY_C:g}), above --vphot")
+    d = p.add_argument_group("line data")
+    d.add_argument("--lines", action="append", metavar="FILE",
+                   help="your own line list (ECSV, schema in docs/lines.md), added to the bundled list (repeatable)")
+    d.add_argument("--only-lines", action="store_true", help="use only the --lines files, not the bundled list")
+    d.add_argument("--abundances", metavar="FILE",
+                   help="element mass fractions (TOML like forecast/data/abundances.toml; default: the bundled "
+                        "illustrative mixture)")
+    add_output_options(p)
+
+
+def _check_velocity(option: str, value) -> None:
+    from planner.errors import OptionError
+
+    if value is not None and not 0.0 < value < MAX_VELOCITY_C:
+        raise OptionError(option, value, f"a fraction of c in (0, {MAX_VELOCITY_C:g})")
+
+
+def check_options(args) -> list[float]:
+    """Validate options that need no files; returns the phases."""
+    from planner.errors import OptionError
+
+    phases = parse_phases(args.phases)
+    check_plot_path(args.plot)
+    _check_velocity("--vphot", args.vphot)
+    _check_velocity("--vmax", args.vmax)
+    if args.vphot is not None and args.vmax is not None and args.vphot >= args.vmax:
+        raise OptionError("--vphot", args.vphot, f"below --vmax {args.vmax:g}")
+    if args.only_lines and not args.lines:
+        raise OptionError("--only-lines", True, "together with at least one --lines FILE")
+    return phases
+
+
+def load_lines(args):
+    from forecast.linelist import LineList
+
+    lists = [] if args.only_lines else [LineList.load()]
+    lists += [LineList.load(path) for path in split_list(args.lines)] if args.lines else []
+    return LineList.merge(lists)
+
+
+def select_setups(args):
+    """SetupRefs named by --setup (every setup by default)."""
+    from planner.errors import InputError
+    from planner.setups import all_setups, resolve_setup
+    from planner.sites import SiteRegistry
+
+    registry = SiteRegistry.load(args.sites_dir)
+    ids = split_list(args.setup)
+    refs = [resolve_setup(i, registry) for i in ids] if ids else all_setups(registry)
+    if not refs:
+        raise InputError("no spectrograph setups known: add instruments to a site file or use --sites-dir")
+    return list({r.id: r for r in refs}.values())
+
+
+def _check_against_model(args, state) -> None:
+    """A lone --vphot/--vmax must stay on the right side of the model's other velocity at every epoch."""
+    from planner.errors import OptionError
+
+    if args.vphot is not None and args.vmax is None and (args.vphot >= state.v_max_c).any():
+        i = int((args.vphot >= state.v_max_c).argmax())
+        raise OptionError("--vphot", args.vphot, f"below the model's v_max {state.v_max_c[i]:.3f} c at "
+                          f"{state.phase_d[i]:g} d (or give --vmax too)")
+    if args.vmax is not None and args.vphot is None and (args.vmax <= state.v_phot_c).any():
+        i = int((args.vmax <= state.v_phot_c).argmax())
+        raise OptionError("--vmax", args.vmax, f"above the model's v_phot {state.v_phot_c[i]:.3f} c at "
+                          f"{state.phase_d[i]:g} d (or give --vphot too)")
+
+
+def compute(args):
+    """(event, transient, forecast result, setup refs, line list) for parsed options."""
+    from forecast.features import forecast_features
+    from forecast.lte import Composition
+    from forecast.tellurics import TelluricModel
+    from planner.source import transient_for_event
+
+    phases = check_options(args)
+    event = event_from_args(args)
+    transient = transient_for_event(event, overrides=overrides_from_args(args))
+    _check_against_model(args, transient.state(phases))
+    linelist = load_lines(args)
+    composition = Composition.load(args.abundances)
+    refs = select_setups(args)
+    result = forecast_features(transient, phases, linelist, [r.setup for r in refs], TelluricModel.load(),
+                               airmass=args.airmass, pwv_mm=args.pwv, vphot_c=args.vphot, vmax_c=args.vmax,
+                               composition=composition, setup_ids=[r.id for r in refs])
+    return event, transient, result, refs, linelist
+
+
+def lines_document(event, transient, result, args, linelist) -> dict:
+    """The ``--json`` document (schema in docs/lines.md)."""
+    from planner.output import document
+
+    comp = result.lte.composition
+    settings = {
+        "airmass": args.airmass, "pwv_mm": args.pwv,
+        "vphot_override_c": args.vphot, "vmax_override_c": args.vmax,
+        "redshift": transient.redshift, "ejecta_mass_msun": transient.ejecta_mass_msun,
+        "line_list": linelist.path, "abundances": comp.path, "abundance_source": comp.source,
+        "mass_fractions": dict(zip(comp.elements, [round(float(x), 6) for x in comp.mass_fraction])),
+        "density_index": comp.density_index, "inner_velocity_c": comp.inner_velocity_c,
+        "wavelengths": "vacuum Angstrom; observed frame except rest_vac_A",
+        "coverage_window": "whole P Cygni profile: absorption_obs_A[0] .. emission_obs_A[1]",
+    }
+    return document("lines", event=event.summary(), model={"name": transient.photosphere.name},
+                    settings=settings, setups=result.setup_ids, epochs=result.epoch_rows(), caution=CAUTION)
+
+
+def run(args) -> int:
+    event, transient, result, refs, linelist = compute(args)
+    doc = lines_document(event, transient, result, args, linelist)
+    if args.plot:
+        from planner.output import save_figure
+        from planner.plots_lines import lines_figure
+
+        save_figure(lines_figure(transient, result, refs, airmass=args.airmass, pwv_mm=args.pwv,
+                                 title=event.id), args.plot)
+    if args.json:
+        emit_json(args.json, doc)
+    if args.json != "-":
+        print_tables(event, doc, len(refs))
+    return 0
+
+
+# ---------------------------------------------------------------------------------------------- terminal
+
+_CODE = {"clear": "C", "partly hidden": "P", "hidden by atmosphere": "A", "in detector gap": "G",
+         "outside coverage": "O"}
+_STYLE = {"clear": "green", "partly hidden": "yellow", "hidden by atmosphere": "magenta",
+          "in detector gap": "red", "outside coverage": "dim"}
+
+
+def _tau(t) -> str:
+    return "n/a" if t is None else f"{t:.3g}"
+
+
+def _span(lo_hi) -> str:
+    return f"{lo_hi[0]:.0f}-{lo_hi[1]:.0f}"
+
+
+def _usable(s) -> float:
+    return max(0.0, s["coverage"] - s["telluric_loss"])
+
+
+def _detail(s) -> str:
+    from rich.markup import escape
+
+    word = s["verdict"]
+    return (f"[{_STYLE.get(word, '')}]{escape(word)}[/] "
+            f"{100 * s['coverage']:.0f}/{100 * s['telluric_loss']:.0f}")
+
+
+def print_tables(event, doc, n_setups: int) -> None:
+    """Per epoch: features ranked by tau with windows; verdicts per setup (detailed or as a matrix)."""
+    from rich.markup import escape
+    from rich.table import Table
+
+    out = console()
+    st = doc["settings"]
+    out.print(f"[bold]{escape(event.id)}[/bold]  z = {st['redshift']:.4f}  ejecta {st['ejecta_mass_msun']:g} Msun  "
+              f"airmass {st['airmass']:g}  PWV {st['pwv_mm']:g} mm  {n_setups} setup(s)  (vacuum A, observed frame)")
+    for ep in doc["epochs"]:
+        head = (f"day {ep['phase_d']:g}: T {ep['temperature_K']:.0f} K, v_phot {ep['v_phot_c']:.3f} c, "
+                f"v_max {ep['v_max_c']:.3f} c, n_e {ep['electron_density_cm3']:.2g} cm^-3")
+        table = Table(title=escape(head), title_justify="left")
+        for name, just in [("#", "right"), ("feature", "left"), ("species", "left"), ("tau", "right"),
+                           ("trough", "right"), ("absorption", "right"), ("emission", "right")]:
+            table.add_column(name, justify=just)
+        detailed = n_setups <= DETAIL_SETUPS
+        if detailed:
+            for sid in doc["setups"]:
+                table.add_column(escape(sid), justify="left")
+        else:
+            table.add_column("clear in", justify="right")
+            table.add_column("best setup (usable %)", justify="left")
+        for f in ep["features"]:
+            name = f["feature"] + (" [dim](uncertain)[/dim]" if f["uncertain"] else "")
+            cells = [str(f["rank"]), name, escape(f["species"]), _tau(f["tau_sobolev"]), f"{f['trough_obs_A']:.0f}",
+                     _span(f["absorption_obs_A"]), _span(f["emission_obs_A"])]
+            if detailed:
+                cells += [_detail(s) for s in f["setups"]]
+            else:
+                clear = sum(s["verdict"] == "clear" for s in f["setups"])
+                best = max(f["setups"], key=_usable)
+                cells += [f"{clear}/{len(f['setups'])}", f"{escape(best['setup'])} ({100 * _usable(best):.0f}%)"]
+            table.add_row(*cells)
+        out.print(table)
+        if not detailed:
+            _print_matrix(out, ep)
+    out.print("[dim]tau: Sobolev optical depth of the strongest member (LTE estimate). Per setup: verdict, then "
+              "% of the whole P Cygni profile on the detector / % lost to telluric bands.[/dim]")
+    out.print(f"[dim]{CAUTION}[/dim]")
+
+
+def _print_matrix(out, ep) -> None:
+    """Setups x features: verdict code and usable % (coverage minus telluric loss).
+
+    Setups whose results are identical for every feature (the same instrument design on
+    several sites) share one row.
+    """
+    from rich.markup import escape
+    from rich.table import Table
+
+    feats = ep["features"]
+    groups: dict[tuple, list[str]] = {}
+    for k, sid in enumerate(s["setup"] for s in feats[0]["setups"]):
+        key = tuple((f["setups"][k]["verdict"], round(_usable(f["setups"][k]), 2)) for f in feats)
+        groups.setdefault(key, []).append(sid)
+    table = Table(title=f"day {ep['phase_d']:g}: verdict per setup (C clear, P partly hidden, A hidden by "
+                        f"atmosphere, G in detector gap, O outside coverage) and usable %", title_justify="left")
+    table.add_column("setup", justify="left", no_wrap=True)
+    for f in feats:  # columns headed by rank, as in the feature table above
+        table.add_column(f"#{f['rank']}", justify="right", no_wrap=True)
+    for key, ids in groups.items():
+        label = ids[0] + (f" (+{len(ids) - 1} alike)" if len(ids) > 1 else "")
+        cells = [f"[{_STYLE.get(word, '')}]{_CODE.get(word, '?')}{100 * usable:.0f}[/]" for word, usable in key]
+        table.add_row(escape(label), *cells)
+    out.print(table)
