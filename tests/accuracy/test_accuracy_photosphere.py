@@ -1,0 +1,195 @@
+"""Photosphere, photometry, extinction and heating checked against outside references.
+
+Each test names its source: CODATA constants through astropy.constants,
+astropy's BlackBody model, speclite's own synthetic photometry, published
+photometric zero points and Vega-AB offsets, the Fitzpatrick (1999) law,
+Korobkin et al. (2012) and Barnes et al. (2016), and closed-form solutions of
+Arnett's (1982) diffusion integral.
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from astropy import constants as const
+from astropy import units as u
+
+from forecast.blackbody import planck_flam, planck_sum_flam, stefan_boltzmann_luminosity, wien_peak_A
+from forecast.photometry import DEFAULT_BANDS, ab_minus_vega, mag_ab_from_spectrum
+
+PLANCK_RTOL = 1e-10
+SB_RTOL = 1e-6
+AB_ZERO_TOL_MAG = 1e-3
+SPECLITE_TOL_MAG = 0.005
+VEGA_AB_TOL_MAG = 0.1  # published Vega-AB offsets differ by up to ~0.1 mag between sources
+
+
+def test_planck_matches_astropy_blackbody_on_a_grid():
+    # Reference library: astropy.modeling.models.BlackBody (CODATA 2018 constants)
+    from astropy.modeling.models import BlackBody
+
+    wave = np.geomspace(1000.0, 1e6, 40)
+    for temp in (800.0, 2500.0, 5000.0, 12000.0, 60000.0):
+        ref = BlackBody(temp * u.K, scale=1.0 * u.erg / (u.s * u.cm**2 * u.AA * u.sr))(wave * u.AA)
+        ours = planck_flam(wave, temp)
+        assert np.allclose(ours, ref.to_value(u.erg / (u.s * u.cm**2 * u.AA * u.sr)), rtol=PLANCK_RTOL, atol=0)
+
+
+def test_multi_component_kernel_equals_sum_of_planck_functions():
+    # Reference: the plain Planck function above (itself checked against astropy)
+    wave = np.geomspace(500.0, 1e6, 400)
+    temp = np.array([[1500.0, 4000.0, 9000.0], [2500.0, 30000.0, 3000.0]])
+    weight = np.array([[1.0, 2.0, 3.0], [0.5, 1e-3, 7.0]])
+    ref = (weight[:, :, None] * planck_flam(wave[None, None, :], temp[:, :, None])).sum(axis=0)
+    assert np.allclose(planck_sum_flam(wave, temp, weight), ref, rtol=1e-8, atol=0)
+
+
+@pytest.mark.parametrize("temp", [2000.0, 5000.0, 20000.0])
+def test_wien_displacement_law(temp):
+    # Wien's law lambda_max T = b, b = 2.897771955e-3 m K (CODATA 2018, astropy.constants.b_wien)
+    wave = np.linspace(0.5, 1.5, 200001) * const.b_wien.to_value(u.AA * u.K) / temp
+    peak = wave[np.argmax(planck_flam(wave, temp))]
+    assert peak == pytest.approx(wien_peak_A(temp), rel=1e-5)
+    assert peak * temp == pytest.approx(2.897771955e7, rel=1e-5)  # in A K
+
+
+@pytest.mark.parametrize("temp", [1000.0, 3000.0, 5800.0, 25000.0])
+def test_bolometric_integral_equals_stefan_boltzmann(temp):
+    # pi * int B_lambda dlambda = sigma T^4 (Stefan-Boltzmann, sigma from CODATA 2018 via astropy.constants)
+    from scipy.integrate import quad
+
+    lam_peak = wien_peak_A(temp)
+    integral = sum(quad(lambda x: planck_flam(x, temp), a, b, limit=200, epsrel=1e-10)[0]
+                   for a, b in ((lam_peak * 0.01, lam_peak), (lam_peak, lam_peak * 100), (lam_peak * 100, lam_peak * 1e5)))
+    sigma = const.sigma_sb.cgs.value
+    assert np.pi * integral == pytest.approx(sigma * temp**4, rel=SB_RTOL)
+    # and the luminosity helper uses the same law: L = 4 pi R^2 sigma T^4
+    assert stefan_boltzmann_luminosity(temp, 1e14) == pytest.approx(4 * np.pi * 1e28 * sigma * temp**4, rel=1e-12)
+
+
+BANDS_ALL = DEFAULT_BANDS + ("sdss2010-u", "sdss2010-g", "sdss2010-r", "sdss2010-i", "sdss2010-z")
+
+
+@pytest.mark.parametrize("band", BANDS_ALL)
+def test_flat_3631_jy_spectrum_is_ab_zero(band):
+    # AB system: f_nu = 3631 Jy gives m_AB = 0 in every band (Oke & Gunn 1983, ApJ 266, 713)
+    wave = np.linspace(2500.0, 30000.0, 27501)
+    flam = 3631e-23 * const.c.to_value(u.AA / u.s) / wave**2
+    assert mag_ab_from_spectrum(wave, flam, band) == pytest.approx(0.0, abs=AB_ZERO_TOL_MAG)
+
+
+def test_synthetic_ab_magnitudes_match_speclite():
+    # Reference library: speclite.filters.FilterSequence.get_ab_magnitudes on the same spectrum
+    import speclite.filters
+
+    wave = np.linspace(2500.0, 30000.0, 30000)
+    flam = planck_flam(wave, 4500.0) * 1e-20
+    filters = speclite.filters.load_filters(*BANDS_ALL)
+    ref = filters.get_ab_magnitudes(flam * u.erg / (u.s * u.cm**2 * u.AA), wave * u.AA)
+    for band in BANDS_ALL:
+        assert mag_ab_from_spectrum(wave, flam, band) == pytest.approx(ref[band][0], abs=SPECLITE_TOL_MAG)
+
+
+# m_AB - m_Vega, Blanton & Roweis 2007, AJ 133, 734, Table 1: U..I checked; J, H, Ks from memory.
+BLANTON_ROWEIS_2007 = {"bessell-U": 0.79, "bessell-B": -0.09, "bessell-V": 0.02, "bessell-R": 0.21,
+                       "bessell-I": 0.45, "twomass-J": 0.91, "twomass-H": 1.39, "twomass-Ks": 1.85}
+
+
+@pytest.mark.parametrize("band", sorted(BLANTON_ROWEIS_2007))
+def test_vega_ab_offsets_match_published_table(band):
+    # our offsets come from zero points of Bessell, Castelli & Plez 1998 and Cohen et al. 2003;
+    # compared with the independent table of Blanton & Roweis 2007
+    assert ab_minus_vega(band) == pytest.approx(BLANTON_ROWEIS_2007[band], abs=VEGA_AB_TOL_MAG)
+
+
+def test_f99_total_to_selective_extinction_is_3_1_at_v():
+    # Fitzpatrick 1999 (PASP 111, 63) with R_V = A_V / E(B-V) = 3.1
+    from forecast.extinction import a_lambda_over_a_v, extinction_mag
+    from forecast.photosphere import PowerLawPhotosphere
+    from forecast.source import Transient
+
+    # monochromatic at V (5500 A): F99 curves are normalized to broad-band B, V, so a few per cent
+    assert extinction_mag(5500.0, 1.0) == pytest.approx(3.1, rel=0.03)
+    assert a_lambda_over_a_v(5500.0) == pytest.approx(1.0, rel=0.03)
+    # broad-band for a hot star (R_V is defined with B, V photometry of early-type stars)
+    hot = PowerLawPhotosphere(temperature_ref_K=10000.0, temperature_index=0.0)
+    clear = Transient(hot, distance_mpc=10.0).mag_ab([1.5], ["bessell-B", "bessell-V"])
+    dusty = Transient(hot, distance_mpc=10.0, ebv_mw=0.1).mag_ab([1.5], ["bessell-B", "bessell-V"])
+    a_b = float(dusty["bessell-B"][0] - clear["bessell-B"][0])
+    a_v = float(dusty["bessell-V"][0] - clear["bessell-V"][0])
+    assert a_v / (a_b - a_v) == pytest.approx(3.1, abs=0.1)
+
+
+def test_f99_matches_dust_extinction_inside_its_range_and_stays_finite_outside():
+    # Reference library: dust_extinction.parameter_averages.F99 (Fitzpatrick 1999)
+    from dust_extinction.parameter_averages import F99
+
+    from forecast.extinction import a_lambda_over_a_v
+
+    wave = np.linspace(1100.0, 33000.0, 500)
+    assert np.allclose(a_lambda_over_a_v(wave), F99(Rv=3.1)(wave * u.AA), rtol=1e-12)
+    outside = a_lambda_over_a_v(np.array([500.0, 40000.0, 1e5]))
+    assert np.all(np.isfinite(outside)) and outside[1] > outside[2] > 0
+
+
+def test_heating_rate_at_one_day_is_of_order_1e10():
+    # Korobkin et al. 2012 (MNRAS 426, 1940): about 1e10 erg/g/s deposited at 1 day for a
+    # thermalization of 0.5, i.e. ~2e10 erg/g/s total (REFERENCES: from memory)
+    from forecast.heating import heating_rate_erg_g_s
+
+    total = float(heating_rate_erg_g_s(86400.0))
+    assert 1e10 < total < 4e10
+    assert 5e9 < 0.5 * total < 2e10
+    # power-law decay t^-1.3 after a few seconds (Korobkin et al. 2012, eq. 4)
+    slope = np.log(heating_rate_erg_g_s(10 * 86400.0) / heating_rate_erg_g_s(86400.0)) / np.log(10.0)
+    assert slope == pytest.approx(-1.3, abs=1e-3)
+
+
+# Barnes et al. 2016 (ApJ 829, 110), Table 1 rows (a, b, d) -- from memory, also found in
+# published kilonova light-curve codes: (mass Msun, velocity c) -> (a, b, d)
+BARNES_ROWS = {
+    (1e-3, 0.1): (2.01, 0.28, 1.12), (1e-3, 0.2): (4.52, 0.62, 1.39), (1e-3, 0.3): (8.16, 1.19, 1.52),
+    (5e-3, 0.1): (0.81, 0.19, 0.86), (5e-3, 0.2): (1.90, 0.28, 1.21), (5e-3, 0.3): (3.20, 0.45, 1.39),
+    (1e-2, 0.1): (0.56, 0.17, 0.74), (1e-2, 0.2): (1.31, 0.21, 1.13), (1e-2, 0.3): (2.19, 0.31, 1.32),
+    (5e-2, 0.1): (0.27, 0.10, 0.60), (5e-2, 0.2): (0.55, 0.13, 0.90), (5e-2, 0.3): (0.95, 0.15, 1.13),
+}
+
+
+@pytest.mark.parametrize("key", sorted(BARNES_ROWS))
+def test_thermalization_coefficients_reproduce_barnes_table(key):
+    from forecast.heating import barnes_coefficients
+
+    assert barnes_coefficients(*key) == pytest.approx(BARNES_ROWS[key], abs=1e-12)
+
+
+def test_thermalization_efficiency_limits():
+    # Barnes et al. 2016 eq. 36: eps_th -> 0.36 * 2 = 0.72 as t -> 0, decreasing with time
+    from forecast.heating import thermalization_efficiency
+
+    a, b, d = BARNES_ROWS[(1e-2, 0.2)]
+    t = np.geomspace(1e-6, 100.0, 200)
+    eps = thermalization_efficiency(t, a, b, d)
+    assert eps[0] == pytest.approx(0.72, abs=1e-4)
+    assert np.all(np.diff(eps) < 0) and 0 < eps[-1] < 0.1
+
+
+def test_arnett_diffusion_of_constant_power():
+    # Closed form of Arnett's (1982) integral for constant input L0: L = L0 (1 - exp(-(t/t_d)^2))
+    from forecast.heating import diffuse
+
+    t, td = np.array([0.01, 0.3, 1.0, 2.0, 5.0, 20.0, 100.0]), 1.7
+    lum = diffuse(t, td, lambda x: np.full_like(x, 1e41), head_index=0.0)
+    assert np.allclose(lum, 1e41 * -np.expm1(-(t / td) ** 2), rtol=1e-7)
+
+
+def test_arnett_diffusion_of_power_law_heating():
+    # Closed form for L_in = t^-n (Korobkin n = 1.3): with u = (t/t_d)^2, a = -n/2,
+    # L = t_d^-n u^(a+1) / (a+1) * 1F1(1; a+2; -u)  (Kummer's function; Abramowitz & Stegun 13.1.27)
+    from scipy.special import hyp1f1
+
+    from forecast.heating import diffuse
+
+    n, td = 1.3, 2.3
+    t = np.array([0.05, 0.5, 1.0, 3.0, 10.0, 40.0])
+    u_ = (t / td) ** 2
+    ref = td**-n * u_ ** (1 - n / 2) / (1 - n / 2) * hyp1f1(1.0, 2 - n / 2, -u_)
+    assert np.allclose(diffuse(t, td, lambda x: x**-n, head_index=n), ref, rtol=3e-5)
