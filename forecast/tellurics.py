@@ -26,6 +26,7 @@ from forecast.errors import DataFileError, check_range
 __all__ = ["TelluricModel", "default_bands_path", "REFERENCE_PWV_MM"]
 
 REFERENCE_PWV_MM = 2.5  # precipitable water of the tabulated depths, mm
+POINT_WIDTH_A = 1e-3    # a zero-width window is evaluated over this width, A
 _COLUMNS = ("id", "species", "min_A", "max_A", "depth", "scaling", "power", "source")
 _SCALINGS = ("airmass", "airmass_pwv")
 
@@ -102,8 +103,6 @@ class TelluricModel:
 
 
 # ---------------------------------------------------------------- helpers
-
-POINT_WIDTH_A = 1e-3  # a zero-width window is evaluated over this width, A
 
 
 def _window(lo_A, hi_A):
