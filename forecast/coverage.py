@@ -29,7 +29,7 @@ from forecast.tellurics import REFERENCE_PWV_MM, _window
 __all__ = ["window_fractions", "verdict", "VERDICTS", "CLEAR_MIN_USABLE", "PARTLY_MIN_USABLE"]
 
 CLEAR_MIN_USABLE = 0.9    # usable fraction at or above which a feature is "clear"
-PARTLY_MIN_USABLE = 0.5   # ... at or above which it is "partly hidden"; below: the main loss is named
+PARTLY_MIN_USABLE = 0.25  # ... at or above which it is "partly hidden"; below: the main loss is named
 VERDICTS = ("clear", "partly hidden", "hidden by atmosphere", "in detector gap", "outside coverage")
 _TOL = 1e-9
 
@@ -115,7 +115,7 @@ def verdict(coverage, gap_loss, telluric_loss) -> np.ndarray:
     """Plain-words verdict per window (array of str, same shape as the inputs).
 
     usable = coverage - telluric_loss;
-    usable >= 0.9 -> "clear"; usable >= 0.5 -> "partly hidden"; otherwise the
+    usable >= 0.9 -> "clear"; usable >= 0.25 -> "partly hidden"; otherwise the
     largest loss names the verdict: outside the span -> "outside coverage",
     gaps -> "in detector gap", atmosphere -> "hidden by atmosphere"
     (ties in that order).

@@ -100,7 +100,8 @@ def test_vectorized_shapes_and_setup_axis(tmp_path):
     (0.6, 0.4, 0.0, "partly hidden"),
     (1.0, 0.0, 0.8, "hidden by atmosphere"),
     (0.0, 1.0, 0.0, "in detector gap"),
-    (0.3, 0.7, 0.0, "in detector gap"),
+    (0.2, 0.8, 0.0, "in detector gap"),
+    (0.3, 0.7, 0.0, "partly hidden"),
     (0.0, 0.0, 0.0, "outside coverage"),
     (0.2, 0.1, 0.0, "outside coverage"),
 ])
