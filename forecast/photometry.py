@@ -122,17 +122,31 @@ def mag_ab_from_spectrum(wavelength_A, flam, band: str) -> float:
     return float(band_set((band,)).mag_ab(f)[0])
 
 
+VEGA_ZERO_POINTS_FILE = resources.files("forecast") / "data" / "vega_zero_points.toml"
+
+
 @functools.lru_cache(maxsize=1)
 def vega_zero_points() -> dict[str, float]:
     """Zero-magnitude f_nu in Jy per band, from ``forecast/data/vega_zero_points.toml``."""
-    from forecast.datafiles import field, read_toml
+    return load_vega_zero_points(VEGA_ZERO_POINTS_FILE)
 
-    path = resources.files("forecast") / "data" / "vega_zero_points.toml"
+
+def load_vega_zero_points(path) -> dict[str, float]:
+    """Read and validate a zero-point file: ``[[band]]`` rows with name, f_nu_jy and source."""
+    from forecast.datafiles import field, read_toml
+    from forecast.errors import DataFileError
+
     doc = read_toml(path)
-    rows = doc.get("band", [])
+    rows = doc.get("band")
+    if not isinstance(rows, list) or not rows or not all(isinstance(r, dict) for r in rows):
+        raise DataFileError(path, "band", "expected one or more [[band]] tables")
     out = {}
     for i, row in enumerate(rows):
         name = field(row, "name", path, prefix=f"band[{i}]", kind=str)
+        if name not in known_bands():
+            raise DataFileError(path, f"band[{i}].name", f"{name!r} is not a speclite band")
+        if name in out:
+            raise DataFileError(path, f"band[{i}].name", f"{name!r} listed twice")
         out[name] = field(row, "f_nu_jy", path, prefix=f"band[{i}]", low=0, high=1e5, low_open=True, unit="Jy")
         field(row, "source", path, prefix=f"band[{i}]", kind=str)
     return out
@@ -147,4 +161,4 @@ def ab_minus_vega(band: str) -> float:
 
 
 __all__ = ["DEFAULT_BANDS", "BandSet", "band_set", "filter_curve", "known_bands", "mag_ab_from_spectrum",
-           "vega_zero_points", "ab_minus_vega"]
+           "vega_zero_points", "load_vega_zero_points", "ab_minus_vega"]

@@ -193,3 +193,29 @@ def test_temperature_never_below_its_floor(mass, vel, kappa, floor, phases):
     assert np.all(s.comp_temperature_K >= floor) and np.all(s.temperature_K >= floor * (1 - 1e-12))
     pl = PowerLawPhotosphere(temperature_floor_K=floor)
     assert np.all(Transient(pl, distance_mpc=100.0).state(phases).temperature_K >= floor)
+
+
+@pytest.mark.parametrize("text, fragment", [
+    ("", "file is empty"),
+    ("[[band]]\nname = \"bessell-V\"\nsource = \"x\"\n", "band[0].f_nu_jy: required key missing"),
+    ("[[band]]\nname = \"bessell-V\"\nf_nu_jy = -3.0\nsource = \"x\"\n", "band[0].f_nu_jy: value -3 out of range"),
+    ("[[band]]\nname = \"bessell-V\"\nf_nu_jy = 3636.0\n", "band[0].source: required key missing"),
+    ("[[band]]\nname = \"johnson-V\"\nf_nu_jy = 3636.0\nsource = \"x\"\n", "not a speclite band"),
+    ("title = 'no rows'\n", "expected one or more [[band]] tables"),
+    ("[[band]\nname = 1\n", "malformed TOML"),
+])
+def test_malformed_zero_point_file_is_refused(tmp_path, text, fragment):
+    from forecast.errors import DataFileError
+    from forecast.photometry import load_vega_zero_points
+
+    path = tmp_path / "zp.toml"
+    path.write_text(text)
+    with pytest.raises(DataFileError) as info:
+        load_vega_zero_points(path)
+    assert fragment in str(info.value) and str(path) in str(info.value)
+
+
+def test_bundled_zero_point_file_has_provenance_for_every_default_band():
+    from forecast.photometry import DEFAULT_BANDS, VEGA_ZERO_POINTS_FILE, load_vega_zero_points
+
+    assert set(DEFAULT_BANDS) <= set(load_vega_zero_points(VEGA_ZERO_POINTS_FILE))
