@@ -11,8 +11,9 @@ PSFs are circular, centred on the slit:
 * Moffat I ~ (1 + r^2 / a^2)^-beta with FWHM = 2 a sqrt(2^(1/beta) - 1)
   (Moffat 1969, A&A 3, 455); beta = 4.765 matches Kolmogorov seeing (Trujillo
   et al. 2001, MNRAS 328, 977).  Fibre: 1 - (1 + (d/2)^2 / a^2)^(1 - beta);
-  rectangle: 2-d Gauss-Legendre quadrature, tabulated once over (w/FWHM, L/FWHM)
-  on a logarithmic grid and interpolated (the fraction is smooth in both).
+  rectangle: closed form across the slit (incomplete beta function), Gauss-Legendre
+  along it, tabulated once over (w/FWHM, L/FWHM) on a logarithmic grid and
+  interpolated (the fraction is smooth in both).
 
 The extraction aperture along the slit is ``extraction_fwhm`` x FWHM (default 2,
 common practice) rounded up to whole pixels; that sets the number of spatial
@@ -61,17 +62,29 @@ def fibre_fraction(diameter_arcsec, fwhm_arcsec, profile="gaussian", beta=MOFFAT
     return 1.0 - (1.0 + (0.5 * d / a) ** 2) ** (1.0 - beta)
 
 
-def _moffat_rect(half_w, half_l, beta, n=96):
-    """Moffat flux fraction in |x| < half_w, |y| < half_l (units of FWHM), Gauss-Legendre in each axis."""
+def _moffat_rect(half_w, half_l, beta, n=64):
+    """Moffat flux fraction in |x| < half_w, |y| < half_l (units of FWHM).
+
+    The x integral is closed form: with s^2 = a^2 + y^2,
+    int_0^h (1 + (x^2 + y^2) / a^2)^-beta dx = (s/a)^(-2 beta) s B(z; 1/2, beta - 1/2) / 2,
+    z = h^2 / (h^2 + s^2) (incomplete beta function); the y integral is Gauss-Legendre
+    in phi with y = a tan(phi), which keeps the integrand smooth.
+    """
+    from scipy.special import beta as beta_fn, betainc
+
     a = moffat_alpha(1.0, beta)
+    hw = np.asarray(half_w, dtype=float)[..., None]
+    hl = np.asarray(half_l, dtype=float)[..., None]
     xg, wg = np.polynomial.legendre.leggauss(n)
-    hw = np.asarray(half_w, dtype=float)[..., None, None]
-    hl = np.asarray(half_l, dtype=float)[..., None, None]
-    x = hw * 0.5 * (xg[:, None] + 1.0)
-    y = hl * 0.5 * (xg[None, :] + 1.0)
-    prof = (beta - 1.0) / (np.pi * a * a) * (1.0 + (x * x + y * y) / (a * a)) ** (-beta)
-    integral = np.sum(prof * wg[:, None] * wg[None, :], axis=(-2, -1)) * hw[..., 0, 0] * hl[..., 0, 0] / 4.0
-    return 4.0 * integral
+    phi_max = np.arctan(hl / a)
+    phi = 0.5 * phi_max * (xg + 1.0)
+    y = a * np.tan(phi)
+    s2 = a * a + y * y
+    inner = (s2 / (a * a)) ** (-beta) * np.sqrt(s2) * betainc(0.5, beta - 0.5, hw * hw / (hw * hw + s2)) \
+        * beta_fn(0.5, beta - 0.5)  # = 2 x the half-range x integral
+    dy = a / np.cos(phi) ** 2
+    integral = np.sum(inner * dy * wg, axis=-1) * 0.5 * phi_max[..., 0]
+    return 2.0 * (beta - 1.0) / (np.pi * a * a) * integral
 
 
 def slit_fraction(width_arcsec, length_arcsec, fwhm_arcsec, profile="gaussian", beta=MOFFAT_BETA):
