@@ -159,7 +159,8 @@ def forecast_features(source, phases_d, linelist: LineList | None = None, setups
     linelist : LineList (default: the bundled list)
     setups : sequence of forecast.instruments.Setup (may be empty)
     tellurics : forecast.tellurics.TelluricModel or None (no atmosphere)
-    airmass, pwv_mm : scalar, or array (S,) with one value per setup
+    airmass, pwv_mm : scalars or arrays broadcastable to (n_epochs, n_features, n_setups),
+        e.g. (S,) for one value per setup or (n, 1, 1) for one per epoch
     vphot_c, vmax_c : optional velocity overrides (fraction of c) for every epoch
     composition : forecast.lte.Composition (default: bundled abundances and atoms)
     setup_ids : labels for the setups (default: each Setup's ``id``)
