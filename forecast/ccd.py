@@ -67,25 +67,27 @@ def time_for_snr(target_snr, source_rate, n_pix, sky_rate_per_pix, dark_rate_per
 
 
 def time_and_exposures(target_snr, source_rate, n_pix, sky_rate_per_pix, dark_rate_per_pix, read_var_e2,
-                       max_exposure_s, n_background=np.inf, max_iter=60):
-    """(total time s, n_exp) to reach ``target_snr`` in exposures of at most ``max_exposure_s`` each.
+                       max_exposure_s, n_background=np.inf):
+    """(total time s, n_exp) to reach ``target_snr`` in the fewest exposures of at most ``max_exposure_s``.
 
-    For each n_exp the quadratic is solved in closed form; n_exp = ceil(t / max)
-    is then iterated to its fixed point (t grows with n_exp, so it converges
-    in a few steps; arrays are handled element-wise without Python loops over elements).
+    Closed form.  With exposures of full length t_max the read terms grow as
+    T / t_max, so Var = (b + c1 / t_max) T and T_full = s^2 (b + c1 / t_max) / a^2;
+    the fewest exposures is n = ceil(T_full / t_max) (n - 1 full exposures fall
+    short, n reach the target).  The total time for that n then comes from the
+    quadratic of :func:`time_for_snr` (shorter than n t_max, split equally).
     """
     check_range("maximum exposure", max_exposure_s, 0.0, None, low_open=True, unit=" s")
-    shape = np.broadcast(target_snr, source_rate, n_pix, sky_rate_per_pix, dark_rate_per_pix, read_var_e2).shape
-    n = np.ones(shape)
-    t = time_for_snr(target_snr, source_rate, n_pix, sky_rate_per_pix, dark_rate_per_pix, read_var_e2, n, n_background)
-    for _ in range(max_iter):
-        finite = np.isfinite(t)
-        n_new = np.where(finite, np.maximum(1.0, np.ceil(t / max_exposure_s - 1e-9)), n)
-        if np.array_equal(n_new, n):
-            break
-        n = n_new
-        t = time_for_snr(target_snr, source_rate, n_pix, sky_rate_per_pix, dark_rate_per_pix, read_var_e2, n,
-                         n_background)
+    check_range("target S/N", target_snr, 0.0, 1e6, low_open=True)
+    s2 = np.asarray(target_snr, dtype=float) ** 2
+    a = np.asarray(source_rate, dtype=float)
+    factor = 1.0 + np.asarray(n_pix, dtype=float) / n_background
+    b = a + n_pix * factor * (sky_rate_per_pix + dark_rate_per_pix)
+    c1 = n_pix * factor * read_var_e2
+    with np.errstate(divide="ignore", invalid="ignore"):
+        t_full = s2 * (b + c1 / max_exposure_s) / (a * a)
+        n = np.where(np.isfinite(t_full) & (a > 0), np.maximum(1.0, np.ceil(t_full / max_exposure_s - 1e-9)), 1.0)
+    t = time_for_snr(target_snr, source_rate, n_pix, sky_rate_per_pix, dark_rate_per_pix, read_var_e2, n,
+                     n_background)
     return t, n.astype(int) if np.ndim(n) else int(n)
 
 

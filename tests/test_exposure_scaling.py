@@ -55,3 +55,16 @@ def test_source_limited_snr_grows_with_aperture(d, f, ideal):
     s1 = expose(rates(flam, g1, cond, ideal=ideal), 600.0).snr_per_resel
     s2 = expose(rates(flam, g2, cond, ideal=ideal), 600.0).snr_per_resel
     assert np.allclose(s2 / s1, f, rtol=1e-6)
+
+
+@settings(max_examples=60, deadline=None)
+@given(target=st.floats(min_value=1.0, max_value=200.0), a=st.floats(min_value=0.01, max_value=100.0),
+       sky=st.floats(min_value=0.0, max_value=50.0), rn=st.floats(min_value=0.0, max_value=20.0),
+       t_max=st.floats(min_value=60.0, max_value=3600.0))
+def test_fewest_exposures_reach_the_target(target, a, sky, rn, t_max):
+    # CCD equation (Merline & Howell 1995): n - 1 full-length exposures fall short, n exposures reach the target
+    t, n = ccd.time_and_exposures(target, a, 8.0, sky, 0.0, rn * rn, t_max)
+    assert t <= n * t_max * (1 + 1e-9)
+    assert np.isclose(ccd.snr_from_rates(t, n, a, 8.0, sky, 0.0, rn * rn), target, rtol=1e-6)
+    if n > 1:
+        assert ccd.snr_from_rates((n - 1) * t_max, n - 1, a, 8.0, sky, 0.0, rn * rn) < target

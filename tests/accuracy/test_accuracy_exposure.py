@@ -210,3 +210,15 @@ def test_atmosphere_table_validation():
         atmosphere_from_table({"aerosol_k5500": -1.0}, 2000.0)
     with pytest.raises(DataFileError, match="unknown key"):
         atmosphere_from_table({"pressure": 700.0}, 2000.0)
+
+
+def test_moffat_slit_against_direct_2d_integration():
+    # independent check: brute-force trapezoid integration of the Moffat (1969) profile over the box
+    beta = slit.MOFFAT_BETA
+    a = slit.moffat_alpha(1.0, beta)
+    x = np.linspace(-0.4, 0.4, 1601)
+    y = np.linspace(-1.2, 1.2, 4801)
+    xx, yy = np.meshgrid(x, y)
+    prof = (beta - 1) / (np.pi * a * a) * (1 + (xx ** 2 + yy ** 2) / a ** 2) ** -beta
+    direct = np.trapezoid(np.trapezoid(prof, x, axis=1), y)
+    assert float(slit.slit_fraction(0.8, 2.4, 1.0, "moffat")) == pytest.approx(direct, rel=1e-3)
