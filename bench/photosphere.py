@@ -41,14 +41,16 @@ def main():
     phases = np.geomspace(0.3, 30.0, N_EPOCHS)
     wave = np.linspace(3000.0, 25000.0, N_WAVE)
     once(transient, phases[:10], wave)  # warm-up: filter curves, extinction law, cosmology
-    times = []
+    times, cpu = [], []
     for _ in range(REPEATS):
-        t = time.perf_counter()
+        t, c = time.perf_counter(), time.process_time()
         flux, mags = once(transient, phases, wave)
         times.append(time.perf_counter() - t)
+        cpu.append(time.process_time() - c)
     assert flux.shape == (N_EPOCHS, N_WAVE) and np.all(np.isfinite(flux))
     print(f"flux grid {flux.shape[0]} epochs x {flux.shape[1]} wavelengths x 3 components + {len(BANDS)} bands")
-    print(f"times (s): {' '.join(f'{x:.3f}' for x in times)}; goal < 0.5 s")
+    print(f"wall times (s): {' '.join(f'{x:.3f}' for x in times)}; goal < 0.5 s")
+    print(f"cpu times (s):  {' '.join(f'{x:.3f}' for x in cpu)} (less sensitive to other load)")
     print(f"RESULT seconds={min(times):.3f}")
 
 

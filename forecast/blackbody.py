@@ -43,15 +43,18 @@ def planck_sum_flam(wavelength_A, temperature_K, weight):
     temp = np.atleast_2d(np.asarray(temperature_K, dtype=float))
     w = np.atleast_2d(np.asarray(weight, dtype=float))
     inv_lam = 1.0 / lam
-    out = np.zeros((temp.shape[1], lam.size))
+    shape = (temp.shape[1], lam.size)
+    out = np.zeros(shape)
+    x, e = np.empty(shape), np.empty(shape)  # work buffers, reused for every component
     for k in range(temp.shape[0]):  # components: a handful, each a whole (epoch, wave) grid
-        x = np.multiply.outer(-_HC_OVER_K_A / temp[k], inv_lam)  # -x
-        e = np.exp(x)
-        denom = 1.0 - e
+        np.multiply.outer(-_HC_OVER_K_A / temp[k], inv_lam, out=x)  # -x
         small = x > -1e-2
-        if small.any():
-            denom[small] = -np.expm1(x[small])
-        np.divide(e, denom, out=e)
+        fix = -np.expm1(x[small]) if small.any() else None
+        np.exp(x, out=e)
+        np.subtract(1.0, e, out=x)  # 1 - exp(-x), exact enough for x >= 1e-2
+        if fix is not None:
+            x[small] = fix
+        np.divide(e, x, out=e)
         e *= w[k][:, None]
         out += e
     out *= _TWO_HC2_A * inv_lam**5
