@@ -172,7 +172,7 @@ class HeatingPhotosphere:
         return float(sum(c.mass_msun for c in self.ejecta))
 
     def parameters(self) -> dict:
-        return {"component": [c.parameters() for c in self.ejecta]}
+        return {"component": [c.parameters() for c in self.ejecta], "points_per_decade": self.points_per_decade}
 
     def components(self, age_d):
         """(T_K, R_cm, L_erg_s, v_phot_c), each shaped (n_comp, n_epoch)."""

@@ -141,3 +141,28 @@ def test_transient_for_event_uses_event_distance_and_dust(demo_event_path):
     assert tr.photosphere.name == "heating" and tr.ejecta_mass_msun == pytest.approx(0.065)
     pl = transient_for_event(event, model="powerlaw", overrides={"mass_msun": 0.02})
     assert pl.photosphere.name == "powerlaw" and pl.ejecta_mass_msun == pytest.approx(0.02)
+
+
+# every powerlaw option: (option, [model] key, a valid value, an out-of-range value)
+POWERLAW_OPTION_CASES = [
+    ("--t-ref-d", "t_ref_d", "2", "0"),
+    ("--temperature-ref-k", "temperature_ref_K", "5500", "100"),
+    ("--temperature-index", "temperature_index", "0.7", "-0.1"),
+    ("--temperature-floor-k", "temperature_floor_K", "2000", "0"),
+    ("--velocity-ref-c", "velocity_ref_c", "0.25", "0.8"),
+    ("--velocity-index", "velocity_index", "0.2", "3"),
+    ("--v-max-c", "v_max_c", "0.5", "0"),
+    ("--mass-msun", "mass_msun", "0.01", "-0.01"),
+]
+
+
+@pytest.mark.parametrize("option, key, good, bad", POWERLAW_OPTION_CASES)
+def test_each_powerlaw_option_sets_its_parameter_and_checks_its_range(run_cli, tmp_path, option, key, good, bad):
+    out = tmp_path / "lc.json"
+    base = ["lightcurve", *EVENT, "--distance-mpc", "60", "--phases", "1,3", "--model", "powerlaw"]
+    status, _, stderr = run_cli(*base, option, good, "--json", out)
+    assert status == 0, stderr
+    assert json.loads(out.read_text())["model"]["parameters"][key] == float(good)
+    out.unlink()
+    status, _, stderr = run_cli(*base, option, bad, "--json", out)
+    assert status == 2 and option in stderr and "allowed" in stderr and not out.exists()
