@@ -76,7 +76,7 @@ def print_tables(result) -> None:
               f"(Sun < {result.rules.twilight_deg:g} deg)")
     for site in result.sites:
         tz = site.tz
-        table = Table(title=f"{site.name} [{site.id}]  ({site.timezone})", title_justify="left")
+        table = Table(title=f"{site.name}  (id {site.id}, {site.timezone})", title_justify="left")
         for col, just in [("night", "left"), ("dusk-dawn UTC", "left"), ("window UTC", "left"),
                           ("window local", "left"), ("hours", "right"), ("best X", "right"),
                           ("best UTC", "left"), ("Moon illum.", "right"), ("Moon sep", "right"),
