@@ -179,3 +179,24 @@ def test_bad_atmosphere_table(run_cli, tmp_path):
                                 "--phase", "2", "--time", "100", *FIXED, "--json", out)
     assert status == 2 and "atmosphere.aerosol_k5500" in stderr
     assert not out.exists()
+
+
+def _radec(distance_mpc):
+    return ["--ra", "10:42:30", "--dec=-35:12:00", "--t0", "2027-03-14T02:17:00Z", "--distance-mpc", str(distance_mpc)]
+
+
+def test_saturation_warning(run_cli, tmp_path):
+    out = tmp_path / "s.json"
+    status, stdout, _ = run_cli("exposure", *_radec(0.5), "--setup", SETUP, "--phase", "1.5", "--time", "1800",
+                                *FIXED, "--json", out)
+    assert status == 0 and "saturates" in stdout
+    assert any("saturates" in w for w in json.loads(out.read_text())["warnings"])
+
+
+def test_systematics_warning(run_cli, tmp_path):
+    out = tmp_path / "s.json"
+    status, stdout, _ = run_cli("exposure", *_radec(600), "--setup", SETUP, "--phase", "4", "--snr", "3",
+                                "--at", "12500", *FIXED, "--json", out)
+    assert status == 0 and "below 1% of the sky" in stdout
+    doc = json.loads(out.read_text())
+    assert doc["exposure"]["nexp"] == pytest.approx(doc["time_for_target_s"] / 1800.0, abs=1.0)

@@ -12,6 +12,7 @@ HELP = "S/N per resolution element for a setup at one epoch, or the exposure tim
 SNR_BASIS = "per resolution element"
 MAX_PHASE_D = 100.0
 DEFAULT_MAX_EXPOSURE_S = 1800.0
+MAX_TIME_S = 1e6
 DEFAULT_SAMPLES = 300
 DEFAULT_MOON_ALT_DEG = 45.0
 STRONG_TAU = 1.0      # Sobolev optical depth above which a feature counts as strong (common practice)
@@ -86,7 +87,7 @@ def check_options(args) -> None:
 
     check_plot_path(args.plot)
     _check("--phase", args.phase, 0.0, MAX_PHASE_D, low_open=True)
-    _check("--time", args.time, 0.0, 1e6, low_open=True)
+    _check("--time", args.time, 0.0, MAX_TIME_S, low_open=True)
     _check("--snr", args.snr, 0.0, 1e4, low_open=True)
     _check("--max-exposure", args.max_exposure, 1.0, 1e5)
     _check("--airmass", args.airmass, 1.0, 10.0)
@@ -243,10 +244,11 @@ def compute(args, event, ref, transient, cond, sky_file) -> dict:
 
             raise OptionError("--at", args.at, f"a wavelength on the detector of {ref.id} ({_ranges(ref)})")
         t, n = ex.time_for_snr(r_at, args.snr, args.max_exposure)
-        if not np.isfinite(t[0]) or t[0] > 1e7:
+        if not np.isfinite(t[0]) or t[0] > MAX_TIME_S:
             from planner.errors import InputError
 
-            raise InputError(f"--snr {args.snr:g}: not reachable at {at_label} ({at_A:.0f} A) within 1e7 s, "
+            where = at_label if at_label.endswith(" A") else f"{at_label} ({at_A:.0f} A)"
+            raise InputError(f"--snr {args.snr:g}: not reachable at {where} within {MAX_TIME_S:g} s, "
                              f"the source is too faint there for {ref.id}; choose another place with --at")
         time_s, nexp = float(t[0]), int(n[0])
         target = {"snr_per_resel": args.snr, "at": at_label, "wavelength_A": round(at_A, 2)}
@@ -433,8 +435,9 @@ def print_tables(res: dict) -> None:
     single = res["time_s"] / res["nexp"]
     if res["target"] is not None:
         t = res["target"]
-        out.print(f"[bold]time for S/N {t['snr_per_resel']:g} per resolution element at {escape(t['at'])} "
-                  f"({t['wavelength_A']:.0f} A): {res['time_s']:.0f} s = {res['nexp']} x {single:.0f} s[/bold]")
+        where = t["at"] if t["at"].endswith(" A") else f"{t['at']} ({t['wavelength_A']:.0f} A)"
+        out.print(f"[bold]time for S/N {t['snr_per_resel']:g} per resolution element at {escape(where)}: "
+                  f"{res['time_s']:.0f} s = {res['nexp']} x {single:.0f} s[/bold]")
     else:
         out.print(f"exposure: {res['nexp']} x {single:.0f} s = {res['time_s']:.0f} s")
     if res["features"]:
