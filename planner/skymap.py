@@ -36,6 +36,7 @@ NORM_QUIET = 1e-4  # |sum - 1| below this: float rounding, renormalised silently
 NORM_TOLERANCE = 0.01  # |sum - 1| up to this: renormalised with a warning; beyond: refused
 MAX_LEVEL = 29  # HEALPix order limit of 64-bit indices (nside = 2^29)
 SR_TO_DEG2 = (180.0 / math.pi) ** 2
+FITS_BLOCK = 2880  # bytes
 FLAT_ORDERINGS = ("NESTED", "RING")
 ORDERINGS = FLAT_ORDERINGS + ("NUNIQ",)
 DISTANCE_COLUMNS = ("DISTMU", "DISTSIGMA", "DISTNORM")
@@ -209,6 +210,7 @@ def _read_table(path: Path):
         raise DataFileError(path, "", "file not found")
     if path.is_dir():
         raise DataFileError(path, "", "is a folder, expected a FITS sky map")
+    _check_blocks(path)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # header-style notices from astropy are not our concern here
@@ -234,6 +236,20 @@ def _read_table(path: Path):
         reason = str(err).splitlines()[0] if str(err) else type(err).__name__
         raise DataFileError(path, "", f"not a readable FITS file ({reason})") from None
     return header, cols
+
+
+def _check_blocks(path: Path) -> None:
+    """An uncompressed FITS file is a whole number of 2880-byte blocks (FITS Standard 4.0, sec. 3.1)."""
+    try:
+        with path.open("rb") as f:
+            magic = f.read(3)
+        size = path.stat().st_size
+    except OSError as err:
+        raise DataFileError(path, "", f"cannot be read ({err.strerror})") from None
+    compressed = magic[:2] == b"\x1f\x8b" or magic == b"BZh"
+    if not compressed and size % FITS_BLOCK:
+        raise DataFileError(path, "", f"not a readable FITS file ({size} bytes is not a whole number of "
+                                      f"{FITS_BLOCK}-byte blocks: truncated or not FITS)")
 
 
 def _ordering(header, columns, path) -> str:
@@ -282,7 +298,7 @@ def _flat(header, columns, ordering, path):
     level = np.full(n, int(round(math.log2(nside))), dtype=np.int64)
     index = np.arange(n, dtype=np.int64)
     if ordering == "RING":
-        from astropy_healpix import ring_to_nested
+        from astropy_healpix.core import ring_to_nested
 
         ipix = np.asarray(ring_to_nested(index, nside), dtype=np.int64)
     else:
