@@ -119,6 +119,7 @@ class Plan:
     features: list = field(default_factory=list)   # rows for features.ecsv
     campaign: dict = field(default_factory=dict)
     model: dict = field(default_factory=dict)
+    setup_refs: list = field(default_factory=list)  # planner.setups.SetupRef of every setup planned
     tellurics: object = None                       # forecast.tellurics.TelluricModel used
     atmospheres: dict = field(default_factory=dict)  # site id -> forecast.extinction_atm.Atmosphere
 
@@ -176,7 +177,7 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
         for k, p in enumerate(epochs):
             p.photosphere = _state_row(state, k)
     plan = Plan(event=event, sites=sites, settings=settings, visibility=vis, transient=transient, nights=plans,
-                model=_model_summary(transient))
+                model=_model_summary(transient), setup_refs=refs)
     say("line features")
     by_site = {}
     for r in refs:
@@ -247,6 +248,10 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, snr_target: float, 
         return
     fc = feature_forecast(plan, epochs, refs)
     say("exposure times")
+    # observed continuum at every feature trough of every epoch, in one call: (n_epochs, n_features)
+    n, nf = fc.windows.trough_A.shape
+    every = plan.transient.flux_flam(fc.epochs.phase_d, fc.windows.trough_A.ravel()).reshape(n, n, nf)
+    fc.trough_flux_flam = every[np.arange(n), np.arange(n)]
     column = {r.id: k for k, r in enumerate(refs)}
     for i, p in enumerate(epochs):  # one batched exposure evaluation per epoch (all setups of its site)
         site_refs = by_site.get(p.site.id, [])
@@ -285,7 +290,8 @@ def _outcomes_for_epoch(plan: Plan, p: NightPlan, i: int, fc, refs: list, cols: 
     clear = clear.reshape(len(cols), len(strong_idx))
     snr = t_need = n_need = None
     if clear.any() and p.hours_available > 0:
-        snr, t_need, n_need = _exposures(plan, p, refs, fc.windows.trough_A[i, strong_idx], snr_target)
+        snr, t_need, n_need = _exposures(plan, p, refs, fc.windows.trough_A[i, strong_idx],
+                                         fc.trough_flux_flam[i, strong_idx], snr_target)
     outcomes = []
     for j, (k, ref) in enumerate(zip(cols, refs)):
         o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m, n_strong=len(strong_idx),
@@ -337,9 +343,10 @@ def exposure_conditions(site, window, atmosphere):
                       pwv_mm=atmosphere.pwv_mm, atmosphere=atmosphere)
 
 
-def _exposures(plan: Plan, p: NightPlan, refs: list, trough_A, snr_target: float):
+def _exposures(plan: Plan, p: NightPlan, refs: list, trough_A, flux_flam, snr_target: float):
     """S/N per resolution element in the usable time, and (time, n_exp) for the target, at every trough
-    for every setup of the site: arrays (n_setups, n_troughs), all setups in one batched call."""
+    (observed continuum ``flux_flam`` there) for every setup of the site: arrays (n_setups, n_troughs), all
+    setups in one batched call."""
     from forecast import exposure
 
     atm = plan.atmospheres[p.site.id]
@@ -347,7 +354,7 @@ def _exposures(plan: Plan, p: NightPlan, refs: list, trough_A, snr_target: float
     lam = np.asarray(trough_A, dtype=float)
     grid = exposure.stack_grids([exposure.setup_grid(r.telescope, r.instrument, r.setup, wavelength_A=lam)
                                  for r in refs])
-    flux = plan.transient.flux_flam(np.array([p.phase_d]), lam)                       # (1, n_troughs)
+    flux = np.asarray(flux_flam, dtype=float)[None, :]                                # (1, n_troughs)
     telluric = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
     r = exposure.rates(flux, grid, cond, telluric)
     available = p.hours_available * 3600.0

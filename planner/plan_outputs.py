@@ -8,9 +8,13 @@ visibility, photosphere, line and exposure modules.  Column lists are in
 """
 from __future__ import annotations
 
+import multiprocessing
+import os
 from pathlib import Path
 
 import numpy as np
+
+from planner.plan import MAX_EXPOSURE_S
 
 FIGURE_DPI = 90
 
@@ -112,31 +116,190 @@ def write_tables(plan, folder: Path) -> dict:
 
 
 # ---------------------------------------------------------------------------- figures
-def _save(fig, folder: Path, name: str) -> str:
+def _save(fig, folder: Path, name: str, tight: bool = False) -> str:
     from planner.output import save_figure
 
     rel = f"figures/{name}.png"
-    (folder / "figures").mkdir(exist_ok=True)
-    save_figure(fig, folder / rel, dpi=FIGURE_DPI)
+    save_figure(fig, folder / rel, dpi=FIGURE_DPI, bbox_inches="tight" if tight else None)
     return rel
 
 
 def write_figures(plan, folder: Path) -> list[dict]:
-    """Campaign chart, light curve, one spectral panel per chosen epoch, S/N curves."""
+    """Campaign chart, light curve, one spectral panel per chosen epoch, S/N curves (PNG under figures/).
+
+    The figures are independent, so they are drawn by two forked worker
+    processes where the platform can fork (plain serial drawing otherwise).
+    """
     import matplotlib
 
     matplotlib.use("Agg")
+    import matplotlib.pyplot  # noqa: F401  (loaded once, before any fork)
+
+    (folder / "figures").mkdir(exist_ok=True)
+    jobs = figure_jobs(plan)
+    global _JOB_STATE
+    _JOB_STATE = (plan, folder)
+    try:
+        workers = min(2, os.cpu_count() or 1, len(jobs))
+        if workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+            heavy_first = sorted(range(len(jobs)), key=lambda k: -jobs[k][2])
+            with multiprocessing.get_context("fork").Pool(workers) as pool:
+                done = pool.map(_run_job, [jobs[k][:2] for k in heavy_first], chunksize=1)
+            results = [None] * len(jobs)
+            for k, r in zip(heavy_first, done):
+                results[k] = r
+        else:
+            results = [_run_job(j[:2]) for j in jobs]
+    finally:
+        _JOB_STATE = None
+    return [r for r in results if r is not None]
+
+
+_JOB_STATE = None  # (plan, folder) for the figure workers (inherited through fork)
+
+
+def _run_job(job):
+    name, arg = job
+    plan, folder = _JOB_STATE
+    return FIGURES[name](plan, folder, arg)
+
+
+def figure_jobs(plan) -> list[tuple]:
+    """(figure kind, argument, relative cost) in report order."""
+    jobs = [("campaign", None, 2), ("lightcurve", None, 1)]
+    chosen = sorted(plan.useful(), key=lambda p: p.phase_d)
+    jobs += [("spectrum", day, 1 + sum(int(p.phase_d) == day for p in chosen))
+             for day in sorted({int(p.phase_d) for p in chosen})]
+    jobs += [("snr", sid, 1) for sid in snr_figure_setups(plan)]
+    if any(o.snr is not None for p in plan.nights for o in p.outcomes):
+        jobs.append(("snr-campaign", None, 1))
+    return jobs
+
+
+def campaign_chart(plan, folder, _arg):
     from planner.plots_campaign import campaign_figure
 
-    figures = [{"title": "Campaign", "path": _save(campaign_figure(plan.visibility), folder, "campaign"),
-                "caption": "Observing windows per site across the campaign, shaded by airmass, with moonlight."}]
-    figures += plan_figures(plan, folder)
-    return figures
+    return {"title": "Campaign", "path": _save(campaign_figure(plan.visibility), folder, "campaign", tight=True),
+            "caption": "Observing windows per site across the campaign, shaded by airmass, with moonlight."}
 
 
-def plan_figures(plan, folder: Path) -> list[dict]:
-    """The figures drawn from the photosphere, line and exposure modules."""
-    return []
+def light_curve(plan, folder, _arg):
+    from planner.commands.lightcurve import DEFAULT_BANDS
+    from planner.plots_lightcurve import lightcurve_figure
+
+    useful = plan.useful() or [p for p in plan.nights if p.phase_d is not None]
+    phases = np.unique(np.round([p.phase_d for p in useful], 4)) if useful else np.array([1.0])
+    state = plan.transient.state(phases)
+    fig = lightcurve_figure(plan.transient, state, tuple(DEFAULT_BANDS.split(",")),
+                            f"{plan.event.id}: {plan.model.get('name', '')} photosphere")
+    return {"title": "Light curve", "path": _save(fig, folder, "lightcurve", tight=True),
+            "caption": "Model AB magnitudes and photospheric temperature; markers at the "
+                       + ("epochs with a useful spectrum." if plan.useful() else "planned epochs.")}
+
+
+def spectral_figure(plan, folder, day):
+    """One spectral forecast panel per chosen epoch of days [day, day + 1) since t0 (the lines chart)."""
+    from forecast.features import forecast_features
+    from planner.plots_lines import lines_figure
+
+    refs = {r.id: r for r in plan.setup_refs}
+    group = sorted((p for p in plan.useful() if int(p.phase_d) == day), key=lambda p: p.phase_d)
+    group_refs = list({p.choice.setup: refs[p.choice.setup] for p in group}.values())
+    airmass = float(np.median([p.window.best_airmass for p in group]))
+    pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in group]))
+    fc = forecast_features(plan.transient, np.array([p.phase_d for p in group]),
+                           setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
+                           pwv_mm=pwv, setup_ids=[r.id for r in group_refs])
+    fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
+                       f"{plan.event.id}, days {day}-{day + 1}")
+    words = "; ".join(f"day {p.phase_d:.2f}: {p.site.id}, night of {p.record.night.isoformat()}, "
+                      f"{p.choice.setup}" for p in group)
+    return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
+            "path": _save(fig, folder, f"spectrum-day{day:02d}", tight=True),
+            "caption": f"One panel per chosen epoch, top to bottom ({words}); bottom: the chosen setups' "
+                       f"coverage. Telluric bands drawn at airmass {airmass:.2f}, PWV {pwv:g} mm."}
+
+
+MAX_SNR_FIGURES = 6
+
+
+def snr_figure_setups(plan) -> list[str]:
+    """The chosen setups (most often chosen first, at most MAX_SNR_FIGURES) that get an S/N spectrum."""
+    counts = {}
+    for p in plan.useful():
+        counts[p.choice.setup] = counts.get(p.choice.setup, 0) + 1
+    return sorted(counts, key=lambda s: (-counts[s], s))[:MAX_SNR_FIGURES]
+
+
+def snr_spectrum(plan, folder, setup_id):
+    """S/N against wavelength (the exposure chart) for a setup at the last night it was chosen."""
+    import argparse
+
+    from planner.commands import exposure as cmd
+    from planner.plots_exposure import exposure_figure
+
+    p = max((n for n in plan.useful() if n.choice.setup == setup_id), key=lambda n: n.phase_d)
+    ref = next(r for r in plan.setup_refs if r.id == setup_id)
+    w, atm = p.window, plan.atmospheres[p.site.id]
+    args = argparse.Namespace(phase=p.phase_d, snr=plan.settings["snr_target"], at=p.choice.feature, time=None,
+                              nexp=None, max_exposure=MAX_EXPOSURE_S, ideal=False, profile="moffat",
+                              samples=cmd.DEFAULT_SAMPLES)
+    cond = {"airmass": w.best_airmass, "seeing_arcsec": atm.seeing_arcsec, "moon_illumination": w.moon_illumination,
+            "moon_sep_deg": w.moon_sep_deg, "moon_altitude_deg": w.moon_altitude_deg, "pwv_mm": atm.pwv_mm,
+            "source": f"best-airmass time of the night of {p.record.night.isoformat()}", "window": w.summary(),
+            "atmosphere": atm}
+    res = cmd.compute(args, plan.event, ref, plan.transient, cond, None)
+    fig = exposure_figure(res)
+    return {"title": f"S/N spectrum, {setup_id}", "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
+            "caption": f"S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s (the "
+                       f"time for S/N {plan.settings['snr_target']:g} at {p.choice.feature}) on day {p.phase_d:.2f}, "
+                       f"night of {p.record.night.isoformat()} at airmass {w.best_airmass:.2f}: the last night "
+                       f"this setup is chosen."}
+
+
+def _file_part(text: str) -> str:
+    import re
+
+    return re.sub(r"[^A-Za-z0-9.-]+", "_", text)
+
+
+def snr_campaign(plan, folder, _arg):
+    return {"title": "S/N across the campaign", "path": _save(snr_campaign_figure(plan), folder, "snr-campaign"),
+            "caption": "S/N per resolution element reachable in each night's usable time at each setup's "
+                       "reference feature, against days since t0; the dashed line is the target."}
+
+
+FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": spectral_figure,
+           "snr": snr_spectrum, "snr-campaign": snr_campaign}
+
+
+def snr_campaign_figure(plan):
+    """S/N reachable in the usable window vs epoch, one line per setup (the plan's own numbers)."""
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(9, 4.6))
+    fig.subplots_adjust(left=0.09, right=0.98, bottom=0.12, top=0.92)
+    target = plan.settings["snr_target"]
+    series = {}
+    for p in plan.nights:
+        for o in p.outcomes:
+            if o.snr is not None:
+                series.setdefault(o.setup, []).append((p.phase_d, max(o.snr, 1e-2), o is p.choice))
+    colours = plt.cm.tab20(np.linspace(0, 1, max(len(series), 2)))
+    for (sid, pts), colour in zip(sorted(series.items()), colours):
+        pts.sort()
+        x, y, chosen = (np.array(v) for v in zip(*pts))
+        ax.plot(x, y, "-", color=colour, lw=1.1, alpha=0.85, label=sid)
+        ax.plot(x[chosen.astype(bool)], y[chosen.astype(bool)], "o", color=colour, ms=5, mec="black", mew=0.6)
+    ax.axhline(target, color="0.2", ls="--", lw=1)
+    ax.set_yscale("log")
+    ax.set_xlabel("days since t0")
+    ax.set_ylabel("S/N per resolution element in the usable window")
+    ax.set_title("Reachable S/N per setup (circled: the setup chosen that night)", fontsize=10)
+    ax.grid(alpha=0.3, which="both")
+    if series:
+        ax.legend(fontsize=6.5, ncol=2, loc="upper right", frameon=False)
+    return fig
 
 
 # ---------------------------------------------------------------------------- document
