@@ -82,7 +82,7 @@ def feature_windows(rest_blue_A, rest_red_A, rest_trough_A, v_phot_c, v_max_c, r
     redshift : float
         Cosmological redshift z; observed = emitted x (1 + z).
     """
-    z = float(check_range("redshift", redshift, 0.0, 2.0))
+    z = float(check_range("redshift", redshift, 0.0, 10.0))
     vp, vm = check_velocities(v_phot_c, v_max_c)
     d_ph = doppler_factor(vp)[..., None]
     d_max = doppler_factor(vm)[..., None]

@@ -127,12 +127,6 @@ class LineList:
                                bool(np.any(self.uncertain[list(idx)]))))
         return out
 
-    def rows(self) -> list[dict]:
-        """One JSON-ready dict per line (for listings and documents)."""
-        keys = ("feature", "species", "element", "ion_stage", "wavelength_A", "E_low_eV", "gf", "uncertain", "source")
-        return [{k: getattr(self, k)[i].item() if hasattr(getattr(self, k)[i], "item") else getattr(self, k)[i]
-                 for k in keys} for i in range(len(self))]
-
 
 def _read_ecsv(path: Path):
     from astropy.table import Table
