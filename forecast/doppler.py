@@ -54,13 +54,18 @@ class FeatureWindows:
         return self.emission_hi_A
 
 
-def check_velocities(v_phot_c, v_max_c, what: str = "v_phot_c/v_max_c"):
-    """Both velocities in (0, MAX_BETA) and v_phot < v_max everywhere; returns float arrays."""
+def check_velocities(v_phot_c, v_max_c, what: str = "v_phot_c/v_max_c", strict: bool = False):
+    """Both velocities in (0, MAX_BETA) and v_phot <= v_max everywhere (< with ``strict``); float arrays.
+
+    A model photosphere may sit at the outer edge of the ejecta (v_phot = v_max, the
+    limiting case of an empty line-forming shell); a what-if override must leave a shell.
+    """
     vp = np.asarray(check_range("v_phot_c", v_phot_c, 0.0, MAX_BETA, low_open=True, high_open=True), dtype=float)
     vm = np.asarray(check_range("v_max_c", v_max_c, 0.0, MAX_BETA, low_open=True, high_open=True), dtype=float)
     vp, vm = np.broadcast_arrays(vp, vm)
-    if np.any(vp >= vm):
-        i = np.flatnonzero((vp >= vm).ravel())[0]
+    bad = (vp >= vm) if strict else (vp > vm)
+    if np.any(bad):
+        i = np.flatnonzero(bad.ravel())[0]
         raise ForecastInputError(f"{what}: photospheric velocity {vp.ravel()[i]:g} c must be below the outer "
                                  f"velocity {vm.ravel()[i]:g} c")
     return vp, vm

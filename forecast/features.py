@@ -43,7 +43,8 @@ def epochs_from(source, phases_d=None, vphot_c=None, vmax_c=None) -> Epochs:
     """Epochs from a ``forecast.source.Transient`` (evaluated at ``phases_d``) or an ``Epochs``.
 
     ``vphot_c`` / ``vmax_c`` (fractions of c) replace the model's velocities at
-    every epoch (what-if questions); the result must keep 0 < v_phot < v_max < 0.8.
+    every epoch (what-if questions); the result must keep 0 < v_phot < v_max < 0.8
+    (the model's own velocities may have v_phot = v_max: a photosphere at the outer edge).
     """
     if isinstance(source, Epochs):
         ep = source
@@ -57,7 +58,8 @@ def epochs_from(source, phases_d=None, vphot_c=None, vmax_c=None) -> Epochs:
                                                                              low_open=True, high_open=True)))
     vm = ep.v_max_c if vmax_c is None else np.full(n, float(check_range("vmax_c", vmax_c, 0.0, 0.8,
                                                                            low_open=True, high_open=True)))
-    vp, vm = check_velocities(vp, vm, what=_velocity_source(vphot_c, vmax_c))
+    vp, vm = check_velocities(vp, vm, what=_velocity_source(vphot_c, vmax_c),
+                              strict=vphot_c is not None or vmax_c is not None)
     return Epochs(ep.phase_d, ep.age_d, ep.temperature_K, vp, vm, ep.redshift, ep.ejecta_mass_msun)
 
 

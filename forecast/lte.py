@@ -2,13 +2,15 @@
 
 The estimate, evaluated at the photosphere of each epoch:
 
-1. Density.  Homologous ejecta with a power-law profile in velocity,
-   rho(v, t) = A v^-n t^-3 between an inner velocity v_in and v_max, normalized
-   so that the ejecta mass M lies between those velocities:
-   M = 4 pi A (v_max^(3-n) - v_in^(3-n)) / (3 - n)   (n != 3; A ln(v_max / v_in) for n = 3),
-   and evaluated at the photosphere, rho(v_ph, t).  v_in = min(inner_velocity_c,
-   v_ph) with inner_velocity_c from the abundance file (default 0.05 c): a fixed
-   profile, so the density at the photosphere stays finite when v_ph nears v_max.
+1. Density.  Homologous ejecta, rho(v, t) = rho_v(v) t^-3, with a broken power law in
+   velocity: flat inside an inner velocity v_in, rho_v = A v^-n between v_in and v_max
+   (a flat core under a power-law envelope; common practice for simple ejecta models),
+   normalized so that the ejecta mass M lies inside v_max:
+   M = 4 pi A [v_in^(3-n) / 3 + (v_max^(3-n) - v_in^(3-n)) / (3 - n)]
+   (the second term is ln(v_max / v_in) for n = 3), evaluated at the photosphere,
+   rho(v_ph, t).  n and v_in come from the abundance file (defaults 3 and 0.05 c).
+   The profile is fixed in velocity, so the density stays finite both when v_ph
+   approaches v_max and when the photosphere recedes into the core.
 2. Ionization.  Saha equation for each pair of stages (Saha 1920; e.g. Rybicki &
    Lightman 1979, eq. 9.45; Carroll & Ostlie, An Introduction to Modern Astrophysics,
    eq. 8.8, from memory):
@@ -222,21 +224,23 @@ def solve_electron_density(temperature_K, n_atoms_cm3, chi_eV, partition, iterat
 
 
 def photospheric_density(ejecta_mass_g, v_phot_c, v_max_c, age_s, density_index=3.0, inner_velocity_c=0.05):
-    """Mass density (g cm^-3) at v_ph of a rho = A v^-n t^-3 profile holding the mass between v_in and v_max.
+    """Mass density (g cm^-3) at v_ph: flat core inside v_in, rho = A v^-n t^-3 from v_in to v_max.
 
-    v_in = min(inner_velocity_c, v_phot_c); all velocities as fractions of c, ``age_s`` in s.
+    The profile holds ``ejecta_mass_g`` inside v_max; velocities are fractions of c
+    (v_in capped at v_max), ``age_s`` in s.  Vectorized over epochs.
     """
     n = float(density_index)
     vp = np.asarray(v_phot_c, dtype=float) * _C
     vm = np.asarray(v_max_c, dtype=float) * _C
-    vi = np.minimum(float(inner_velocity_c) * _C, vp)
+    vi = np.minimum(float(inner_velocity_c) * _C, vm)
     t = np.asarray(age_s, dtype=float)
+    core = vi ** (3.0 - n) / 3.0
     if abs(n - 3.0) < 1e-9:
-        shell = np.log(vm / vi)
+        envelope = np.log(vm / vi)
     else:
-        shell = (vm ** (3.0 - n) - vi ** (3.0 - n)) / (3.0 - n)
-    a = np.asarray(ejecta_mass_g, dtype=float) / (4.0 * np.pi * shell)
-    return a * vp ** (-n) / t**3
+        envelope = (vm ** (3.0 - n) - vi ** (3.0 - n)) / (3.0 - n)
+    a = np.asarray(ejecta_mass_g, dtype=float) / (4.0 * np.pi * (core + envelope))
+    return a * np.maximum(vp, vi) ** (-n) / t**3
 
 
 def sobolev_tau(gf, wavelength_A, E_low_eV, n_ion_cm3, partition_ion, temperature_K, age_s):
@@ -281,8 +285,8 @@ def lte_state(temperature_K, age_d, v_phot_c, v_max_c, ejecta_mass_msun, composi
     age_s = np.atleast_1d(np.asarray(check_range("age_d", age_d, 0.0, low_open=True, unit=" d"), dtype=float)) * 86400.0
     mass_g = float(check_range("ejecta_mass_msun", ejecta_mass_msun, 0.0, 10.0, low_open=True)) * _MSUN
     vp, vm = np.broadcast_arrays(np.atleast_1d(np.asarray(v_phot_c, float)), np.atleast_1d(np.asarray(v_max_c, float)))
-    if np.any(vp >= vm) or np.any(vp <= 0):
-        raise ForecastInputError("LTE estimate: need 0 < v_phot_c < v_max_c at every epoch")
+    if np.any(vp > vm) or np.any(vp <= 0):
+        raise ForecastInputError("LTE estimate: need 0 < v_phot_c <= v_max_c at every epoch")
     rho = photospheric_density(mass_g, vp, vm, age_s, composition.density_index, composition.inner_velocity_c)
     n_atoms = rho[:, None] * composition.mass_fraction[None, :] / (composition.mass_u[None, :] * _M_U)
     ne = solve_electron_density(t, n_atoms, composition.chi_eV, composition.partition)

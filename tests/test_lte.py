@@ -64,14 +64,16 @@ def test_single_element_solution_by_hand():
 
 
 def test_density_profile_holds_the_mass():
-    # integral of 4 pi v^2 t^3 rho(v) dv over [v_in, v_max] equals the ejecta mass
+    # integral of 4 pi v^2 t^3 rho(v) dv over [0, v_max] equals the ejecta mass (flat core inside v_in)
     mass_g, t_s = 0.04 * MSUN_G, 2.0 * 86400.0
+    v = np.linspace(0.0, 0.35, 200001)
     for n in (2.0, 3.0, 4.5):
-        rho_ph = photospheric_density(mass_g, 0.2, 0.35, t_s, n, inner_velocity_c=0.05)
-        v = np.linspace(0.05, 0.35, 20001) * C_CM_S
-        rho = rho_ph * (v / (0.2 * C_CM_S)) ** (-n)
-        total = np.trapezoid(4 * np.pi * v**2 * t_s**3 * rho, v)
+        rho = photospheric_density(mass_g, np.maximum(v, 1e-9), 0.35, t_s, n, inner_velocity_c=0.05)
+        total = np.trapezoid(4 * np.pi * (v * C_CM_S) ** 2 * t_s**3 * rho, v * C_CM_S)
         assert total == pytest.approx(mass_g, rel=1e-6)
+        # power law outside the core, flat inside
+        r = photospheric_density(mass_g, np.array([0.01, 0.05, 0.1, 0.2]), 0.35, t_s, n, inner_velocity_c=0.05)
+        assert r[0] == pytest.approx(r[1]) and r[2] / r[3] == pytest.approx(2.0**n)
 
 
 def test_density_scales_as_t_minus_3():
@@ -108,7 +110,7 @@ def test_ground_term_weights():
 def test_bad_inputs(comp):
     with pytest.raises(ForecastInputError, match="temperature_K"):
         lte_state([100.0], [1.0], 0.2, 0.3, 0.04, comp)
-    with pytest.raises(ForecastInputError, match="v_phot_c < v_max_c"):
+    with pytest.raises(ForecastInputError, match="v_phot_c <= v_max_c"):
         lte_state([5000.0], [1.0], 0.3, 0.2, 0.04, comp)
     with pytest.raises(ForecastInputError, match="ejecta_mass_msun"):
         lte_state([5000.0], [1.0], 0.2, 0.3, 0.0, comp)
