@@ -87,3 +87,11 @@ def test_epoch_rows_json_ready(setups, tellurics):
     rows = forecast_features(_epochs(2), None, None, s, tellurics, setup_ids=ids).epoch_rows()
     text = json.dumps(rows, allow_nan=False)
     assert '"tau_sobolev": null' in text  # Cs I and [Te III] have no strength estimate
+
+
+def test_model_photosphere_at_the_outer_edge_is_allowed():
+    # early times: a model photosphere may sit at v_max; what-if overrides must leave a shell
+    fc = forecast_features(_epochs(2, 0.35, 0.35), None, None, [])
+    assert np.all(np.isfinite(fc.lte.density_g_cm3))
+    with pytest.raises(ForecastInputError, match="below the outer velocity"):
+        epochs_from(_epochs(), vphot_c=0.3, vmax_c=0.3)
