@@ -48,7 +48,7 @@ def write_map(path: Path, nside: int) -> None:
 
 
 def main() -> int:
-    from planner.coverage import compute_coverage
+    from planner.skycoverage import compute_coverage
     from planner.events import parse_time_utc
     from planner.sites import SiteRegistry
     from planner.skymap import load_skymap

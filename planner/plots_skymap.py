@@ -16,7 +16,7 @@ RA_STEP_DEG, DEC_STEP_DEG = 1.0, 1.0
 
 
 def coverage_figure(result):
-    """A matplotlib Figure for a :class:`planner.coverage.CoverageResult`."""
+    """A matplotlib Figure for a :class:`planner.skycoverage.CoverageResult`."""
     import matplotlib
 
     matplotlib.use("Agg")

@@ -79,3 +79,20 @@ def test_single_position_event_ranks_itself(registry):
     event = load_event(DEMO / "kn-demo-south.toml")
     night = rank_candidates(event, registry.select(["paranal"]), nights=1)[0]
     assert len(night.ranking) == 1 and night.ranking[0].candidate.id == event.id
+
+
+def test_visibility_command_candidates_table_and_json(tmp_path, run_cli):
+    import json
+
+    out_json = tmp_path / "v.json"
+    status, out, err = run_cli("visibility", "--event", DEMO / "kn-demo-candidates.toml", "--sites", "paranal",
+                               "--nights", "2", "--candidates", "--json", out_json)
+    assert status == 0, err
+    assert "Candidates ranked" in out and "cand-a" in out
+    doc = json.loads(out_json.read_text())
+    assert len(doc["candidates"]) == len(doc["nights"]) == 2
+    first = doc["candidates"][1]["candidates"][0]
+    assert {"rank", "id", "hours", "best_airmass", "best_utc", "moon_sep_deg", "note"} <= set(first)
+    status, out, err = run_cli("visibility", "--event", DEMO / "kn-demo-candidates.toml", "--sites", "paranal",
+                               "--nights", "1", "--json", out_json)
+    assert status == 0 and "candidates" not in json.loads(out_json.read_text())

@@ -252,7 +252,7 @@ def test_galactic_map_is_turned_to_icrs(tmp_path):
 
 # --- coverage with known answers -------------------------------------------------
 def test_south_polar_cap_seen_from_south_not_from_north(tmp_path, registry):
-    from planner.coverage import compute_coverage
+    from planner.skycoverage import compute_coverage
 
     nside = 32
     m = load_skymap(write_flat(tmp_path / "cap.fits", cap_prob(nside, dec_max_deg=-80), nside))
@@ -273,7 +273,7 @@ def test_south_polar_cap_seen_from_south_not_from_north(tmp_path, registry):
 
 
 def test_polar_night_at_the_pole_is_a_declination_cut(tmp_path):
-    from planner.coverage import compute_coverage
+    from planner.skycoverage import compute_coverage
 
     # At the south pole the altitude of a star equals minus its declination, and in June the Sun
     # (declination +23.4 deg) stays 23 deg below the horizon: 24 h of nautical darkness
@@ -300,7 +300,7 @@ def test_single_pixel_hours_match_visibility_windows(tmp_path, registry, site_id
     from astropy_healpix import lonlat_to_healpix
     import astropy.units as u
 
-    from planner.coverage import compute_coverage
+    from planner.skycoverage import compute_coverage
     from planner.visibility import compute_visibility
 
     nside = 64
@@ -329,7 +329,7 @@ def test_altitudes_agree_with_astropy_altaz(tmp_path, registry):
     from astropy.coordinates import AltAz, EarthLocation, SkyCoord
     from astropy.time import Time
 
-    from planner.coverage import _frame_vectors, _sample_dark_time
+    from planner.skycoverage import _frame_vectors, _sample_dark_time
     from planner.visibility import compute_visibility
 
     site = registry.get("paranal")

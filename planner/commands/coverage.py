@@ -44,7 +44,7 @@ def run(args) -> int:
     skymap, notices = _load(args.map)
     for line in notices:
         print(f"kncast coverage: warning: {line}", file=sys.stderr)
-    from planner.coverage import compute_coverage
+    from planner.skycoverage import compute_coverage
 
     result = compute_coverage(skymap, sites, t0, nights=args.nights, twilight=args.twilight,
                               min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,

@@ -25,6 +25,9 @@ def add_arguments(p) -> None:
                    help="highest airmass (Kasten & Young 1989), in (1, 38]")
     g.add_argument("--min-moon-sep", type=finite_float("--min-moon-sep", 0, 180), metavar="DEG",
                    help="smallest Moon-target separation (0-180 deg)")
+    g.add_argument("--candidates", action="store_true",
+                   help="also rank the event's [[candidate]] positions per site and night (table; "
+                        "'candidates' in --json)")
     add_output_options(p)
 
 
@@ -37,15 +40,29 @@ def run(args) -> int:
     result = compute_visibility(event, sites, nights=args.nights, twilight=args.twilight,
                                 min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
                                 min_moon_sep_deg=args.min_moon_sep)
+    ranking = None
+    if getattr(args, "candidates", False):
+        from planner.candidates import rank_candidates
+
+        ranking = rank_candidates(event, sites, nights=args.nights, twilight=args.twilight,
+                                  min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
+                                  min_moon_sep_deg=args.min_moon_sep)
     if args.plot:
         from planner.plots_campaign import campaign_figure
         from planner.output import save_figure
 
         save_figure(campaign_figure(result), args.plot)
     if args.json:
-        emit_json(args.json, visibility_document(result))
+        doc = visibility_document(result)
+        if ranking is not None:
+            doc["candidates"] = [n.summary() for n in ranking]
+        emit_json(args.json, doc)
     if args.json != "-":
         print_tables(result)
+        if ranking is not None:
+            from planner.candidates import print_ranking
+
+            print_ranking(ranking)
     return 0
 
 
