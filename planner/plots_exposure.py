@@ -34,12 +34,15 @@ def exposure_figure(res: dict):
             if hi_A / 1e4 > lo and lo_A / 1e4 < hi:
                 ax.axvspan(lo_A / 1e4, hi_A / 1e4, color="0.5", alpha=0.1 + 0.35 * float(depth), lw=0)
         ax.axvspan(np.nan, np.nan, color="0.5", alpha=0.3, label="telluric bands")
-    for i, f in enumerate(res["features"][:8]):
+    shown = sorted((f for f in res["features"][:8] if lo <= f["trough_obs_A"] / 1e4 <= hi),
+                   key=lambda f: f["trough_obs_A"])
+    for i, f in enumerate(shown):
         a0, a1 = f["absorption_obs_A"]
         ax.axvspan(a0 / 1e4, a1 / 1e4, ymin=0.93, ymax=1.0, color="tab:red", alpha=0.35, lw=0)
         ax.axvline(f["trough_obs_A"] / 1e4, color="tab:red", lw=0.8, ls=":")
-        ax.text(f["trough_obs_A"] / 1e4, top * (0.9 - 0.06 * (i % 3)), f["feature"], rotation=90, fontsize=7,
-                ha="right", va="top", color="tab:red")
+        ax.text(f["trough_obs_A"] / 1e4, top * (0.9 - 0.2 * (i % 4)), f" {f['feature']}", rotation=90,
+                fontsize=7, ha="right", va="top", color="tab:red",
+                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.6, "pad": 0.5})
     if res["features"]:
         ax.axvspan(np.nan, np.nan, color="tab:red", alpha=0.35, label="feature absorption windows")
     if res["target"]:

@@ -385,6 +385,7 @@ def exposure_document(res: dict) -> dict:
                 "arm": res["grid"].arm_names[int(res["grid"].arm_index[i])],
                 "snr_per_pixel": round(float(e.snr_per_pixel[i]), 4),
                 "snr_per_resel": round(float(e.snr_per_resel[i]), 4),
+                "snr_per_A": round(float(e.snr_per_A[i]), 4),
                 "source_e": round(float(e.source_e[i]), 3), "sky_e": round(float(e.sky_e[i]), 3)}
                for i in range(e.wavelength_A.size) if on[i]]
     doc = document(
