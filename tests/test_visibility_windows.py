@@ -260,3 +260,17 @@ def test_best_airmass_is_the_highest_point(registry, south):
         assert w.best_altitude_deg == pytest.approx(alt.max(), abs=0.01)
         assert w.best_airmass == pytest.approx(float(airmass_from_altitude(alt.max())), abs=1e-3)
         assert w.start.mjd <= w.best_time.mjd <= w.end.mjd
+
+
+def test_polar_night_windows_run_noon_to_noon():
+    # 78.2 N on 20 December: the Sun's highest altitude is 90 - 78.2 - 23.4 = -11.6 deg, below the civil
+    # limit all day (common practice); a Dec +60 target never sets (lowest altitude 78.2 - 30 = 48 deg)
+    site = make_site("polar", lat=78.2, lon=15.6, elevation=500.0, tz="Arctic/Longyearbyen")
+    res = compute_visibility(event(30.0, 60.0, "2026-12-20T00:00:00"), [site], nights=3, twilight="civil")
+    assert astropy_sun_alt(site, Time("2026-12-20T00:00:00").mjd + np.arange(0, 3, 1 / 48)).max() < -6.0
+    for n in res.nights:
+        assert n.dusk is None and n.dawn is None and n.dark_hours == pytest.approx(24.0, abs=0.01)
+        assert "local noon" in n.note
+    later = res.nights[1:]  # after the night clipped at t0: the window fills the whole night
+    for n in later:
+        assert len(n.windows) == 1 and n.windows[0].hours == pytest.approx(24.0, abs=0.01)
