@@ -77,6 +77,12 @@ def _binary(tmp_path):
     return p
 
 
+def _empty(tmp_path):
+    p = tmp_path / "empty.toml"
+    p.write_text("  \n")
+    return p
+
+
 def _bad_site_dir(tmp_path):
     d = tmp_path / "sites"
     d.mkdir()
@@ -107,6 +113,8 @@ BAD = {
     "malformed site file": (lambda tp: [*EVENT, "--sites-dir", _malformed_site_dir(tp)], "broken.toml"),
     "binary event file": (lambda tp: ["--event", _binary(tp)], "binary"),
     "missing event file": (lambda tp: ["--event", tp / "nope.toml"], "nope.toml"),
+    "empty event file": (lambda tp: ["--event", _empty(tp)], "empty"),
+    "missing sites folder": (lambda tp: [*EVENT, "--sites-dir", tp / "no-such-dir"], "--sites-dir"),
     "event and coordinates": (lambda tp: ["--event", tp / "x.toml", *EVENT], "--event"),
     "bad plot suffix": (lambda tp: [*EVENT, "--plot", tp / "chart.gif"], "--plot"),
 }
