@@ -24,6 +24,7 @@ __all__ = ["doppler_factor", "FeatureWindows", "feature_windows", "MAX_BETA"]
 
 #: Largest ejecta speed accepted (fraction of c); faster matter is outside any kilonova model.
 MAX_BETA = 0.8
+_ROUNDING = 1e-9  # a model photosphere computed as R / (c t) may overshoot v_max by rounding
 
 
 def doppler_factor(beta):
@@ -63,12 +64,12 @@ def check_velocities(v_phot_c, v_max_c, what: str = "v_phot_c/v_max_c", strict: 
     vp = np.asarray(check_range("v_phot_c", v_phot_c, 0.0, MAX_BETA, low_open=True, high_open=True), dtype=float)
     vm = np.asarray(check_range("v_max_c", v_max_c, 0.0, MAX_BETA, low_open=True, high_open=True), dtype=float)
     vp, vm = np.broadcast_arrays(vp, vm)
-    bad = (vp >= vm) if strict else (vp > vm)
+    bad = (vp >= vm) if strict else (vp > vm * (1.0 + _ROUNDING))
     if np.any(bad):
         i = np.flatnonzero(bad.ravel())[0]
         raise ForecastInputError(f"{what}: photospheric velocity {vp.ravel()[i]:g} c must be below the outer "
                                  f"velocity {vm.ravel()[i]:g} c")
-    return vp, vm
+    return np.minimum(vp, vm), vm
 
 
 def feature_windows(rest_blue_A, rest_red_A, rest_trough_A, v_phot_c, v_max_c, redshift=0.0) -> FeatureWindows:

@@ -95,3 +95,8 @@ def test_model_photosphere_at_the_outer_edge_is_allowed():
     assert np.all(np.isfinite(fc.lte.density_g_cm3))
     with pytest.raises(ForecastInputError, match="below the outer velocity"):
         epochs_from(_epochs(), vphot_c=0.3, vmax_c=0.3)
+
+
+def test_rounding_overshoot_of_the_model_photosphere_is_clipped():
+    ep = epochs_from(_epochs(2, 0.35 * (1 + 1e-12), 0.35))
+    assert np.all(ep.v_phot_c <= ep.v_max_c)
