@@ -2,9 +2,9 @@
 
 Top: an all-sky Mollweide view (RA increasing to the left, as on the sky)
 of the probability density (square-root stretch, the faintest 1 % left
-clear), the 50 % and 90 % credible contours, the sky observable from at
-least one site in its first night with dark time after t0 (light fill) and
-one coloured outline per site.  Bottom: a grid of sites
+clear), the 50 % and 90 % credible contours and, per site, the sky it can
+observe in its first night with dark time after t0 (shaded and outlined in
+the site's colour; overlaps look darker).  Bottom: a grid of sites
 x nights with the observable probability and probability-weighted hours.
 """
 from __future__ import annotations
@@ -68,21 +68,22 @@ def _sky_panel(ax, result, level):
     skymap = result.skymap
     x, y, density = _raster(skymap, skymap.density_per_sr, level)
     first = _first_nights(result)
-    if first:  # underneath everything: the sky observable from at least one site
-        union = np.any(result.observable[:, list(first.values())], axis=1).astype(float)
-        _, _, img = _raster(skymap, union, level)
-        ax.contourf(x, y, img, levels=[0.5, 1.01], colors=["#f2c14e"], alpha=0.22)
+    colours = plt.get_cmap("tab10")
+    masks = []
+    for k, rec_index in enumerate(first.values()):  # underneath everything: each site's observable sky, shaded
+        _, _, img = _raster(skymap, result.observable[:, rec_index].astype(float), level)
+        masks.append(img)
+        if np.nanmax(img) >= 0.5:
+            ax.contourf(x, y, img, levels=[0.5, 1.01], colors=[colours(k % 10)], alpha=max(0.05, 0.3 / len(first)))
     masked = np.ma.masked_less_equal(density, 0.01 * float(density.max()))  # faint tail left transparent
     ax.pcolormesh(x, y, masked, cmap="Purples", norm=PowerNorm(0.5, vmin=0.0), shading="nearest", rasterized=True)
     _, _, cred = _raster(skymap, _credible_levels(skymap), level)
     cs = ax.contour(x, y, cred, levels=[0.5, 0.9], colors=["#111111", "#555555"], linewidths=[1.2, 0.9],
                     linestyles=["solid", "dashed"])
     ax.clabel(cs, fmt={0.5: "50%", 0.9: "90%"}, fontsize=7)
-    colours = plt.get_cmap("tab10")
     handles = []
     for k, (site_id, rec_index) in enumerate(first.items()):
-        rec = result.nights[rec_index]
-        _, _, img = _raster(skymap, result.observable[:, rec_index].astype(float), level)
+        rec, img = result.nights[rec_index], masks[k]
         colour = colours(k % 10)
         if np.nanmax(img) >= 0.5:
             ax.contour(x, y, img, levels=[0.5], colors=[colour], linewidths=1.0)

@@ -6,7 +6,8 @@ profile of the VOEvent 2.0 Recommendation, IVOA 2011, section 3.5), the
 event's identity in the ``ivorn`` attribute of the root element and, where
 the author gives it, a distance as a ``What/Param``.  What is read:
 
-* ``ivorn`` -> ``Event.id``: the part after ``#`` (or the last path segment).
+* ``ivorn`` -> ``Event.id``: the part after ``#`` (or the last path segment), with
+  characters other than letters, digits and ``._+-`` replaced by ``-``.
 * ``AstroCoords/Position2D`` with ``unit="deg"``: ``Value2/C1`` (RA) and
   ``Value2/C2`` (Dec); ``Error2Radius`` (same unit) -> ``error_radius_deg``.
 * ``AstroCoords/Time/TimeInstant/ISOTime`` -> ``t0``, in the time scale named
@@ -26,6 +27,7 @@ the file and the element.
 from __future__ import annotations
 
 import math
+import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -118,7 +120,10 @@ def _event_id(root: ET.Element, path) -> str:
         raise DataFileError(path, "VOEvent/@ivorn", f"missing or malformed ivorn {ivorn!r}",
                             "ivo://authority/path#local-id")
     local = ivorn.split("#", 1)[1] if "#" in ivorn else ivorn.rstrip("/").rsplit("/", 1)[-1]
-    return local.strip() or ivorn
+    local = re.sub(r"[^A-Za-z0-9._+-]+", "-", local.strip()).strip("-.")  # safe in file and folder names
+    if not local:
+        raise DataFileError(path, "VOEvent/@ivorn", f"no local id in {ivorn!r}", "ivo://authority/path#local-id")
+    return local
 
 
 # --- where and when ------------------------------------------------------

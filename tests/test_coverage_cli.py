@@ -107,3 +107,32 @@ def test_bad_input_exit_2_and_no_output(tmp_path, run_cli, case, words):
 def test_map_is_required(run_cli):
     status, out, err = run_cli("coverage", "--t0", T0)
     assert status == 2 and "--map" in err
+
+
+def test_multi_order_map_with_chart(tmp_path, run_cli):
+    """A UNIQ table mixing levels 3 and 5 (the blob refined, the rest coarse) runs end to end."""
+    from astropy_healpix import healpix_to_xyz
+
+    coarse = np.arange(12 * 4 ** 3)
+    xyz = np.stack(healpix_to_xyz(coarse, 8, order="nested"))
+    c = np.array([math.cos(math.radians(-25)) * math.cos(math.radians(150)),
+                  math.cos(math.radians(-25)) * math.sin(math.radians(150)), math.sin(math.radians(-25))])
+    refine = (c @ xyz) > math.cos(math.radians(15))
+    fine = (coarse[refine][:, None] * 16 + np.arange(16)).ravel()
+    uniq = np.r_[4 * 4 ** 3 + coarse[~refine], 4 * 4 ** 5 + fine]
+    fine_xyz = np.stack(healpix_to_xyz(fine, 32, order="nested"))
+    density = np.r_[np.full((~refine).sum(), 1e-6), np.exp(100 * (c @ fine_xyz - 1))]
+    area = 4 * math.pi / (12 * 4.0 ** np.r_[np.full((~refine).sum(), 3), np.full(fine.size, 5)])
+    density /= np.sum(density * area)
+    hdu = fits.BinTableHDU.from_columns([fits.Column(name="UNIQ", format="K", array=uniq),
+                                         fits.Column(name="PROBDENSITY", format="D", unit="sr-1", array=density)])
+    hdu.header.update({"PIXTYPE": "HEALPIX", "ORDERING": "NUNIQ", "COORDSYS": "C"})
+    path = tmp_path / "moc.fits"
+    fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(path)
+    status, out, err = run_cli("coverage", "--map", path, "--t0", T0, "--sites", "paranal", "--nights", "2",
+                               "--json", tmp_path / "m.json", "--plot", tmp_path / "m.svg")
+    assert status == 0, err
+    doc = json.loads((tmp_path / "m.json").read_text())
+    assert doc["map"]["multi_order"] and doc["map"]["nside"] == 32
+    assert doc["nights"][1]["observable_probability"] > 0.9
+    assert (tmp_path / "m.svg").read_text().lstrip().startswith("<?xml")

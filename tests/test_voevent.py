@@ -80,6 +80,12 @@ def test_default_namespace_grouped_params_and_units(write):
     assert ev.distance_mpc == pytest.approx(0.25) and ev.id == "pkt-1"
 
 
+def test_id_is_made_safe_for_file_names(write):
+    assert load_voevent(write(packet(ivorn="ivo://kncast.example/test#a b/c:d"))).id == "a-b-c-d"
+    with pytest.raises(DataFileError, match="no local id"):
+        load_voevent(write(packet(ivorn="ivo://kncast.example/test#//")))
+
+
 def test_distance_optional_and_id_from_path_without_fragment(write):
     ev = load_voevent(write(packet(params="", ivorn="ivo://kncast.example/test/pkt-7", error="")))
     assert ev.distance_mpc is None and ev.id == "pkt-7" and ev.error_radius_deg is None
