@@ -346,5 +346,6 @@ def test_altitudes_agree_with_astropy_altaz(tmp_path, registry):
     times = Time(cols.mjd, format="mjd", scale="utc")
     frame = AltAz(obstime=times[None, :], location=loc, pressure=0 * u.hPa)
     ref = SkyCoord(ra[:, None] * u.deg, dec[:, None] * u.deg).transform_to(frame).alt.deg
-    # difference: annual aberration (<= 20.5 arcsec) and diurnal aberration, neglected by design
-    assert np.max(np.abs(ours - ref)) < 0.01, np.max(np.abs(ours - ref))
+    # difference: annual aberration (constant of aberration 20.496 arcsec, IAU 1976 / Astronomical
+    # Almanac) and diurnal aberration (0.32 arcsec at the equator), neglected by design: < 25 arcsec
+    assert np.max(np.abs(ours - ref)) < 25.0 / 3600.0
