@@ -123,12 +123,15 @@ def _deg(value, name: str, low: float, high: float, option: str):
 
 
 def compute_visibility(event, sites, nights: int = 3, twilight: str = "nautical", min_altitude_deg=None,
-                       max_airmass=None, min_moon_sep_deg=None, target_index: int = 0) -> VisibilityResult:
+                       max_airmass=None, min_moon_sep_deg=None, target_index: int = 0,
+                       ephemeris: sky.Ephemeris | None = None) -> VisibilityResult:
     """Dusk, dawn and observing windows of ``event`` at each site for ``nights`` local nights from t0.
 
     ``min_altitude_deg`` replaces every site's own pointing limit; ``max_airmass``
     (Kasten & Young 1989) and ``min_moon_sep_deg`` add rules.  ``target_index``
-    picks one of ``event.targets()``.
+    picks one of ``event.targets()``.  The Ephemeris (built for all targets) is
+    reused from ``ephemeris`` (e.g. ``result.ephemeris`` of an earlier call for
+    another target) when it covers the span, so a run builds it only once.
     """
     sites = list(sites)
     if not sites:
@@ -150,8 +153,10 @@ def compute_visibility(event, sites, nights: int = 3, twilight: str = "nautical"
         t0_mjd=float(event.t0.utc.mjd))
 
     dates, bounds = night_bounds_mjd(sites, rules.t0_mjd, nights)
-    eph = sky.Ephemeris.build(bounds.min() - 0.05, bounds.max() + 0.05,
-                              [t.ra_deg for t in targets], [t.dec_deg for t in targets])
+    span = (bounds.min() - 0.05, bounds.max() + 0.05)
+    eph = ephemeris
+    if eph is None or eph.mjd[0] > span[0] or eph.mjd[-1] < span[1] or eph.target_xyz.shape[0] != len(targets):
+        eph = sky.Ephemeris.build(*span, [t.ra_deg for t in targets], [t.dec_deg for t in targets])
     skyq = Sky(eph, sites, target_index)
     n_grid = int(np.ceil((bounds.max() - bounds.min()) * 1440.0 / GRID_STEP_MIN)) + 1
     grid = bounds.min() + np.arange(n_grid) * GRID_STEP_MIN / 1440.0

@@ -274,3 +274,20 @@ def test_polar_night_windows_run_noon_to_noon():
     later = res.nights[1:]  # after the night clipped at t0: the window fills the whole night
     for n in later:
         assert len(n.windows) == 1 and n.windows[0].hours == pytest.approx(24.0, abs=0.01)
+
+
+def test_ephemeris_reused_across_targets(registry):
+    # two candidate positions: the second call reuses the first call's Ephemeris and gives the same
+    # windows as a fresh build
+    from planner.events import Candidate
+
+    ev = Event("two", 160.0, -35.0, Time("2027-03-14T02:17:00", scale="utc"), distance_mpc=100.0,
+               candidates=(Candidate("a", 160.0, -35.0), Candidate("b", 200.0, -20.0)))
+    sites = [registry.get("paranal")]
+    first = compute_visibility(ev, sites, nights=2, target_index=0)
+    reused = compute_visibility(ev, sites, nights=2, target_index=1, ephemeris=first.ephemeris)
+    fresh = compute_visibility(ev, sites, nights=2, target_index=1)
+    assert reused.ephemeris is first.ephemeris
+    got = [(w.start.mjd, w.end.mjd) for _, w in reused.windows()]
+    want = [(w.start.mjd, w.end.mjd) for _, w in fresh.windows()]
+    assert np.allclose(got, want, atol=ONE_S)
