@@ -168,7 +168,7 @@ def figure_jobs(plan) -> list[tuple]:
     """(figure kind, argument, relative cost) in report order."""
     jobs = [("campaign", None, 2), ("lightcurve", None, 1)]
     chosen = sorted(plan.useful(), key=lambda p: p.phase_d)
-    jobs += [("spectrum", day, 1 + sum(int(p.phase_d) == day for p in chosen))
+    jobs += [("spectrum", day, 1 + len(epoch_groups([p for p in chosen if int(p.phase_d) == day])))
              for day in sorted({int(p.phase_d) for p in chosen})]
     jobs += [("snr", sid, 1) for sid in snr_figure_setups(plan)]
     if any(o.snr is not None for p in plan.nights for o in p.outcomes):
@@ -197,30 +197,47 @@ def light_curve(plan, folder, _arg):
                        + ("epochs with a useful spectrum." if plan.useful() else "planned epochs.")}
 
 
+SAME_EPOCH_D = 0.05  # chosen epochs closer than this (1.2 h) share one spectral panel
+
+
+def epoch_groups(nights: list) -> list[list]:
+    """Chosen nights in phase order, grouped where consecutive epochs lie within SAME_EPOCH_D."""
+    groups = []
+    for p in sorted(nights, key=lambda n: n.phase_d):
+        if groups and p.phase_d - groups[-1][-1].phase_d < SAME_EPOCH_D:
+            groups[-1].append(p)
+        else:
+            groups.append([p])
+    return groups
+
+
 def spectral_figure(plan, folder, day):
-    """One spectral forecast panel per chosen epoch of days [day, day + 1) since t0 (the lines chart)."""
+    """One spectral forecast panel per chosen epoch of days [day, day + 1) since t0 (the lines chart);
+    epochs within SAME_EPOCH_D of each other share a panel."""
     from forecast.features import forecast_features
     from planner.plots_lines import lines_figure
 
     refs = {r.id: r for r in plan.setup_refs}
-    group = sorted((p for p in plan.useful() if int(p.phase_d) == day), key=lambda p: p.phase_d)
-    group_refs = list({p.choice.setup: refs[p.choice.setup] for p in group}.values())
-    airmass = float(np.median([p.window.best_airmass for p in group]))
-    pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in group]))
-    fc = forecast_features(plan.transient, np.array([p.phase_d for p in group]),
+    groups = epoch_groups([p for p in plan.useful() if int(p.phase_d) == day])
+    members = [p for g in groups for p in g]
+    group_refs = list({p.choice.setup: refs[p.choice.setup] for p in members}.values())
+    airmass = float(np.median([p.window.best_airmass for p in members]))
+    pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in members]))
+    fc = forecast_features(plan.transient, np.array([g[0].phase_d for g in groups]),
                            setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
                            pwv_mm=pwv, setup_ids=[r.id for r in group_refs])
     fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
-                       f"{plan.event.id}, days {day}-{day + 1}")
-    words = "; ".join(f"day {p.phase_d:.2f}: {p.site.id}, night of {p.record.night.isoformat()}, "
-                      f"{p.choice.setup}" for p in group)
+                       f"Days {day}-{day + 1}")
+    words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
+                                                              for p in g) for g in groups)
     return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
-            "path": _save(fig, folder, f"spectrum-day{day:02d}", tight=True),
-            "caption": f"One panel per chosen epoch, top to bottom ({words}); bottom: the chosen setups' "
-                       f"coverage. Telluric bands drawn at airmass {airmass:.2f}, PWV {pwv:g} mm."}
+            "path": _save(fig, folder, f"spectrum-day{day:02d}"),
+            "caption": f"One panel per chosen epoch, top to bottom (epochs within {SAME_EPOCH_D * 24:.1f} h share a "
+                       f"panel): {words}. Bottom: the chosen setups' coverage. Telluric bands drawn at airmass "
+                       f"{airmass:.2f}, PWV {pwv:g} mm."}
 
 
-MAX_SNR_FIGURES = 6
+MAX_SNR_FIGURES = 4
 
 
 def snr_figure_setups(plan) -> list[str]:
