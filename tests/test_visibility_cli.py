@@ -6,7 +6,7 @@ import re
 
 import pytest
 
-EVENT = ["--ra", "10:42:30", "--dec=-35:12:00", "--t0", "2027-03-14T02:17:00Z"]  # "=" because of the leading minus
+EVENT = ["--ra", "10:42:30", "--dec", "-35:12:00", "--t0", "2027-03-14T02:17:00Z"]
 ISO_Z = re.compile(r"^\d{4}-\d\d-\d\dT\d\d:\d\d:\d\dZ$")
 
 # key lists exactly as written in the visibility issue
@@ -63,6 +63,15 @@ def test_terminal_table_and_plot(run_cli, tmp_path, demo_event_path):
     assert status == 0, err
     assert "paranal" in out and "siding-spring" in out and "best X" in out
     assert plot.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+
+
+@pytest.mark.parametrize("dec", [["--dec", "-35:12:00"], ["--dec=-35:12:00"], ["--dec", "-35d12m00s"],
+                                 ["--dec", "-35.2"]])
+def test_negative_sexagesimal_declination_is_a_value(run_cli, dec):
+    status, out, err = run_cli("visibility", "--ra", "160.625", *dec, "--t0", "2027-03-14T02:17:00Z",
+                               "--sites", "pachon", "--nights", "1", "--json", "-")
+    assert status == 0, err
+    assert json.loads(out)["event"]["dec_deg"] == pytest.approx(-35.2)
 
 
 def test_json_to_stdout(run_cli):

@@ -5,6 +5,7 @@ Everything here is light to import; heavy modules load inside functions.
 from __future__ import annotations
 
 import argparse
+import re
 import sys
 
 from planner.errors import InputError, OptionError
@@ -12,6 +13,8 @@ from planner.errors import InputError, OptionError
 
 def add_event_options(p: argparse.ArgumentParser, distance: bool = True) -> None:
     """``--event FILE`` or ``--ra/--dec/--t0 [--distance-mpc]``."""
+    # a word like "-35:12:00" or "-35d12m" is a value, not an option (argparse only knows plain numbers)
+    p._negative_number_matcher = re.compile(r"^-\.?\d")
     g = p.add_argument_group("event (a file, or position and time)")
     g.add_argument("--event", metavar="FILE", help="event file (TOML, or VOEvent XML)")
     g.add_argument("--ra", help="right ascension: degrees, or sexagesimal hours '10:42:30'")
