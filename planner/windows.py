@@ -14,6 +14,7 @@ without a window get a one-line reason from :func:`night_notes`.
 """
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass
 
 import numpy as np
@@ -35,7 +36,7 @@ class Rules:
     min_moon_sep_deg: float | None
     t0_mjd: float
 
-    @property
+    @functools.cached_property
     def airmass_altitude_deg(self) -> float:
         """Lowest altitude (deg) allowed by ``max_airmass`` (Kasten & Young), -90 if unset."""
         if self.max_airmass is None:
