@@ -12,9 +12,14 @@ its own:
    (:func:`planner.source.transient_for_event`, ``Transient.state``);
 3. per epoch and setup: which strong features are clear (the feature
    forecast of :mod:`forecast.features`), batched over epochs per setup;
-4. per epoch and setup: the S/N reachable at the strongest clear feature in
-   the usable time, and the exposure time for the target S/N
-   (:mod:`forecast.exposure`), batched over epochs per setup.
+4. per epoch and setup: the S/N reachable at the reference feature in the
+   usable time, and the exposure time for the target S/N there
+   (:mod:`forecast.exposure`), batched over the setups of a site.
+
+The reference feature of a setup is the clear strong feature whose trough
+gets the highest S/N.  Every strong feature (Sobolev tau >= ``STRONG_TAU``)
+is optically thick, so ranking them further by tau says little about what
+can be measured; what limits the measurement is the signal at the trough.
 
 Usable time = min(window hours, ``max_hours``) minus the acquisition and
 readout overhead.
@@ -26,7 +31,7 @@ The score (documented in ``docs/plan.md``)::
 where ``N_clear_strong`` is the number of strong features (Sobolev optical
 depth >= ``STRONG_TAU``) that the setup sees clear (verdict "clear") and
 ``S/N_window`` the S/N per resolution element reachable in the usable time at
-the strongest clear feature's absorption trough.  Only setups that reach the
+the reference feature's absorption trough.  Only setups that reach the
 target S/N there are eligible; the highest score wins (ties: the shorter
 exposure).  A night where no setup is eligible says why in words.
 """
@@ -44,6 +49,7 @@ STRONG_TAU = 1.0  # Sobolev optical depth above which a feature counts as strong
 DEFAULT_SNR = 10.0
 DEFAULT_MAX_HOURS = 4.0
 DEFAULT_OVERHEAD_S = 900.0
+MAG_BANDS = ("bessell-R", "bessell-I", "twomass-J")  # model AB magnitudes quoted per epoch (speclite names)
 MAX_EXPOSURE_S = 1800.0  # longest single exposure (cosmic rays, sky variation; common practice)
 
 STATUS_WORDS = {
@@ -66,7 +72,7 @@ class SetupOutcome:
     n_strong: int = 0
     strong: list = field(default_factory=list)  # strong feature ids, strongest first
     clear: list = field(default_factory=list)   # strong ids the setup sees clear, strongest first
-    feature: str | None = None                   # strongest clear feature
+    feature: str | None = None                   # reference feature: the clear strong one with the best S/N
     species: str | None = None
     trough_obs_A: float | None = None
     tau_sobolev: float | None = None
@@ -174,8 +180,10 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     if epochs:
         phases = np.array([p.phase_d for p in epochs])
         state = transient.state(phases)
+        mags = transient.mag_ab(phases, MAG_BANDS)
         for k, p in enumerate(epochs):
             p.photosphere = _state_row(state, k)
+            p.photosphere["mag_ab"] = {b: round(float(mags[b][k]), 3) for b in MAG_BANDS}
     plan = Plan(event=event, sites=sites, settings=settings, visibility=vis, transient=transient, nights=plans,
                 model=_model_summary(transient), setup_refs=refs)
     say("line features")
@@ -476,8 +484,8 @@ def night_label(night: dt.date) -> str:
 # ---------------------------------------------------------------------------- documents and tables
 SCORE_DEFINITION = ("score = N_clear_strong x S/N_window: the number of strong features (tau_sobolev >= "
                     f"{STRONG_TAU:g}) the setup sees clear, times the S/N per resolution element reachable in the "
-                    "usable time at the strongest clear feature's trough; only setups reaching the target S/N "
-                    "are eligible; ties go to the shorter exposure")
+                    "usable time at the reference feature's trough (the clear strong feature with the best S/N); "
+                    "only setups reaching the target S/N are eligible; ties go to the shorter exposure")
 
 
 def _r(value, digits: int = 4):

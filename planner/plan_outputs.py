@@ -111,7 +111,8 @@ def write_tables(plan, folder: Path) -> dict:
            f"{plan.settings['strong_tau']:g}; clear: strong and verdict 'clear')")
     _table(exposure_rows(plan), EXPOSURE_COLUMNS, folder / "exposures.ecsv",
            "kncast plan: S/N per resolution element reachable in the usable window and exposure for the "
-           "target S/N at the strongest clear feature, per site-night epoch and setup")
+           "target S/N at the reference feature (the clear strong feature with the best S/N), per site-night "
+           "epoch and setup")
     return {"windows": "windows.ecsv", "features": "features.ecsv", "exposures": "exposures.ecsv"}
 
 
@@ -324,16 +325,25 @@ def assumptions(plan) -> list[str]:
     """The assumptions behind the numbers, in words."""
     st = plan.settings
     model = plan.model or {}
-    params = ", ".join(f"{k} = {v}" for k, v in (model.get("parameters") or {}).items()
-                       if not isinstance(v, (list, dict)))
+    raw = model.get("parameters") or {}
+    params = ", ".join(f"{k} = {v}" for k, v in raw.items() if not isinstance(v, (list, dict)))
+    comps = [c for c in raw.get("component", []) if isinstance(c, dict)]
+    if comps:
+        params = "; ".join(f"{c.get('name', '?')}: {c.get('mass_msun')} Msun at {c.get('velocity_c')} c, "
+                           f"opacity {c.get('opacity_cm2_g')} cm^2/g, floor {c.get('temperature_floor_K')} K"
+                           for c in comps) + (f"; {params}" if params else "")
     return [
         f"Photosphere model '{model.get('name', '?')}'" + (f" ({params})" if params else "") + ".",
         f"Nights are local nights from t0; darkness ends at {st['twilight']} twilight; each night is planned on "
-        "its longest window; the epoch is the middle of the observing block (centred on the best-airmass time, kept inside the window); airmass and Moon geometry are taken at the best-airmass time.",
+        "its longest window; the epoch is the middle of the observing block (centred on the best-airmass time, "
+        "kept inside the window); airmass and Moon geometry are taken at the best-airmass time.",
         f"Usable time per night = min(window, {st['max_hours']:g} h) minus {st['overhead_s'] / 60:.0f} min of "
         "acquisition and readout overhead.",
-        f"S/N is per resolution element at the absorption trough of the strongest clear feature; target "
-        f"S/N {st['snr_target']:g}.",
+        f"S/N is per resolution element at the absorption trough of the reference feature (the clear strong "
+        f"feature with the best S/N; all strong features are optically thick), on the model continuum (line "
+        f"depths not applied); target S/N {st['snr_target']:g}.",
+        "Exposures are split into single exposures of at most 30 min; seeing, water vapour and extinction "
+        "come from each site's [atmosphere] table (or the defaults).",
         f"A feature is strong when its Sobolev optical depth is >= {st['strong_tau']:g} (LTE estimate) and "
         "clear when the setup covers it outside detector gaps and telluric bands.",
         "Score = number of clear strong features x S/N reachable in the usable time; only setups reaching the "

@@ -53,6 +53,8 @@ MODEL_MODULES = (
 )
 
 # An author-year citation: "Kasten & Young 1989", "Korobkin et al. (2012)", "Benn & Ellison 1998, ...".
+MAG_COLUMNS = ("bessell-R", "bessell-I", "twomass-J")
+
 _CITATION = re.compile(
     r"\b((?:[A-Z][A-Za-z'\-]+)(?:,? (?:&|and) [A-Z][A-Za-z'\-]+| et al\.)?,? \(?(?:19|20)\d{2}[a-z]?\)?"
     r"(?:,? (?:[A-Z][A-Za-z&.]+ ?)+\d+(?:, ?\d+)?)?)"
@@ -190,26 +192,42 @@ def _summary(doc: dict) -> list[Block]:
     return out
 
 
+def _moon_words(ep: dict) -> str:
+    if ep["moon_altitude_deg"] is not None and ep["moon_altitude_deg"] <= 0:
+        return "down"
+    return f"{100 * ep['moon_illumination']:.0f}% at {ep['moon_sep_deg']:.0f} deg"
+
+
+def _window_words(ep: dict) -> str:
+    return f"{_hm(ep['window_start_utc'])} - {_hm(ep['window_end_utc'])[6:]}"
+
+
 def _night_table(doc: dict) -> list[Block]:
+    useful = sorted((n for n in doc["nights"] if n.get("choice")), key=lambda n: n["epoch"]["phase_d"])
+    out = [Block("h2", "Recommended observations"),
+           Block("p", "Every site and night where a setup reaches the target S/N, in order of epoch (days since t0 "
+                      "at the middle of the observing block). Exposure: the time for the target S/N at the "
+                      "reference feature's trough; S/N in window: what the whole usable window would give there.")]
+    if useful:
+        rows = [[f"{n['epoch']['phase_d']:.2f}", n["site"], n["night"], _window_words(n["epoch"]),
+                 f"{n['epoch']['airmass']:.2f}", _moon_words(n["epoch"]), n["choice"]["setup"],
+                 f"{n['choice']['feature']} ({n['choice']['trough_obs_A']:.0f} A)", _exposure_words(n["choice"]),
+                 _fmt(n["choice"]["snr"], ".1f")] for n in useful]
+        out.append(Block("table", header=["Day", "Site", "Night", "Window (UTC)", "Airmass", "Moon", "Setup",
+                                          "Feature (trough)", "Exposure", "S/N in window"], items=rows))
+    else:
+        out.append(Block("p", "None: no site and night reaches the target S/N at a clear strong feature."))
     rows = []
     for n in doc["nights"]:
         ep, ch = n.get("epoch"), n.get("choice")
-        rows.append([
-            n["site"], n["night"],
-            _fmt(ep and ep["phase_d"], ".2f"),
-            f"{_hm(ep['window_start_utc'])} - {_hm(ep['window_end_utc'])[6:]}" if ep else "-",
-            _fmt(ep and ep["airmass"], ".2f"),
-            ch["setup"] if ch else "-",
-            _exposure_words(ch) if ch else "-",
-            _fmt(ch and ch["snr"], ".1f"),
-            n["reason"],
-        ])
-    return [Block("h2", "Night by night"),
-            Block("p", "The chosen setup per site and night, with the epoch (days since t0 at the middle of the "
-                       "observing block), the window used (UTC), its best airmass, the exposure for the target S/N at "
-                       "the strongest clear feature and the S/N reachable in the whole usable window."),
+        rows.append([n["site"], n["night"], _fmt(ep and ep["phase_d"], ".2f"), _window_words(ep) if ep else "-",
+                     _fmt(ep and ep["airmass"], ".2f"), ch["setup"] if ch else "-",
+                     _exposure_words(ch) if ch else "-", _fmt(ch and ch["snr"], ".1f"), n["reason"]])
+    out += [Block("h2", "Night by night"),
+            Block("p", "Every site and night with the choice and the reason in words."),
             Block("table", header=["Site", "Night", "Day", "Window (UTC)", "Airmass", "Setup", "Exposure",
                                    "S/N in window", "Reason"], items=rows)]
+    return out
 
 
 def _campaign(doc: dict) -> list[Block]:
@@ -243,12 +261,22 @@ def _justification(doc: dict) -> list[Block]:
         if not ch:
             continue
         ph = ep["photosphere"]
+        mags = ph.get("mag_ab") or {}
         rows.append([n["site"], n["night"], f"{ep['phase_d']:.2f}", ch["setup"], _fmt(ph.get("temperature_K"), ".0f"),
+                     " / ".join(_fmt(mags.get(b), ".1f") for b in MAG_COLUMNS),
                      ch["feature"] or "-", _fmt(ch["trough_obs_A"], ".0f"), _exposure_words(ch),
                      f"{st['snr_target']:g}", _fmt(ch["snr"], ".1f"), _fmt(ep["airmass"], ".2f")])
     if rows:
-        out.append(Block("table", header=["Site", "Night", "Day", "Setup", "T (K)", "Feature", "Trough (A)",
-                                          "Exposure", "Target S/N", "S/N in window", "Airmass"], items=rows))
+        out.append(Block("table", header=["Site", "Night", "Day", "Setup", "T (K)", "AB mag R / I / J", "Feature",
+                                          "Trough (A)", "Exposure", "Target S/N", "S/N in window", "Airmass"],
+                         items=rows))
+        chosen = [n for n in doc["nights"] if n.get("choice")]
+        on_source = sum(n["choice"]["time_for_target_s"] or 0.0 for n in chosen) / 3600.0
+        total = on_source + len(chosen) * st["overhead_s"] / 3600.0
+        out.append(Block("p", f"Time request if every recommended observation is taken: {len(chosen)} "
+                              f"observation(s), {on_source:.1f} h on source plus {st['overhead_s'] / 60:.0f} min "
+                              f"overhead each, {total:.1f} h in all (S/N {st['snr_target']:g} per resolution "
+                              f"element at the reference feature)."))
     else:
         out.append(Block("p", "No night reaches the target S/N at a clear strong feature."))
     out.append(Block("h3", "Assumptions"))

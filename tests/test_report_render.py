@@ -17,8 +17,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-CHROMIUM = next((p for p in ("/usr/bin/chromium", shutil.which("chromium") or "", shutil.which("chromium-browser") or "")
-                 if p and Path(p).exists()), None)
+CANDIDATES = ("/usr/bin/chromium", shutil.which("chromium") or "", shutil.which("chromium-browser") or "")
+CHROMIUM = next((p for p in CANDIDATES if p and Path(p).exists()), None)
 needs_chromium = pytest.mark.skipif(CHROMIUM is None, reason="Chromium not installed (Debian package 'chromium'); "
                                                              "the browser render check needs it")
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--no-first-run", "--disable-background-networking",

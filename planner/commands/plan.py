@@ -23,8 +23,8 @@ def add_arguments(p) -> None:
     g.add_argument("--nights", type=_common.positive_int("--nights", 60), default=7, metavar="N",
                    help="local nights after t0 to plan (default 7)")
     g.add_argument("--snr", type=_common.finite_float("--snr", 0, 1000, low_open=True), default=10.0,
-                   metavar="TARGET", help="target S/N per resolution element at the strongest clear feature "
-                                          "(default 10)")
+                   metavar="TARGET", help="target S/N per resolution element at the reference feature: the "
+                                          "clear strong feature with the best S/N (default 10)")
     g.add_argument("--max-hours", type=_common.finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
                    metavar="H", help="at most this many hours per night on the target (default 4)")
     g.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
