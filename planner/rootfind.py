@@ -39,7 +39,7 @@ def bisect(fn: MarginFn, rows: np.ndarray, lo_mjd: np.ndarray, hi_mjd: np.ndarra
     for _ in range(n_iter):  # iterations of the bisection, each vectorized over every bracket
         mid = 0.5 * (lo + hi)
         f_mid = fn(mid, rows)
-        same = np.signbit(f_mid) == np.signbit(f_lo)
+        same = (f_mid > 0) == (f_lo > 0)  # "positive" as in positive_intervals: a zero is not positive
         lo, f_lo = np.where(same, mid, lo), np.where(same, f_mid, f_lo)
         hi, f_hi = np.where(same, hi, mid), np.where(same, f_hi, f_mid)
     # linear interpolation inside the final bracket (falls back to its middle for a flat margin)

@@ -11,6 +11,7 @@ import json
 import astropy.units as u
 import numpy as np
 import pytest
+from hypothesis import given, settings, strategies as st
 from astropy.coordinates import AltAz, EarthLocation, SkyCoord, get_body
 from astropy.time import Time
 
@@ -91,6 +92,21 @@ def test_positive_intervals_many_rows_at_once():
     inner = ~open_e
     assert np.allclose(np.mod(end[inner] - phase[rows[inner]], 1.0), 0.5, atol=1e-5)
     assert open_s[rows == 0].any()  # row 0 is positive at the grid start: an open interval
+
+
+@settings(max_examples=40, deadline=None)
+@given(phase=st.floats(0.0, 1.0), freq=st.floats(0.5, 3.0), offset=st.floats(-0.9, 0.9))
+def test_positive_intervals_match_analytic_roots(phase, freq, offset):
+    # f(t) = sin(2 pi freq (t - phase)) - offset is positive between the analytic roots
+    # phase + (asin(offset) / 2 pi + k) / freq and phase + (1/2 - asin(offset) / 2 pi + k) / freq
+    fn = lambda t, rows: np.sin(2 * np.pi * freq * (t - phase)) - offset  # noqa: E731
+    grid = np.arange(0.0, 3.0, 2.0 / 1440)  # 2-minute grid, like the planner's sampling
+    rows, start, end, open_s, open_e = positive_intervals(fn, grid, np.atleast_2d(fn(grid, None)), tol_s=1.0)
+    a = np.arcsin(offset) / (2 * np.pi)
+    k = np.arange(-5, 15)
+    roots = np.sort(np.concatenate([phase + (a + k) / freq, phase + (0.5 - a + k) / freq]))
+    for t in np.concatenate([start[~open_s], end[~open_e]]):
+        assert np.min(np.abs(roots - t)) * 86400 < 1.0
 
 
 # --- edge cases of the issue ------------------------------------------------------------
