@@ -11,7 +11,7 @@ its own:
 2. the photosphere at every epoch, in one array call
    (:func:`planner.source.transient_for_event`, ``Transient.state``);
 3. per epoch and setup: which strong features are clear (the feature
-   forecast of :mod:`forecast.features`), batched over epochs per setup;
+   forecast of :mod:`forecast.features`), all epochs x all setups in one call;
 4. per epoch and setup: the S/N reachable at the reference feature in the
    usable time, and the exposure time for the target S/N there
    (:mod:`forecast.exposure`), batched over the setups of a site.
@@ -37,7 +37,6 @@ exposure).  A night where no setup is eligible says why in words.
 """
 from __future__ import annotations
 
-import datetime as dt
 import math
 from dataclasses import dataclass, field
 
@@ -475,10 +474,6 @@ def campaign_summary(plan: Plan) -> dict:
             counts[p.status] = counts.get(p.status, 0) + 1
         out["why_nothing"] = "; ".join(f"{STATUS_WORDS[k]} on {v} site-night(s)" for k, v in sorted(counts.items()))
     return out
-
-
-def night_label(night: dt.date) -> str:
-    return night.isoformat()
 
 
 # ---------------------------------------------------------------------------- documents and tables

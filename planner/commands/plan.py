@@ -76,8 +76,16 @@ def safe_name(text: str) -> str:
 
 
 def check_out(out: Path) -> None:
+    """The output folder must be new or an earlier plan folder, inside a folder we may write."""
+    import os
+
     from planner.errors import OptionError
 
+    base = out.absolute().parent
+    while not base.exists():
+        base = base.parent
+    if not base.is_dir() or not os.access(base, os.W_OK | os.X_OK):
+        raise OptionError("--out", str(out), f"a folder that can be created ({base} is not writable)")
     if out.exists() and not out.is_dir():
         raise OptionError("--out", str(out), "a folder path (this is an existing file)")
     if out.exists() and any(out.iterdir()) and not (out / "plan.json").exists():
@@ -88,8 +96,13 @@ def check_out(out: Path) -> None:
 def write_folder(plan, out: Path, say=lambda text: None) -> dict:
     """Write every output file of ``plan`` into ``out`` atomically; returns the plan document."""
     from planner import plan_outputs
+    from planner.errors import OptionError
     from planner.output import atomic_dir, write_json
 
+    try:
+        out.absolute().parent.mkdir(parents=True, exist_ok=True)
+    except OSError as err:
+        raise OptionError("--out", str(out), f"a folder that can be created ({err.strerror})") from None
     with atomic_dir(out) as tmp:
         say("tables")
         files = plan_outputs.write_tables(plan, tmp)
