@@ -74,7 +74,7 @@ class CoverageResult:
     skymap: SkyMap
     sites: list
     nights: list[CoverageNight]
-    observable: np.ndarray  # bool (n_pixels, len(nights))
+    observable: np.ndarray | None  # bool (n_pixels, len(nights)); None with pixel_flags=False
     settings: dict
 
     def best(self) -> CoverageNight | None:
@@ -94,8 +94,12 @@ class _Columns:
 
 def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight: str = "nautical",
                      min_altitude_deg=None, max_airmass=None, min_moon_sep_deg=None,
-                     step_min: float = DEFAULT_STEP_MIN) -> CoverageResult:
-    """Observable probability, probability-weighted hours and observable 90 % area per site and night."""
+                     step_min: float = DEFAULT_STEP_MIN, pixel_flags: bool = True) -> CoverageResult:
+    """Observable probability, probability-weighted hours and observable 90 % area per site and night.
+
+    ``pixel_flags=False`` skips keeping the per-pixel observable flags (``observable`` is then None),
+    which only charts need.
+    """
     from planner.events import Event
     from planner.visibility import compute_visibility
 
@@ -107,7 +111,7 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
                              max_airmass=max_airmass, min_moon_sep_deg=min_moon_sep_deg)
     sites = vis.sites
     cols, records = _sample_dark_time(vis, step_min)
-    obs = np.zeros((skymap.npix, len(records)), dtype=bool)
+    obs = np.zeros((skymap.npix, len(records)), dtype=bool) if pixel_flags else None
     if cols.mjd.size:
         _accumulate(skymap, vis, cols, records, obs)
     settings = vis.settings()
@@ -185,84 +189,89 @@ def _frame_vectors(vis, cols: _Columns):
     return back(zen), back(north), back(east), back(moon)
 
 
-def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray) -> None:
-    """Fill the per-record totals and the per-pixel observable flags, chunk by chunk of pixels."""
+def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | None) -> None:
+    """Fill the per-record totals and the per-pixel observable flags, chunk by chunk of pixels.
+
+    Arrays are laid out samples x pixels, so each site/night is a contiguous block of rows.
+    """
     rules = vis.rules
-    zen, north, east, moon = _frame_vectors(vis, cols)
+    zen, north, east, moon = (np.ascontiguousarray(v.T, dtype=np.float32) for v in _frame_vectors(vis, cols))
     floor = np.maximum(rules.min_altitude_deg[cols.site], rules.airmass_altitude_deg)
-    sin_floor = np.sin(np.radians(floor)).astype(np.float32)
-    horizon_cols = [(np.nonzero(cols.site == i)[0], hz) for i, hz in enumerate(rules.horizons) if hz is not None]
-    horizon_cols = [(c, hz) for c, hz in horizon_cols if c.size]
+    sin_floor = np.sin(np.radians(floor)).astype(np.float32)[:, None]
+    horizons = [(_row_range(cols.site, i), hz) for i, hz in enumerate(rules.horizons)
+                if hz is not None and np.any(cols.site == i)]
     moon_rule = rules.min_moon_sep_deg
     seg_start = np.flatnonzero(np.r_[True, cols.record[1:] != cols.record[:-1]])
+    seg_end = np.r_[seg_start[1:], cols.mjd.size]
     seg_record = cols.record[seg_start]
-    moon_reach = _moon_reach(moon, seg_start, moon_rule) if moon_rule else None
+    moon_reach = _moon_reach(moon, seg_start, seg_end, moon_rule) if moon_rule else None
     dt_h = cols.dt_h[seg_record]
-    in90 = skymap.credible_mask(CREDIBLE_LEVEL)
-    area90_deg2 = np.where(in90, skymap.area_sr * SR_TO_DEG2, 0.0)
-    zen32 = zen.astype(np.float32)
-    n_cols = cols.mjd.size
-    chunk = max(1024, CHUNK_ELEMENTS // n_cols)
-    prob_obs = np.zeros(seg_start.size)
-    hours = np.zeros(seg_start.size)
-    area = np.zeros(seg_start.size)
+    area90_deg2 = np.where(skymap.credible_mask(CREDIBLE_LEVEL), skymap.area_sr * SR_TO_DEG2, 0.0)
+    chunk = max(1024, CHUNK_ELEMENTS // cols.mjd.size)
+    prob_obs, hours, area = np.zeros(seg_start.size), np.zeros(seg_start.size), np.zeros(seg_start.size)
     for lo in range(0, skymap.npix, chunk):  # blocks of pixels (memory bound), each vectorized over all samples
         sl = slice(lo, min(lo + chunk, skymap.npix))
-        pix = np.ascontiguousarray(skymap.xyz[:, sl].T, dtype=np.float32)  # (m, 3)
-        sin_alt = pix @ zen32
+        pix = skymap.xyz[:, sl].astype(np.float32)  # (3, m)
+        sin_alt = _dot(zen, pix)  # (n_samples, m)
         ok = sin_alt >= sin_floor
-        for c, hz in horizon_cols:  # sites with a horizon profile: the floor depends on azimuth
-            _apply_horizon(ok, sin_alt, pix, c, hz, sin_floor, north, east)
+        for (a, b), hz in horizons:  # sites with a horizon profile: the floor depends on azimuth
+            _apply_horizon(ok[a:b], sin_alt[a:b], sin_floor[a:b], pix, north[a:b], east[a:b], hz)
         if moon_rule:
-            _apply_moon(ok, pix, moon, moon_reach, seg_start, n_cols, moon_rule)
-        count = np.add.reduceat(ok, seg_start, axis=1, dtype=np.int32)  # samples observable per site/night
+            _apply_moon(ok, pix, moon, moon_reach, seg_start, seg_end, moon_rule)
+        # samples observable per site/night, (n_segments, m): one contiguous block of rows each
+        count = np.stack([ok[a:b].view(np.uint8).sum(axis=0, dtype=np.uint16) for a, b in zip(seg_start, seg_end)])
         seen = count > 0
-        obs[sl, seg_record] = seen
+        if obs is not None:
+            obs[sl, seg_record] = seen.T
         p = skymap.prob[sl]
-        prob_obs += p @ seen
-        hours += p @ (count * dt_h)
-        area += area90_deg2[sl] @ seen
+        prob_obs += np.where(seen, p, 0.0).sum(axis=1)
+        hours += (count * p).sum(axis=1) * dt_h
+        area += np.where(seen, area90_deg2[sl], 0.0).sum(axis=1)
     for s, k in enumerate(seg_record):
         records[k].observable_probability = float(min(prob_obs[s], 1.0))
         records[k].weighted_hours = float(hours[s])
         records[k].area90_observable_deg2 = float(area[s])
 
 
-def _apply_horizon(ok, sin_alt, pix, c, hz, sin_floor, north, east) -> None:
-    """Refuse the samples of columns ``c`` below the horizon profile at the pixel's azimuth."""
+def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """(n, 3) x (3, m) product by einsum: a 3-term sum is memory-bound, and multithreaded BLAS
+    slows it several-fold on a busy machine."""
+    return np.einsum("ij,jk->ik", a, b)
+
+
+def _row_range(site_of_sample: np.ndarray, i: int) -> tuple[int, int]:
+    """The contiguous block of samples of site ``i`` (samples run site by site)."""
+    rows = np.flatnonzero(site_of_sample == i)
+    assert rows[-1] - rows[0] + 1 == rows.size, "samples of a site must be contiguous"
+    return int(rows[0]), int(rows[-1]) + 1
+
+
+def _apply_horizon(ok, sin_alt, sin_floor, pix, north, east, hz) -> None:
+    """Refuse samples below the horizon profile at the pixel's azimuth (views on one site's rows)."""
     top = np.float32(math.sin(math.radians(float(hz.altitude_deg.max()))))
-    sub = sin_alt[:, c]
-    band = (sub >= sin_floor[c]) & (sub < top)  # only there can the profile decide
-    r, k = np.nonzero(band)
-    if r.size == 0:
+    band = ok & (sin_alt < top)  # above the site floor but not above the profile's highest point
+    if not band.any():
         return
-    cc = c[k]
-    p = pix[r].astype(float)
-    az = np.degrees(np.arctan2(np.einsum("ni,in->n", p, east[:, cc]), np.einsum("ni,in->n", p, north[:, cc])))
-    limit = np.sin(np.radians(hz.min_altitude_deg(az)))
-    ok[r, cc] &= sub[r, k] >= limit
+    az = np.degrees(np.arctan2(_dot(east, pix)[band], _dot(north, pix)[band]))
+    ok[band] = sin_alt[band] >= np.sin(np.radians(hz.min_altitude_deg(az)))
 
 
-def _moon_reach(moon, seg_start, min_sep_deg):
-    """Per site/night: mean Moon direction and the cosine of (min_sep + the Moon's spread about it)."""
-    seg_end = np.r_[seg_start[1:], moon.shape[1]]
-    mean = np.add.reduceat(moon, seg_start, axis=1)
-    mean /= np.linalg.norm(mean, axis=0, keepdims=True)
-    spread = np.array([sky.separation_deg(moon[:, a:b], mean[:, [s]]).max()
+def _moon_reach(moon, seg_start, seg_end, min_sep_deg):
+    """Per site/night: mean Moon direction (n_segments, 3) and cos(min_sep + the Moon's spread about it)."""
+    mean = np.add.reduceat(moon.astype(float), seg_start, axis=0)
+    mean /= np.linalg.norm(mean, axis=1, keepdims=True)
+    spread = np.array([sky.separation_deg(moon[a:b].T.astype(float), mean[s][:, None]).max()
                        for s, (a, b) in enumerate(zip(seg_start, seg_end))])
     reach = np.minimum(min_sep_deg + spread + 0.01, 180.0)
-    return mean.astype(np.float32), np.cos(np.radians(reach)).astype(np.float32)
+    return mean.astype(np.float32), np.cos(np.radians(reach)).astype(np.float32)[:, None]
 
 
-def _apply_moon(ok, pix, moon, reach, seg_start, n_cols, min_sep_deg) -> None:
+def _apply_moon(ok, pix, moon, reach, seg_start, seg_end, min_sep_deg) -> None:
     """Refuse samples closer than ``min_sep_deg`` to the Moon (only pixels within reach are tested)."""
     mean, cos_reach = reach
-    near = (pix @ mean) > cos_reach  # (m, n_segments): the Moon can come that close this night
+    near = _dot(mean, pix) > cos_reach  # (n_segments, m): the Moon can come that close this night
     cos_sep = np.float32(math.cos(math.radians(min_sep_deg)))
-    seg_end = np.r_[seg_start[1:], n_cols]
-    moon32 = moon.astype(np.float32)
-    for s, (a, b) in enumerate(zip(seg_start, seg_end)):  # per site/night, vectorized over its pixels x samples
-        rows = np.flatnonzero(near[:, s])
-        if rows.size:
-            far = (pix[rows] @ moon32[:, a:b]) <= cos_sep
-            ok[rows, a:b] &= far
+    for s, (a, b) in enumerate(zip(seg_start, seg_end)):  # per site/night, vectorized over its samples x pixels
+        k = np.flatnonzero(near[s])
+        if k.size:
+            ok[a:b, k] &= _dot(moon[a:b], pix[:, k]) <= cos_sep

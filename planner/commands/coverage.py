@@ -48,7 +48,7 @@ def run(args) -> int:
 
     result = compute_coverage(skymap, sites, t0, nights=args.nights, twilight=args.twilight,
                               min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
-                              min_moon_sep_deg=args.min_moon_sep, step_min=args.step)
+                              min_moon_sep_deg=args.min_moon_sep, step_min=args.step, pixel_flags=bool(args.plot))
     doc = coverage_document(result, t0)
     fig = None
     if args.plot:
