@@ -51,7 +51,11 @@ def load_voevent(path) -> Event:
     root = _parse(path)
     system = _coord_system(root, path)
     coords = _find(root, f"{LOCATION}/AstroCoords", path)
-    pos = _find(coords, "Position2D", path, f"{LOCATION}/AstroCoords/Position2D")
+    pos = coords.find("Position2D")
+    if pos is None:
+        raise DataFileError(path, f"{LOCATION}/AstroCoords/Position2D",
+                            "required element missing: the packet gives no position (for an alert with only "
+                            "a probability sky map, use kncast coverage --map FILE)")
     ra_deg, dec_deg, err_deg = _position(pos, system, path)
     t0 = _time(coords, system, path)
     params = _params(root)
