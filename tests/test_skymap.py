@@ -349,3 +349,49 @@ def test_altitudes_agree_with_astropy_altaz(tmp_path, registry):
     # difference: annual aberration (constant of aberration 20.496 arcsec, IAU 1976 / Astronomical
     # Almanac) and diurnal aberration (0.32 arcsec at the equator), neglected by design: < 25 arcsec
     assert np.max(np.abs(ours - ref)) < 25.0 / 3600.0
+
+
+def test_moon_direction_agrees_with_astropy_topocentric_moon(registry):
+    import astropy.units as u
+    from astropy.coordinates import EarthLocation, get_body
+    from astropy.time import Time
+
+    from planner.skycoverage import _frame_vectors, _sample_dark_time
+    from planner.visibility import compute_visibility
+
+    site = registry.get("sutherland")
+    vis = compute_visibility(Event("x", 100.0, 5.0, T0), [site], nights=2)
+    cols, _ = _sample_dark_time(vis, 60.0)
+    moon = _frame_vectors(vis, cols)[3]
+    # independent reference: astropy's topocentric apparent Moon (GCRS with the observer's position)
+    loc = EarthLocation.from_geodetic(site.longitude_deg * u.deg, site.latitude_deg * u.deg, site.elevation_m * u.m)
+    times = Time(cols.mjd, format="mjd", scale="utc")
+    ref = get_body("moon", times, location=loc).cartesian.xyz.value
+    ref = ref / np.linalg.norm(ref, axis=0)
+    sep_arcsec = np.degrees(np.arccos(np.clip(np.sum(moon * ref, axis=0), -1, 1))) * 3600
+    # both are apparent directions of date taken back to the GCRS axes; the linear interpolation on
+    # the 30-min ephemeris grid (< 1 arcsec for the Moon, see planner.sky) is the main difference
+    assert np.max(sep_arcsec) < 5.0
+
+
+def test_random_maps_keep_totals_in_range(tmp_path, registry):
+    from planner.skycoverage import compute_coverage
+
+    rng = np.random.default_rng(11)
+    sites = registry.select(["paranal", "maunakea", "la-palma"])
+    for trial in range(3):
+        nside = 16
+        p = rng.random(12 * nside * nside) ** 8  # lumpy
+        m = load_skymap(write_flat(tmp_path / f"r{trial}.fits", p / p.sum(), nside))
+        res = compute_coverage(m, sites, T0, nights=2, min_moon_sep_deg=float(rng.uniform(0, 60)))
+        area90 = m.credible_area_deg2(0.9)
+        for k, n in enumerate(res.nights):
+            assert 0.0 <= n.observable_probability <= 1.0
+            assert 0.0 <= n.weighted_hours <= n.dark_hours * n.observable_probability + 1e-9
+            assert 0.0 <= n.area90_observable_deg2 <= area90 + 1e-9
+            # the per-pixel flags reproduce the totals
+            assert n.observable_probability == pytest.approx(float(m.prob[res.observable[:, k]].sum()), abs=1e-9)
+        # resampling conserves probability (intensive density x pixel area)
+        for level in (2, 4, 6):
+            flat = m.resample_nested(m.density_per_sr, level)
+            assert flat.sum() * 4 * math.pi / flat.size == pytest.approx(1.0, rel=1e-12)
