@@ -354,7 +354,9 @@ def assumptions(plan) -> list[str]:
 
 def document(plan, files: dict) -> dict:
     """The plan.json document with references collected from the modules used."""
+    from forecast.linelist import LineList
     from planner.plan import plan_document
-    from planner.report import collect_references
+    from planner.report import collect_references, data_references
 
-    return plan_document(plan, files=files, references=collect_references(), assumptions=assumptions(plan))
+    refs = collect_references() + data_references(plan.tellurics, LineList.load())
+    return plan_document(plan, files=files, references=refs, assumptions=assumptions(plan))

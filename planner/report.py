@@ -28,36 +28,36 @@ CAUTION_LINE = ("Cautions: forecasts are model estimates; check Sun-avoidance li
 # Modules whose models feed a plan; their docstrings (or a REFERENCES tuple) name the sources.
 MODEL_MODULES = (
     ("Sky geometry (Sun, Moon, target)", "planner.sky"),
+    ("Nights, twilight and observing windows", "planner.visibility"),
     ("Airmass", "forecast.airmass"),
-    ("Nights and twilight", "planner.nights"),
-    ("Observing windows", "planner.windows"),
-    ("Observing windows", "planner.visibility"),
-    ("Blackbody", "forecast.blackbody"),
     ("Photosphere", "forecast.photosphere"),
     ("Photosphere (radioactive heating)", "forecast.heating"),
+    ("Blackbody", "forecast.blackbody"),
     ("Transient (distance, redshift, dust)", "forecast.source"),
+    ("Distance and redshift", "forecast.distance"),
     ("Dust extinction", "forecast.extinction"),
-    ("Synthetic magnitudes", "forecast.magnitudes"),
+    ("Synthetic magnitudes", "forecast.photometry"),
     ("Air/vacuum wavelengths", "forecast.airvac"),
-    ("Line list", "forecast.lines"),
-    ("Line features and LTE strengths", "forecast.features"),
-    ("LTE ionization and excitation", "forecast.lte"),
+    ("Line list", "forecast.linelist"),
+    ("Feature windows (Doppler)", "forecast.doppler"),
+    ("LTE ionization, excitation and Sobolev optical depth", "forecast.lte"),
+    ("Line features", "forecast.features"),
+    ("Coverage and verdicts", "forecast.coverage"),
     ("Telluric bands", "forecast.tellurics"),
-    ("Instruments", "forecast.instruments"),
-    ("Atmospheric extinction", "forecast.atmosphere"),
-    ("Sky background and moonlight", "forecast.skybrightness"),
-    ("Sky background and moonlight", "forecast.sky"),
+    ("Atmospheric extinction", "forecast.extinction_atm"),
+    ("Sky background and moonlight", "forecast.skybright"),
     ("Slit losses and seeing", "forecast.slit"),
+    ("Detector noise (CCD equation)", "forecast.ccd"),
     ("Signal-to-noise and exposure time", "forecast.exposure"),
-    ("Signal-to-noise and exposure time", "forecast.snr"),
 )
 
 # An author-year citation: "Kasten & Young 1989", "Korobkin et al. (2012)", "Benn & Ellison 1998, ...".
 MAG_COLUMNS = ("bessell-R", "bessell-I", "twomass-J")
 
 _CITATION = re.compile(
-    r"\b((?:[A-Z][A-Za-z'\-]+)(?:,? (?:&|and) [A-Z][A-Za-z'\-]+| et al\.)?,? \(?(?:19|20)\d{2}[a-z]?\)?"
-    r"(?:,? (?:[A-Z][A-Za-z&.]+ ?)+\d+(?:, ?\d+)?)?)"
+    r"\b((?:[A-Z][A-Za-z'\-]+)(?:, [A-Z][A-Za-z'\-]+)*(?:,? (?:&|and) [A-Z][A-Za-z'\-]+| et al\.)?,? "
+    r"\(?(?:19|20)\d{2}[a-z]?\)?"
+    r"(?:,? (?:[A-Z][A-Za-z&.]+ ?)+\d+(?:(?:, ?| )\d+)?)?)"
 )
 _NOT_AUTHORS = {"January", "February", "March", "April", "May", "June", "July", "August", "September",
                 "October", "November", "December", "The", "In", "See", "Since", "From", "Until", "Before",
@@ -97,6 +97,19 @@ def collect_references(modules=MODEL_MODULES) -> list[dict]:
             if key not in seen:
                 seen.add(key)
                 out.append({"model": model, "module": name, "reference": ref})
+    return out
+
+
+def data_references(tellurics=None, linelist=None) -> list[dict]:
+    """Sources named in the provenance columns of the data files used (telluric bands, line list)."""
+    out = []
+    if tellurics is not None:
+        text = " ; ".join(sorted(set(str(x) for x in tellurics.bands["source"])))
+        out += [{"model": "Telluric bands", "module": "forecast/data/telluric_bands.ecsv", "reference": r}
+                for r in _longest(citations_in(text))]
+    if linelist is not None:
+        out += [{"model": "Line list", "module": "forecast/data/lines.ecsv", "reference": r}
+                for r in sorted(set(str(x) for x in linelist.source))]
     return out
 
 
