@@ -20,6 +20,17 @@ from astropy.time import Time
 SCHEMA_VERSION = 1
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def _publish_mode(path: Path, directory: bool = False) -> None:
+    """Give a finished temporary file/folder the permissions a plain ``open`` would (umask)."""
+    os.chmod(path, (0o777 if directory else 0o666) & ~_umask())
+
+
 @contextlib.contextmanager
 def atomic_path(path, suffix: str | None = None):
     """Yield a temporary path beside ``path``; rename it onto ``path`` on success only."""
@@ -29,6 +40,7 @@ def atomic_path(path, suffix: str | None = None):
     os.close(fd)
     try:
         yield Path(tmp)
+        _publish_mode(Path(tmp))
         os.replace(tmp, path)
     except BaseException:
         with contextlib.suppress(FileNotFoundError):
@@ -44,6 +56,7 @@ def atomic_dir(path):
     tmp = Path(tempfile.mkdtemp(prefix=f".{path.name}.", dir=path.parent))
     try:
         yield tmp
+        _publish_mode(tmp, directory=True)
         if path.exists():
             old = Path(tempfile.mkdtemp(prefix=f".{path.name}.old.", dir=path.parent))
             os.replace(path, old / "x")
