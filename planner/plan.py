@@ -435,8 +435,8 @@ def failure_words(p: NightPlan, snr_target: float) -> str:
                 "or in a telluric band for every setup here")
     best = max(seen, key=lambda o: o.snr or 0.0)
     p.status = "too-faint"
-    return (f"too faint: the best, {best.setup}, reaches only S/N {best.snr or 0:.1f} (target {snr_target:g}) "
-            f"at the {best.species} trough in the usable {p.hours_available:.1f} h")
+    return (f"too faint: at best S/N {best.snr or 0:.1f} (target {snr_target:g}) with {best.setup} at the "
+            f"{best.species} trough in the usable {p.hours_available:.1f} h")
 
 
 # ---------------------------------------------------------------------------- campaign

@@ -120,23 +120,32 @@ def write_folder(plan, out: Path, say=lambda text: None) -> dict:
 
 
 def print_summary(plan, out: Path, quiet: bool = False) -> None:
-    """A rich table of nights (chosen setup, epoch, exposure, S/N, reason), the report path, the cautions."""
+    """Rich tables: the recommended observations (setup, epoch, exposure, S/N, reason) and, per site, the
+    nights without a useful spectrum and why; then the report path and the cautions in one line."""
     from rich.table import Table
 
     from planner.report import CAUTION_LINE
 
     con = _common.console()
     if not quiet:
-        t = Table(title=f"Spectroscopy plan for {plan.event.id}", show_lines=False)
-        for col in ("site", "night", "day", "setup", "exposure", "S/N", "reason"):
-            t.add_column(col, overflow="fold")
-        for p in plan.nights:
-            c = p.choice
-            t.add_row(p.site.id, p.record.night.isoformat(), "-" if p.phase_d is None else f"{p.phase_d:.2f}",
-                      c.setup if c else "-",
-                      f"{c.nexp} x {c.exposure_s:.0f} s" if c and c.nexp else "-",
-                      f"{c.snr:.1f}" if c else "-", p.reason)
-        con.print(t)
+        useful = sorted(plan.useful(), key=lambda p: p.phase_d)
+        if useful:
+            t = Table(title=f"Recommended spectra of {plan.event.id} (S/N per resolution element)")
+            for col, kw in (("day", {"justify": "right"}), ("site", {}), ("night", {}), ("setup", {}),
+                            ("exposure", {}), ("S/N", {"justify": "right"}), ("why", {"ratio": 1})):
+                t.add_column(col, overflow="fold", **kw)
+            for p in useful:
+                c = p.choice
+                t.add_row(f"{p.phase_d:.2f}", p.site.id, p.record.night.isoformat(), c.setup,
+                          f"{c.nexp} x {c.exposure_s:.0f} s" if c.nexp else "-", f"{c.snr:.1f}", p.reason)
+            con.print(t)
+        rest = Table(title="Nights without a useful spectrum")
+        for col in ("site", "nights", "why"):
+            rest.add_column(col, overflow="fold", ratio=1 if col == "why" else None)
+        for site, nights, reason in unused_runs(plan):
+            rest.add_row(site, nights, reason)
+        if rest.row_count:
+            con.print(rest)
         camp = plan.campaign
         if camp["last_useful"]:
             lu = camp["last_useful"]
@@ -146,3 +155,24 @@ def print_summary(plan, out: Path, quiet: bool = False) -> None:
             con.print("Nothing useful can be done: " + camp.get("why_nothing", ""))
     con.print(f"Report: {out / 'report.html'}")
     con.print(CAUTION_LINE)
+
+
+def unused_runs(plan) -> list[tuple[str, str, str]]:
+    """(site, nights, reason) for runs of consecutive nights of one site with the same status and no choice."""
+    runs = []
+    for p in plan.nights:
+        if p.choice is not None:
+            continue
+        last = runs[-1] if runs else None
+        if last and last[0] is p.site and last[1] == p.status and last[3] == p.record.night.toordinal() - 1:
+            last[2].append(p)
+            last[3] = p.record.night.toordinal()
+        else:
+            runs.append([p.site, p.status, [p], p.record.night.toordinal()])
+    out = []
+    for site, _status, group, _end in runs:
+        first, end = group[0].record.night.isoformat(), group[-1].record.night.isoformat()
+        nights = first if len(group) == 1 else f"{first} to {end} ({len(group)})"
+        reason = group[0].reason + ("" if len(group) == 1 else " (first night of the run)")
+        out.append((site.id, nights, reason))
+    return out
