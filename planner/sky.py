@@ -43,7 +43,7 @@ class Ephemeris:
               step_min: float = GRID_STEP_MIN) -> "Ephemeris":
         """Tabulate Sun, Moon and targets from ``start_mjd`` to ``end_mjd`` (UTC)."""
         import astropy.units as u
-        from astropy.coordinates import TETE, SkyCoord, get_body
+        from astropy.coordinates import ICRS, TETE, get_body
         from astropy.time import Time
 
         from planner._offline import warn_if_beyond_iers
@@ -53,13 +53,14 @@ class Ephemeris:
         warn_if_beyond_iers(mjd[-1])
         times = Time(mjd, format="mjd", scale="utc")
         frame = TETE(obstime=times)
-        sun = get_body("sun", times).transform_to(frame).cartesian
-        moon = get_body("moon", times).transform_to(frame).cartesian
+        # frame-level transforms: SkyCoord.transform_to would format the whole Time array into a docstring
+        sun = get_body("sun", times).frame.transform_to(frame).cartesian
+        moon = get_body("moon", times).frame.transform_to(frame).cartesian
         ra = np.atleast_1d(np.asarray(target_ra_deg, dtype=float))
         dec = np.atleast_1d(np.asarray(target_dec_deg, dtype=float))
         tgt = np.empty((ra.size, 3, n))
         for i in range(ra.size):  # loop over targets only; each call is vectorized over all grid times
-            c = SkyCoord(ra[i] * u.deg, dec[i] * u.deg, frame="icrs").transform_to(frame).cartesian
+            c = ICRS(ra=ra[i] * u.deg, dec=dec[i] * u.deg).transform_to(frame).cartesian
             tgt[i] = _unit(c.xyz.value)
         sun_km = sun.xyz.to_value(u.km)
         gast = times.sidereal_time("apparent", "greenwich").deg
