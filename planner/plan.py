@@ -458,7 +458,16 @@ def campaign_summary(plan: Plan) -> dict:
         last_ok = reach[-1][0] if reach else None
         later = [r for r in rows if last_ok is None or r[0] > last_ok]
         faint = next((r for r in later if r[2].snr is not None), None) if later else None
-        setups.append({"setup": sid, "epochs_evaluated": len(rows),
+        measured = [r for r in rows if r[2].snr is not None]
+        if not measured:
+            note = "never sees a clear strong feature with usable time"
+        elif last_ok is None:
+            note = "never reaches the target"
+        elif faint is None:
+            note = "still reaches the target at its last epoch"
+        else:
+            note = f"too faint from day {faint[0]:.2f} on"
+        setups.append({"setup": sid, "epochs_evaluated": len(rows), "note": note,
                        "last_reaches_target_phase_d": None if last_ok is None else round(last_ok, 4),
                        "too_faint_from_phase_d": None if faint is None else round(faint[0], 4),
                        "too_faint_from_night": None if faint is None else faint[1].isoformat()})

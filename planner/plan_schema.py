@@ -69,7 +69,7 @@ CAMPAIGN = _obj({
         "useful_nights": {"type": "array", "items": _date}, "last_useful_night": {"anyOf": [_date, {"type": "null"}]},
         "last_useful_phase_d": _num_or_null})},
     "setups": {"type": "array", "items": _obj({
-        "setup": {"type": "string"}, "epochs_evaluated": {"type": "integer"},
+        "setup": {"type": "string"}, "epochs_evaluated": {"type": "integer"}, "note": {"type": "string"},
         "last_reaches_target_phase_d": _num_or_null, "too_faint_from_phase_d": _num_or_null,
         "too_faint_from_night": {"anyOf": [_date, {"type": "null"}]}})},
     "first_useful": POINT, "last_useful": POINT,

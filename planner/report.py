@@ -249,12 +249,12 @@ def _campaign(doc: dict) -> list[Block]:
     rows = [[s["site"], ", ".join(f"{d:.2f}" for d in s["useful_phases_d"]) or "none",
              s["last_useful_night"] or "-"] for s in camp["sites"]]
     out.append(Block("table", header=["Site", "Useful epochs (days since t0)", "Last useful night"], items=rows))
-    rows = [[s["setup"], _fmt(s["last_reaches_target_phase_d"], ".2f"),
-             _fmt(s["too_faint_from_phase_d"], ".2f", "not within the campaign")] for s in camp["setups"]]
+    rows = [[s["setup"], _fmt(s["last_reaches_target_phase_d"], ".2f"), _fmt(s["too_faint_from_phase_d"], ".2f"),
+             s["note"]] for s in camp["setups"]]
     if rows:
         out.append(Block("p", "When each setup stops reaching the target S/N even with the full usable window "
                               "(the source is too faint for it from that epoch on):"))
-        out.append(Block("table", header=["Setup", "Last epoch reaching target (d)", "Too faint from (d)"],
+        out.append(Block("table", header=["Setup", "Last epoch reaching target (d)", "Too faint from (d)", "In words"],
                          items=rows))
     return out
 
