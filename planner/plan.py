@@ -172,7 +172,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
             if r.site.id in site_ids]
     settings = {"nights": int(nights), "twilight": twilight, "snr_target": float(snr_target),
                 "snr_per": "resolution element", "max_hours": float(max_hours), "overhead_s": float(overhead_s),
-                "strong_tau": STRONG_TAU, "sites": [s.id for s in sites], "setups": [r.id for r in refs]}
+                "strong_tau": STRONG_TAU, "sites": [s.id for s in sites], "setups": [r.id for r in refs],
+                "target": event.targets()[0].id}
     t0_mjd = float(event.t0.utc.mjd)
     plans = [_night_plan(rec, t0_mjd, max_hours, overhead_s) for rec in vis.nights]
     epochs = [p for p in plans if p.window is not None]
@@ -280,7 +281,7 @@ def feature_forecast(plan: Plan, epochs: list, refs: list):
     from forecast.tellurics import TelluricModel
 
     phases = np.array([p.phase_d for p in epochs])
-    airmass = np.array([p.window.best_airmass for p in epochs])[:, None, None]
+    airmass = np.array([forecast_airmass(p.window) for p in epochs])[:, None, None]
     atm = {s.id: site_conditions(s) for s in plan.sites}
     pwv = np.array([atm[p.site.id].pwv_mm for p in epochs])[:, None, None]
     plan.tellurics = TelluricModel.load()
@@ -338,6 +339,12 @@ def _feature_rows(p: NightPlan, fc, i: int, k: int, setup_id: str, strong_idx: l
     return rows
 
 
+def forecast_airmass(window) -> float:
+    """The window's best airmass for the forecasts, at least 1: Kasten & Young (1989) give 0.9997 at the
+    zenith, the forecast kernels take airmass >= 1."""
+    return max(1.0, float(window.best_airmass))
+
+
 def exposure_conditions(site, window, atmosphere):
     """forecast.exposure.Conditions for a window: best airmass, Moon at the best time, site seeing/PWV."""
     from forecast.exposure import Conditions
@@ -346,7 +353,7 @@ def exposure_conditions(site, window, atmosphere):
     moon = MoonGeometry(illumination=float(np.clip(window.moon_illumination, 0.0, 1.0)),
                         sep_deg=float(np.clip(window.moon_sep_deg, 0.0, 180.0)),
                         altitude_deg=float(np.clip(window.moon_altitude_deg, -90.0, 90.0)))
-    return Conditions(airmass=float(window.best_airmass), seeing_arcsec=atmosphere.seeing_arcsec, moon=moon,
+    return Conditions(airmass=forecast_airmass(window), seeing_arcsec=atmosphere.seeing_arcsec, moon=moon,
                       pwv_mm=atmosphere.pwv_mm, atmosphere=atmosphere)
 
 
@@ -512,7 +519,7 @@ def night_summary(p: NightPlan) -> dict:
     doc["epoch"] = None if w is None else {
         "phase_d": _r(p.phase_d, 5), "utc": iso(w.best_time), "window_index": p.window_index,
         "window_start_utc": iso(w.start), "window_end_utc": iso(w.end), "window_hours": _r(w.hours, 4),
-        "hours_available": _r(p.hours_available, 4), "airmass": _r(w.best_airmass, 4),
+        "hours_available": _r(p.hours_available, 4), "airmass": _r(forecast_airmass(w), 4),
         "altitude_deg": _r(w.best_altitude_deg, 3), "moon_illumination": _r(w.moon_illumination, 4),
         "moon_sep_deg": _r(w.moon_sep_deg, 3), "moon_altitude_deg": _r(w.moon_altitude_deg, 3),
         "photosphere": {k: (_r(v, 6) if k.endswith("_c") or k.endswith("_d") else v)

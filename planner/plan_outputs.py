@@ -14,7 +14,7 @@ from pathlib import Path
 
 import numpy as np
 
-from planner.plan import MAX_EXPOSURE_S
+from planner.plan import MAX_EXPOSURE_S, forecast_airmass
 
 FIGURE_DPI = 90
 
@@ -93,7 +93,7 @@ def exposure_rows(plan) -> list[dict]:
         w = p.window
         for o in p.outcomes:
             rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
-                         "setup": o.setup, "airmass": w.best_airmass, "moon_illumination": w.moon_illumination,
+                         "setup": o.setup, "airmass": forecast_airmass(w), "moon_illumination": w.moon_illumination,
                          "moon_sep_deg": w.moon_sep_deg, "available_s": p.hours_available * 3600.0,
                          "n_strong": o.n_strong, "n_clear_strong": o.n_clear, "feature": o.feature,
                          "trough_obs_A": o.trough_obs_A, "snr_window": o.snr,
@@ -222,7 +222,7 @@ def spectral_figure(plan, folder, day):
     groups = epoch_groups([p for p in plan.useful() if int(p.phase_d) == day])
     members = [p for g in groups for p in g]
     group_refs = list({p.choice.setup: refs[p.choice.setup] for p in members}.values())
-    airmass = float(np.median([p.window.best_airmass for p in members]))
+    airmass = float(np.median([forecast_airmass(p.window) for p in members]))
     pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in members]))
     fc = forecast_features(plan.transient, np.array([g[0].phase_d for g in groups]),
                            setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
@@ -262,7 +262,7 @@ def snr_spectrum(plan, folder, setup_id):
     args = argparse.Namespace(phase=p.phase_d, snr=plan.settings["snr_target"], at=p.choice.feature, time=None,
                               nexp=None, max_exposure=MAX_EXPOSURE_S, ideal=False, profile="moffat",
                               samples=cmd.DEFAULT_SAMPLES)
-    cond = {"airmass": w.best_airmass, "seeing_arcsec": atm.seeing_arcsec, "moon_illumination": w.moon_illumination,
+    cond = {"airmass": forecast_airmass(w), "seeing_arcsec": atm.seeing_arcsec, "moon_illumination": w.moon_illumination,
             "moon_sep_deg": w.moon_sep_deg, "moon_altitude_deg": w.moon_altitude_deg, "pwv_mm": atm.pwv_mm,
             "source": f"best-airmass time of the night of {p.record.night.isoformat()}", "window": w.summary(),
             "atmosphere": atm}
@@ -271,7 +271,7 @@ def snr_spectrum(plan, folder, setup_id):
     return {"title": f"S/N spectrum, {setup_id}", "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
             "caption": f"S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s (the "
                        f"time for S/N {plan.settings['snr_target']:g} at {p.choice.feature}) on day {p.phase_d:.2f}, "
-                       f"night of {p.record.night.isoformat()} at airmass {w.best_airmass:.2f}: the last night "
+                       f"night of {p.record.night.isoformat()} at airmass {forecast_airmass(w):.2f}: the last night "
                        f"this setup is chosen."}
 
 

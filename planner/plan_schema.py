@@ -86,7 +86,8 @@ PLAN_SCHEMA = {
             "nights": {"type": "integer", "minimum": 1}, "twilight": {"enum": ["civil", "nautical", "astronomical"]},
             "snr_target": {"type": "number", "exclusiveMinimum": 0}, "snr_per": {"const": "resolution element"},
             "max_hours": {"type": "number", "exclusiveMinimum": 0}, "overhead_s": {"type": "number", "minimum": 0},
-            "strong_tau": _num, "sites": _strings, "setups": _strings, "score": {"type": "string"}}),
+            "strong_tau": _num, "sites": _strings, "setups": _strings, "target": {"type": "string"},
+            "score": {"type": "string"}}),
         "model": _obj({"name": {"type": "string"}, "parameters": {"type": "object"}}, extra=True),
         "sites": {"type": "array", "items": _obj({
             "id": {"type": "string"}, "name": {"type": "string"}, "latitude_deg": _num, "longitude_deg": _num,

@@ -267,6 +267,9 @@ def _justification(doc: dict) -> list[Block]:
     targets = ev.get("candidates") or [{"id": ev["id"], "ra_deg": ev["ra_deg"], "dec_deg": ev["dec_deg"]}]
     out.append(Block("table", header=["Target", "RA (deg)", "Dec (deg)"],
                      items=[[t["id"], f"{t['ra_deg']:.5f}", f"{t['dec_deg']:+.5f}"] for t in targets]))
+    if len(targets) > 1:
+        out.append(Block("p", f"Windows and exposures are planned for {st.get('target', targets[0]['id'])}, the "
+                              f"first listed candidate; the others lie within the localisation."))
     out.append(Block("h3", "Epochs, setups, exposure times and S/N"))
     rows = []
     for n in doc["nights"]:

@@ -342,3 +342,15 @@ def test_report_names_the_models_and_the_cautions(demo):
     for words in ("Sun-avoidance", "model estimates", "take precedence"):
         assert words in html and words in (out / "report.md").read_text()
     assert len(doc["cautions"]) == 3
+
+
+def test_candidates_event_near_the_zenith(tmp_path, run_cli):
+    # cand-a passes within a degree of the zenith at Paranal, where Kasten & Young (1989) give airmass 0.9997
+    out = tmp_path / "cands"
+    status, _, err = run_cli("plan", "--event", DEMO / "kn-demo-candidates.toml", "--nights", "2",
+                             "--sites", "paranal,sutherland", "--out", out)
+    assert status == 0, err
+    doc = json.loads((out / "plan.json").read_text())
+    assert doc["settings"]["target"] == "cand-a"
+    assert all(n["epoch"]["airmass"] >= 1.0 for n in doc["nights"] if n["epoch"])
+    assert "planned for cand-a" in (out / "report.md").read_text()
