@@ -345,7 +345,8 @@ def test_report_names_the_models_and_the_cautions(demo):
 
 
 def test_candidates_event_near_the_zenith(tmp_path, run_cli):
-    # cand-a passes within a degree of the zenith at Paranal, where Kasten & Young (1989) give airmass 0.9997
+    # cand-a (Dec -31.08) culminates 1.3 deg from the zenith at Sutherland (latitude -32.38 in its site file),
+    # where Kasten & Young (1989) give an airmass just below 1 (0.9997 at the zenith)
     out = tmp_path / "cands"
     status, _, err = run_cli("plan", "--event", DEMO / "kn-demo-candidates.toml", "--nights", "2",
                              "--sites", "paranal,sutherland", "--out", out)
