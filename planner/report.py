@@ -272,10 +272,8 @@ def _justification(doc: dict) -> list[Block]:
                               f"first listed candidate; the others lie within the localisation."))
     out.append(Block("h3", "Epochs, setups, exposure times and S/N"))
     rows = []
-    for n in doc["nights"]:
-        ch, ep = n.get("choice"), n.get("epoch")
-        if not ch:
-            continue
+    for n in sorted((n for n in doc["nights"] if n.get("choice")), key=lambda n: n["epoch"]["phase_d"]):
+        ch, ep = n["choice"], n["epoch"]
         ph = ep["photosphere"]
         mags = ph.get("mag_ab") or {}
         rows.append([n["site"], n["night"], f"{ep['phase_d']:.2f}", ch["setup"], _fmt(ph.get("temperature_K"), ".0f"),
