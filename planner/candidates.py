@@ -77,8 +77,11 @@ def rank_candidates(event, sites, nights: int = 3, **visibility_options) -> list
 
     visibility_options.pop("target_index", None)
     targets = event.targets()
-    per_target = [compute_visibility(event, sites, nights=nights, target_index=i, **visibility_options).nights
-                  for i in range(len(targets))]  # one vectorized run per candidate
+    first = compute_visibility(event, sites, nights=nights, target_index=0, **visibility_options)
+    per_target = [first.nights] + [  # one vectorized run per candidate, one ephemeris build (all targets)
+        compute_visibility(event, sites, nights=nights, target_index=i, ephemeris=first.ephemeris,
+                           **visibility_options).nights
+        for i in range(1, len(targets))]
     out = []
     for k, base in enumerate(per_target[0]):  # the same site/night order for every target
         entries = [_entry(targets[i], i, per_target[i][k]) for i in range(len(targets))]
