@@ -153,16 +153,35 @@ def write_figures(plan, folder: Path) -> list[dict]:
             results = [_run_job(j[:2]) for j in jobs]
     finally:
         _JOB_STATE = None
+    failed = [r for r in results if r is not None and "error" in r]
+    if failed:
+        raise FigureError(failed[0]["error"], failed[0]["trace"])
     return [r for r in results if r is not None]
+
+
+class FigureError(RuntimeError):
+    """A figure could not be drawn (an internal error: the message names the figure)."""
+
+    def __init__(self, message: str, trace: str = ""):
+        super().__init__(message)
+        self.trace = trace
+        if trace:
+            self.add_note("in the figure worker:\n" + trace)  # shown with --debug
 
 
 _JOB_STATE = None  # (plan, folder) for the figure workers (inherited through fork)
 
 
 def _run_job(job):
+    """Draw one figure; a failure comes back as text (exception objects may not survive pickling)."""
     name, arg = job
     plan, folder = _JOB_STATE
-    return FIGURES[name](plan, folder, arg)
+    try:
+        return FIGURES[name](plan, folder, arg)
+    except Exception as err:  # noqa: BLE001 - re-raised in the parent by write_figures
+        import traceback
+
+        return {"error": f"figure {name!r} ({arg}): {type(err).__name__}: {err}", "trace": traceback.format_exc()}
 
 
 def figure_jobs(plan) -> list[tuple]:
@@ -258,17 +277,22 @@ def snr_spectrum(plan, folder, setup_id):
 
     p = max((n for n in plan.useful() if n.choice.setup == setup_id), key=lambda n: n.phase_d)
     ref = next(r for r in plan.setup_refs if r.id == setup_id)
-    w, atm = p.window, plan.atmospheres[p.site.id]
-    args = argparse.Namespace(phase=p.phase_d, snr=plan.settings["snr_target"], at=p.choice.feature, time=None,
-                              nexp=None, max_exposure=MAX_EXPOSURE_S, ideal=False, profile="moffat",
-                              samples=cmd.DEFAULT_SAMPLES)
-    cond = {"airmass": forecast_airmass(w), "seeing_arcsec": atm.seeing_arcsec, "moon_illumination": w.moon_illumination,
-            "moon_sep_deg": w.moon_sep_deg, "moon_altitude_deg": w.moon_altitude_deg, "pwv_mm": atm.pwv_mm,
-            "source": f"best-airmass time of the night of {p.record.night.isoformat()}", "window": w.summary(),
-            "atmosphere": atm}
+    w = p.window
+    # the options `kncast exposure` would be given for this night, parsed by its own parser
+    parser = argparse.ArgumentParser()
+    cmd.add_arguments(parser)
+    args = parser.parse_args([
+        f"--setup={setup_id}", f"--phase={p.phase_d!r}", f"--snr={plan.settings['snr_target']!r}",
+        f"--at={p.choice.feature}", f"--max-exposure={MAX_EXPOSURE_S!r}", f"--airmass={forecast_airmass(w)!r}",
+        f"--moon-illumination={float(np.clip(w.moon_illumination, 0, 1))!r}",
+        f"--moon-sep={float(np.clip(w.moon_sep_deg, 0, 180))!r}",
+        f"--moon-alt={float(np.clip(w.moon_altitude_deg, -90, 90))!r}"])
+    cmd.check_options(args)
+    cond = cmd.observing_conditions(args, plan.event, ref)
     res = cmd.compute(args, plan.event, ref, plan.transient, cond, None)
     fig = exposure_figure(res)
-    return {"title": f"S/N spectrum, {setup_id}", "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
+    return {"title": f"S/N spectrum, {setup_id}",
+            "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
             "caption": f"S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s (the "
                        f"time for S/N {plan.settings['snr_target']:g} at {p.choice.feature}) on day {p.phase_d:.2f}, "
                        f"night of {p.record.night.isoformat()} at airmass {forecast_airmass(w):.2f}: the last night "

@@ -355,3 +355,16 @@ def test_candidates_event_near_the_zenith(tmp_path, run_cli):
     assert doc["settings"]["target"] == "cand-a"
     assert all(n["epoch"]["airmass"] >= 1.0 for n in doc["nights"] if n["epoch"])
     assert "planned for cand-a" in (out / "report.md").read_text()
+
+
+def test_a_failing_figure_worker_is_reported_and_leaves_no_folder(tmp_path, run_cli, monkeypatch):
+    import planner.plan_outputs as outputs
+
+    def broken(plan, folder, arg):
+        raise ValueError("no ink")
+
+    monkeypatch.setitem(outputs.FIGURES, "lightcurve", broken)
+    status, _, err = run_cli("plan", "--event", SOUTH, "--nights", "1", "--sites", "paranal",
+                             "--out", tmp_path / "out")
+    assert status == 1 and "lightcurve" in err and "no ink" in err and len(err.strip().splitlines()) == 1
+    assert list(tmp_path.iterdir()) == []
