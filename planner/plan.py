@@ -44,6 +44,9 @@ import numpy as np
 
 from planner.errors import OptionError
 
+__all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
+           "campaign_summary", "STRONG_TAU", "MAX_EXPOSURE_S"]
+
 STRONG_TAU = 1.0  # Sobolev optical depth above which a feature counts as strong (common practice: tau ~ 1)
 DEFAULT_SNR = 10.0
 DEFAULT_MAX_HOURS = 4.0

@@ -368,3 +368,13 @@ def test_a_failing_figure_worker_is_reported_and_leaves_no_folder(tmp_path, run_
                              "--out", tmp_path / "out")
     assert status == 1 and "lightcurve" in err and "no ink" in err and len(err.strip().splitlines()) == 1
     assert list(tmp_path.iterdir()) == []
+
+
+def test_default_folder_and_json_copy(tmp_path, run_cli, monkeypatch):
+    monkeypatch.chdir(tmp_path)
+    status, stdout, _ = run_cli("plan", "--event", SOUTH, "--nights", "1", "--sites", "paranal", "--json", "p.json")
+    assert status == 0
+    folder = tmp_path / "kncast-out" / "kn-demo-south"
+    assert json.loads((tmp_path / "p.json").read_text()) == json.loads((folder / "plan.json").read_text())
+    assert "Report: kncast-out/kn-demo-south/report.html" in stdout
+    assert "Recommended spectra" not in stdout  # quiet with --json: no tables
