@@ -74,6 +74,7 @@ class Block:
     items: list = field(default_factory=list)
     header: list = field(default_factory=list)
     path: str = ""
+    row_classes: list = field(default_factory=list)  # HTML class per table row ("" for none)
 
 
 # ----------------------------------------------------------------------------------- references
@@ -239,7 +240,8 @@ def _night_table(doc: dict) -> list[Block]:
     out += [Block("h2", "Night by night"),
             Block("p", "Every site and night with the choice and the reason in words."),
             Block("table", header=["Site", "Night", "Day", "Window (UTC)", "Airmass", "Setup", "Exposure",
-                                   "S/N in window", "Reason"], items=rows)]
+                                   "S/N in window", "Reason"], items=rows,
+                  row_classes=["useful" if n.get("choice") else "" for n in doc["nights"]])]
     return out
 
 
@@ -345,6 +347,11 @@ figure { margin: 1.2rem 0; }
 figure img { max-width: 100%; height: auto; border: 1px solid var(--rule); }
 figcaption { color: var(--muted); font-size: .85rem; }
 footer, .muted { color: var(--muted); font-size: .85rem; }
+nav.toc { font-size: .9rem; margin: .2rem 0 1rem; }
+nav.toc a { color: var(--accent); text-decoration: none; }
+td.n { white-space: nowrap; }
+tr.useful td { background: #eef6ee; }
+tr.useful td:first-child { border-left: 3px solid #3b7d4f; }
 """
 
 
@@ -354,9 +361,16 @@ def render_html(blocks: list[Block], folder: Path, title: str) -> str:
     parts = ["<!DOCTYPE html>", '<html lang="en">', "<head>", '<meta charset="utf-8">',
              '<meta name="viewport" content="width=device-width, initial-scale=1">',
              f"<title>{esc(title)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>"]
+    sections = [b.text for b in blocks if b.kind == "h2"]
     for b in blocks:
-        if b.kind in ("h1", "h2", "h3"):
-            parts.append(f"<{b.kind}>{esc(b.text)}</{b.kind}>")
+        if b.kind == "h1":
+            parts.append(f"<h1>{esc(b.text)}</h1>")
+            parts.append('<nav class="toc">' + " &middot; ".join(
+                f'<a href="#{_anchor(t)}">{esc(t)}</a>' for t in sections) + "</nav>")
+        elif b.kind == "h2":
+            parts.append(f'<h2 id="{_anchor(b.text)}">{esc(b.text)}</h2>')
+        elif b.kind == "h3":
+            parts.append(f"<h3>{esc(b.text)}</h3>")
         elif b.kind == "p":
             parts.append(f"<p>{esc(b.text)}</p>")
         elif b.kind == "note":
@@ -365,7 +379,9 @@ def render_html(blocks: list[Block], folder: Path, title: str) -> str:
             parts.append("<ul>" + "".join(f"<li>{esc(str(i))}</li>" for i in b.items) + "</ul>")
         elif b.kind == "table":
             head = "".join(f"<th>{esc(str(h))}</th>" for h in b.header)
-            body = "".join("<tr>" + "".join(f"<td>{esc(str(c))}</td>" for c in row) + "</tr>" for row in b.items)
+            classes = b.row_classes or [""] * len(b.items)
+            body = "".join((f'<tr class="{k}">' if k else "<tr>") + "".join(_cell(c) for c in row) + "</tr>"
+                           for row, k in zip(b.items, classes))
             parts.append(f"<table><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>")
         elif b.kind == "img":
             data = base64.b64encode((folder / b.path).read_bytes()).decode("ascii")
@@ -374,6 +390,16 @@ def render_html(blocks: list[Block], folder: Path, title: str) -> str:
                          f"<figcaption><strong>{esc(b.text)}.</strong> {caption}</figcaption></figure>")
     parts += ["</body>", "</html>"]
     return "\n".join(parts) + "\n"
+
+
+def _cell(value) -> str:
+    """A table cell; short values (dates, numbers, times) are kept on one line."""
+    text = str(value)
+    return f'<td class="n">{html.escape(text)}</td>' if len(text) <= 14 else f"<td>{html.escape(text)}</td>"
+
+
+def _anchor(text: str) -> str:
+    return re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-")
 
 
 def write_report(folder, doc: dict, figures: list[dict]) -> tuple[Path, Path]:
