@@ -53,6 +53,12 @@ def run(args) -> int:
 
         def say(text):
             bar.update(task, description=text, advance=1)
+            # the figures are drawn by forked workers: pause the display's refresh thread meanwhile
+            if text == "figures" and bar.live.is_started:
+                bar.refresh()
+                bar.stop()
+            elif not bar.disable and not bar.live.is_started:
+                bar.start()
 
         from planner.plan import build_plan
 
