@@ -165,7 +165,7 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
 
     check_settings(snr_target, max_hours, overhead_s, nights)
     say = progress or (lambda text: None)
-    sites = list(sites)
+    sites = list({s.id: s for s in sites}.values())  # each site once, in the order given
     say("visibility windows")
     vis = compute_visibility(event, sites, nights=nights, twilight=twilight)
     say("photosphere")
