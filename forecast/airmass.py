@@ -2,7 +2,8 @@
 
 Kasten & Young (1989), Applied Optics 28, 4735, eq. (3):
     X = 1 / [cos z + 0.50572 (96.07995 deg - z)^-1.6364]
-valid down to the horizon (X ~ 38 at z = 90 deg).  Used by the planner for
+valid down to the horizon (X ~ 38 at z = 90 deg).  The fit gives 0.9998 at the
+zenith, where the relative airmass is 1 by definition; we return at least 1.  Used by the planner for
 window airmass and by the exposure model for extinction and seeing.
 """
 from __future__ import annotations
@@ -17,7 +18,7 @@ def airmass_kasten_young(zenith_deg):
     z = np.asarray(zenith_deg, dtype=float)
     with np.errstate(invalid="ignore", divide="ignore"):
         x = 1.0 / (np.cos(np.radians(z)) + _A * (_B - z) ** (-_C))
-    return np.where((z >= 0) & (z <= 90.0), x, np.nan)
+    return np.where((z >= 0) & (z <= 90.0), np.maximum(x, 1.0), np.nan)
 
 
 def airmass_from_altitude(altitude_deg):

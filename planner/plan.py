@@ -343,9 +343,8 @@ def _feature_rows(p: NightPlan, fc, i: int, k: int, setup_id: str, strong_idx: l
 
 
 def forecast_airmass(window) -> float:
-    """The window's best airmass for the forecasts, at least 1: Kasten & Young (1989) give 0.9997 at the
-    zenith, the forecast kernels take airmass >= 1."""
-    return max(1.0, float(window.best_airmass))
+    """The window's best airmass (Kasten & Young 1989, >= 1) as the forecasts' plain float."""
+    return float(window.best_airmass)
 
 
 def exposure_conditions(site, window, atmosphere):
