@@ -24,7 +24,7 @@ can be measured; what limits the measurement is the signal at the trough.
 Usable time = min(window hours, ``max_hours``) minus the acquisition and
 readout overhead.
 
-The score (documented in ``docs/plan.md``)::
+The score (documented in README.md, section "The campaign plan")::
 
     score = N_clear_strong x S/N_window
 
@@ -542,7 +542,7 @@ def iso(t):
 
 
 def plan_document(plan: Plan, files: dict | None = None, references=None, assumptions=None) -> dict:
-    """The ``plan.json`` document (schema in ``planner.plan_schema`` and ``docs/plan.md``)."""
+    """The ``plan.json`` document (schema in ``planner.plan_schema`` and README.md, section "The campaign plan")."""
     from planner.output import document
     from planner.report import CAUTIONS
 

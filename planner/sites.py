@@ -52,9 +52,22 @@ class Site:
         return zoneinfo.ZoneInfo(self.timezone)
 
 
+def bundled_dir(package: str, source_folder: str) -> Path:
+    """Folder of bundled data installed as ``package`` (top-level ``source_folder`` in a checkout).
+
+    An installed kncast maps ``sites/`` and ``demo_events/`` to ``planner._sites`` and
+    ``planner._demo_events``; when a source checkout shadows the installed package (``python -m
+    pytest`` from the project root), the folders are read from the checkout itself.
+    """
+    try:
+        return Path(str(resources.files(package)))
+    except ModuleNotFoundError:
+        return Path(__file__).resolve().parents[1] / source_folder
+
+
 def bundled_sites_dir() -> Path:
-    """Folder of the sites shipped with kncast (works for wheel and editable installs)."""
-    return Path(str(resources.files("planner._sites")))
+    """Folder of the sites shipped with kncast."""
+    return bundled_dir("planner._sites", "sites")
 
 
 def load_site(path) -> Site:

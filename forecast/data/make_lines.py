@@ -38,13 +38,13 @@ DESCRIPTIONS = {
     "g_up": "statistical weight of the upper level (0 = not needed/not given)",
     "multiplet": "transition array label (configurations and terms; from memory, descriptive only)",
     "uncertain": "true when the wavelength or identification is not checked in a published source",
-    "confidence": "checked | memory (see REFERENCES notes in docs/lines.md)",
+    "confidence": "checked | memory (see REFERENCES notes in the README section Spectral features)",
     "source": "where the wavelength and strength come from",
     "note": "remarks",
 }
 
 COMMENTS = [
-    "kncast diagnostic line list (our own schema; documented in docs/lines.md).",
+    "kncast diagnostic line list (our own schema; documented in the README section Spectral features).",
     "Wavelengths: all published optical/near-IR values quoted in air (published_medium = air) were",
     "converted to vacuum with the IAU standard (Morton 2000, ApJS 130, 403) by make_lines.py.",
     "The He I 10830 components and the Cs I D lines were published in vacuum; [Te III] 2.105 micron",

@@ -15,21 +15,18 @@ def add_arguments(p) -> None:
 
 
 def demo_event_path():
-    """The bundled demo event file (works for wheel and editable installs)."""
-    from importlib import resources
+    """The bundled demo event file (wheel, editable install or source checkout)."""
+    from planner.sites import bundled_dir
 
-    return resources.files("planner._demo_events").joinpath(DEMO_EVENT)
+    return bundled_dir("planner._demo_events", "demo_events") / DEMO_EVENT
 
 
 def run(args) -> int:
-    from importlib import resources
-
     from planner.cli import build_parser
 
-    with resources.as_file(demo_event_path()) as path:
-        argv = ["plan", "--event", str(path), "--nights", str(args.nights)]
-        if args.out:
-            argv += ["--out", args.out]
-        plan_args = build_parser().parse_args(argv)
-        plan_args.debug = args.debug
-        return plan_args.run(plan_args)
+    argv = ["plan", "--event", str(demo_event_path()), "--nights", str(args.nights)]
+    if args.out:
+        argv += ["--out", args.out]
+    plan_args = build_parser().parse_args(argv)
+    plan_args.debug = args.debug
+    return plan_args.run(plan_args)

@@ -375,7 +375,7 @@ def _warnings(res, res_pts, target, time_s, nexp, feats) -> list[str]:
 # ------------------------------------------------------------------ outputs
 
 def exposure_document(res: dict) -> dict:
-    """The ``--json`` document (schema in docs/exposure.md)."""
+    """The ``--json`` document (schema in README.md, section "Exposure times and S/N")."""
     from planner.output import document
 
     cond = res["conditions"]

@@ -67,7 +67,7 @@ def run(args) -> int:
 
 
 def visibility_document(result) -> dict:
-    """The ``--json`` document (schema in docs/visibility.md)."""
+    """The ``--json`` document (schema in README.md, section "Visibility")."""
     from planner.output import document
 
     return document("visibility", event=result.event.summary(), settings=result.settings(),

@@ -1,0 +1,33 @@
+"""The installed distribution carries its data: sites, demo events and forecast tables."""
+from __future__ import annotations
+
+import json
+from importlib import metadata
+
+import pytest
+
+from conftest import ROOT
+
+
+def _installed_files():
+    dist = metadata.distribution("kncast")
+    direct = dist.read_text("direct_url.json")
+    if direct and json.loads(direct).get("dir_info", {}).get("editable"):
+        pytest.skip("editable install: data are read from the checkout (a wheel install is tested in CI)")
+    return {str(f) for f in dist.files or ()}
+
+
+def test_wheel_ships_every_site_and_demo_event():
+    files = _installed_files()
+    for path in sorted((ROOT / "sites").glob("*.toml")):
+        assert f"planner/_sites/{path.name}" in files
+    for path in sorted((ROOT / "demo_events").glob("*.*")):
+        if path.suffix in (".toml", ".xml"):
+            assert f"planner/_demo_events/{path.name}" in files
+
+
+def test_wheel_ships_forecast_data():
+    files = _installed_files()
+    for path in sorted((ROOT / "forecast" / "data").glob("*")):
+        if path.suffix in (".toml", ".ecsv"):
+            assert f"forecast/data/{path.name}" in files
