@@ -21,7 +21,7 @@ The estimate, evaluated at the photosphere of each epoch:
 3. Excitation.  Boltzmann population of the lower level:
    n_l = n_ion (g_l / U) exp(-E_l / k T).
 4. Line opacity.  Sobolev optical depth in homologous flow (Sobolev 1960; e.g.
-   Kasen et al. 2006; common practice):
+   Castor 1970, MNRAS 149, 111; Jeffery & Branch 1990; from memory):
    tau = (pi e^2 / m_e c) f lambda t n_l (1 - exp(-h c / lambda k T)),
    the last factor being the LTE stimulated-emission correction
    1 - g_l n_u / (g_u n_l).

@@ -13,7 +13,8 @@ merger in the source frame), vectorized over epochs:
 ``heating``  one or more ejecta components, each a one-zone radioactive
     model (``forecast.heating``): Korobkin et al. (2012) heating times the
     Barnes et al. (2016) thermalization, diffused with Arnett (1982), and a
-    photosphere with a temperature floor (Nicholl et al. 2017, ApJ 848, L18):
+    photosphere with a temperature floor (the floor prescription of multi-component
+    kilonova light-curve fits; common practice):
     T = max[(L / (4 pi sigma v^2 t^2))^1/4, T_floor]; R = v t above the
     floor, R = (L / (4 pi sigma T_floor^4))^1/2 once the floor is reached.
     Components radiate as separate blackbodies.
@@ -109,7 +110,7 @@ class PowerLawPhotosphere:
         v_free = np.minimum(self.velocity_ref_c * x ** -self.velocity_index, self.v_max_c)
         r_free = v_free * C_CGS * t * DAY_S
         lum = stefan_boltzmann_luminosity(t_free, r_free)
-        # at the floor the photosphere recedes into the ejecta and keeps L (Nicholl et al. 2017)
+        # at the floor the photosphere recedes into the ejecta and keeps L (floor prescription, common practice)
         temp = np.maximum(t_free, self.temperature_floor_K)
         radius = np.where(t_free >= self.temperature_floor_K, r_free,
                           np.sqrt(lum / (4.0 * np.pi * SIGMA_SB_CGS * temp**4)))
