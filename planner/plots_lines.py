@@ -63,7 +63,7 @@ def _epoch_panel(ax, result, i, lam, flux, tellurics, airmass, pwv_mm):
     ax.set_ylim(bottom, 1.12)
     ax.set_yticks([0, 0.5, 1.0])
     ax.set_ylabel("F$_\\lambda$ / max", fontsize=8)
-    ax.text(0.995, 0.97, f"day {ep.phase_d[i]:g}   T = {ep.temperature_K[i]:.0f} K   "
+    ax.text(0.995, 0.97, f"day {ep.phase_d[i]:.2f}   T = {ep.temperature_K[i]:.0f} K   "
             f"v$_{{ph}}$ = {ep.v_phot_c[i]:.2f} c   v$_{{max}}$ = {ep.v_max_c[i]:.2f} c",
             transform=ax.transAxes, ha="right", va="top", fontsize=9,
             bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.8})
@@ -125,7 +125,7 @@ def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.
         a.xaxis.set_minor_formatter(NullFormatter())
     axes[-1].set_xticklabels([f"{t:,}" for t in ticks])
     fig.suptitle(f"{title}: feature windows per epoch (blue: absorption, tick = expected trough; orange: "
-                 f"emission), grey: telluric bands at airmass {airmass:g}, PWV {pwv_mm:g} mm",
+                 f"emission), grey: telluric bands at airmass {airmass:.2f}, PWV {pwv_mm:g} mm",
                  fontsize=10, x=0.01, ha="left", y=1 - 0.12 / total_h)
     fig.text(0.01, 0.002, "Model estimates; the observatory's own tools and rules take precedence.",
              fontsize=7, color="0.4")
