@@ -15,19 +15,29 @@ from forecast.errors import DataFileError
 _MISSING = object()
 
 
-def read_toml(path) -> dict:
-    """Parse a TOML file, turning every failure into a DataFileError naming the file."""
+def read_nonempty_bytes(path, expected: str) -> bytes:
+    """The bytes of a data file; missing, unreadable or empty files raise DataFileError.
+
+    ``expected`` names the kind of file in the message ("a TOML file").
+    """
     path = Path(path)
     try:
         raw = path.read_bytes()
     except FileNotFoundError:
         raise DataFileError(path, "", "file not found") from None
     except IsADirectoryError:
-        raise DataFileError(path, "", "is a folder, expected a TOML file") from None
+        raise DataFileError(path, "", f"is a folder, expected {expected}") from None
     except OSError as err:
         raise DataFileError(path, "", f"cannot be read ({err.strerror})") from None
     if not raw.strip():
         raise DataFileError(path, "", "file is empty")
+    return raw
+
+
+def read_toml(path) -> dict:
+    """Parse a TOML file, turning every failure into a DataFileError naming the file."""
+    path = Path(path)
+    raw = read_nonempty_bytes(path, "a TOML file")
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError:

@@ -31,6 +31,7 @@ import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
+from forecast.datafiles import read_nonempty_bytes
 from forecast.errors import DataFileError
 from planner.errors import InputError
 from planner.events import Event, T0_MAX, T0_MIN, check_distance
@@ -76,16 +77,7 @@ def load_voevent(path) -> Event:
 # --- reading -------------------------------------------------------------
 def _parse(path: Path) -> ET.Element:
     """The packet's root element, namespaces stripped from every tag."""
-    try:
-        raw = path.read_bytes()
-    except FileNotFoundError:
-        raise DataFileError(path, "", "file not found") from None
-    except IsADirectoryError:
-        raise DataFileError(path, "", "is a folder, expected a VOEvent XML file") from None
-    except OSError as err:
-        raise DataFileError(path, "", f"cannot be read ({err.strerror})") from None
-    if not raw.strip():
-        raise DataFileError(path, "", "file is empty")
+    raw = read_nonempty_bytes(path, "a VOEvent XML file")
     if b"<!ENTITY" in raw:
         raise DataFileError(path, "", "XML entity declarations are not accepted in alert packets")
     try:

@@ -111,7 +111,6 @@ def window_margin_fn(skyq: Sky, rules: Rules):
 
 def split_at_bounds(rows, start, end, bounds):
     """Cut intervals at night bounds; returns (rows, night index, start, end), empty pieces dropped."""
-    n_nights = bounds.shape[1] - 1
     lo, hi = bounds[rows, :-1], bounds[rows, 1:]
     s = np.maximum(start[:, None], lo)
     e = np.minimum(end[:, None], hi)

@@ -63,6 +63,20 @@ def sites_from_args(args):
     return registry, registry.select(ids)
 
 
+def add_night_rule_options(g, subject: str, max_nights: int) -> None:
+    """``--nights --twilight --min-altitude --max-airmass --min-moon-sep`` for ``subject`` ("target", "pixel")."""
+    g.add_argument("--nights", type=positive_int("--nights", high=max_nights), default=3, metavar="N",
+                   help="local nights from the one in progress at t0 (default 3)")
+    g.add_argument("--twilight", choices=["civil", "nautical", "astronomical"], default="nautical",
+                   help="darkness starts when the Sun is below -6 / -12 / -18 deg (default nautical)")
+    g.add_argument("--min-altitude", type=finite_float("--min-altitude", 0, 89), metavar="DEG",
+                   help=f"lowest {subject} altitude, replaces each site's own limit (0-89 deg)")
+    g.add_argument("--max-airmass", type=finite_float("--max-airmass", 1, 38, low_open=True), metavar="X",
+                   help="highest airmass (Kasten & Young 1989), in (1, 38]")
+    g.add_argument("--min-moon-sep", type=finite_float("--min-moon-sep", 0, 180), metavar="DEG",
+                   help=f"smallest Moon-{subject} separation (0-180 deg; default: no Moon rule)")
+
+
 def add_output_options(p: argparse.ArgumentParser, plot: bool = True) -> None:
     g = p.add_argument_group("output")
     g.add_argument("--json", metavar="PATH", help="write machine-readable JSON to PATH ('-' for stdout)")

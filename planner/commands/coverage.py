@@ -3,8 +3,8 @@ from __future__ import annotations
 
 import sys
 
-from planner.commands._common import (add_output_options, add_site_options, check_plot_path, console, emit_json,
-                                      finite_float, positive_int, sites_from_args)
+from planner.commands._common import (add_night_rule_options, add_output_options, add_site_options,
+                                      check_plot_path, console, emit_json, finite_float, sites_from_args)
 
 HELP = "observable probability of a HEALPix sky map per site and night"
 
@@ -20,16 +20,7 @@ def add_arguments(p) -> None:
                    help="merger/alert time, ISO 8601 UTC, e.g. 2027-03-14T02:17:00Z (nothing counts before it)")
     add_site_options(p)
     g = p.add_argument_group("nights and rules")
-    g.add_argument("--nights", type=positive_int("--nights", high=31), default=3, metavar="N",
-                   help="local nights from the one in progress at t0 (default 3)")
-    g.add_argument("--twilight", choices=["civil", "nautical", "astronomical"], default="nautical",
-                   help="darkness starts when the Sun is below -6 / -12 / -18 deg (default nautical)")
-    g.add_argument("--min-altitude", type=finite_float("--min-altitude", 0, 89), metavar="DEG",
-                   help="lowest pixel altitude, replaces each site's own limit (0-89 deg)")
-    g.add_argument("--max-airmass", type=finite_float("--max-airmass", 1, 38, low_open=True), metavar="X",
-                   help="highest airmass (Kasten & Young 1989), in (1, 38]")
-    g.add_argument("--min-moon-sep", type=finite_float("--min-moon-sep", 0, 180), metavar="DEG",
-                   help="smallest Moon-pixel separation (0-180 deg; default: no Moon rule)")
+    add_night_rule_options(g, "pixel", max_nights=31)
     g.add_argument("--step", type=finite_float("--step", 1, 60), default=10.0, metavar="MIN",
                    help="time step inside each dark interval, minutes (1-60, default 10)")
     add_output_options(p)

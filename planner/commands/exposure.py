@@ -379,7 +379,7 @@ def exposure_document(res: dict) -> dict:
     from planner.output import document
 
     cond = res["conditions"]
-    r, e = res["rates"], res["result"]
+    e = res["result"]
     on = e.on_detector
     samples = [{"wavelength_A": round(float(e.wavelength_A[i]), 2),
                 "arm": res["grid"].arm_names[int(res["grid"].arm_index[i])],

@@ -1,8 +1,8 @@
 """``kncast visibility``: from which sites, on which nights, between which times."""
 from __future__ import annotations
 
-from planner.commands._common import (add_event_options, add_output_options, add_site_options, check_plot_path,
-                                      console, emit_json, event_from_args, finite_float, positive_int,
+from planner.commands._common import (add_event_options, add_night_rule_options, add_output_options,
+                                      add_site_options, check_plot_path, console, emit_json, event_from_args,
                                       sites_from_args)
 
 HELP = "observing windows per site and night: dusk, dawn, airmass and Moon"
@@ -15,16 +15,7 @@ def add_arguments(p) -> None:
     add_event_options(p)
     add_site_options(p)
     g = p.add_argument_group("nights and rules")
-    g.add_argument("--nights", type=positive_int("--nights", high=366), default=3, metavar="N",
-                   help="local nights from the one in progress at t0 (default 3)")
-    g.add_argument("--twilight", choices=["civil", "nautical", "astronomical"], default="nautical",
-                   help="darkness starts when the Sun is below -6 / -12 / -18 deg (default nautical)")
-    g.add_argument("--min-altitude", type=finite_float("--min-altitude", 0, 89), metavar="DEG",
-                   help="lowest target altitude, replaces each site's own limit (0-89 deg)")
-    g.add_argument("--max-airmass", type=finite_float("--max-airmass", 1, 38, low_open=True), metavar="X",
-                   help="highest airmass (Kasten & Young 1989), in (1, 38]")
-    g.add_argument("--min-moon-sep", type=finite_float("--min-moon-sep", 0, 180), metavar="DEG",
-                   help="smallest Moon-target separation (0-180 deg)")
+    add_night_rule_options(g, "target", max_nights=366)
     g.add_argument("--candidates", action="store_true",
                    help="also rank the event's [[candidate]] positions per site and night (table; "
                         "'candidates' in --json)")
