@@ -19,7 +19,11 @@ sum over lambda / R / d_lambda pixels along the dispersion.
 no slit loss, so S/N = sqrt(N*) exactly (pure photon statistics).
 
 All kernels broadcast: flux arrays (n_epoch, n_setup, n_wave) against setup
-grids (n_setup, n_wave).
+grids (n_setup, n_wave).  The conditions broadcast too: airmass, seeing, water
+vapour and the Moon geometry (:class:`forecast.skybright.MoonGeometry`) may be
+arrays, e.g. shape (n_epoch, 1, 1) for one value per epoch, or (n_sample,) for
+one value per wavelength sample of a flat grid; so may the time and the number
+of exposures given to :func:`expose`.
 """
 from __future__ import annotations
 
@@ -38,7 +42,11 @@ SNR_BASIS = "per resolution element"
 
 @dataclass(frozen=True)
 class Conditions:
-    """Observing conditions: airmass, zenith seeing FWHM at 5000 A (arcsec), Moon, water vapour, site atmosphere."""
+    """Observing conditions: airmass, zenith seeing FWHM at 5000 A (arcsec), Moon, water vapour, site atmosphere.
+
+    ``airmass``, ``seeing_arcsec``, ``pwv_mm`` and the fields of ``moon`` may be arrays that
+    broadcast against the rate arrays (..., n_wave); ``atmosphere`` and ``sky`` are one per call.
+    """
 
     airmass: float = 1.2
     seeing_arcsec: float = 0.8
@@ -210,8 +218,8 @@ class ExposureResult:
     """S/N spectra for a total time split into n_exp equal exposures (arrays (..., n_wave))."""
 
     wavelength_A: np.ndarray
-    time_s: float
-    n_exp: int
+    time_s: float                 # or an array broadcasting with the rates
+    n_exp: int                    # or an array broadcasting with the rates
     source_e: np.ndarray          # per spectral pixel, in the aperture, all exposures
     sky_e: np.ndarray             # per spectral pixel, in the aperture, all exposures
     snr_per_pixel: np.ndarray
@@ -223,17 +231,22 @@ class ExposureResult:
 
 
 def expose(r: Rates, time_s, n_exp=1) -> ExposureResult:
-    """S/N per pixel, per resolution element and per A for ``time_s`` seconds in ``n_exp`` exposures."""
+    """S/N per pixel, per resolution element and per A for ``time_s`` seconds in ``n_exp`` exposures.
+
+    ``time_s`` and ``n_exp`` are numbers or arrays broadcasting against the rates (..., n_wave);
+    the result keeps them as float / int when they are numbers.
+    """
     check_range("exposure time", time_s, 0.0, 1e6, low_open=True, unit=" s")
     check_range("number of exposures", n_exp, 1, 10_000)
-    t = float(time_s)
+    t = np.asarray(time_s, dtype=float) if np.ndim(time_s) else float(time_s)
+    n_exp = np.asarray(n_exp, dtype=int) if np.ndim(n_exp) else int(n_exp)
     s_pix = ccd.snr_from_rates(t, n_exp, r.source_e_per_s, r.n_spatial, r.sky_e_per_s_pix, r.dark_e_per_s_pix,
                                r.read_var_e2)
     s_pix = np.where(r.on_detector, s_pix, 0.0)
     src_e = r.source_e_per_s * t
     sky_e = r.sky_e_per_s * t
     return ExposureResult(
-        wavelength_A=r.wavelength_A, time_s=t, n_exp=int(n_exp), source_e=src_e, sky_e=sky_e,
+        wavelength_A=r.wavelength_A, time_s=t, n_exp=n_exp, source_e=src_e, sky_e=sky_e,
         snr_per_pixel=s_pix, snr_per_resel=ccd.snr_per_resel(s_pix, r.pixels_per_resel),
         snr_per_A=ccd.snr_per_angstrom(s_pix, r.dispersion_A_per_pix),
         saturated=r.on_detector & (r.peak_e_per_s_pix * t / n_exp > r.full_well_e),

@@ -171,7 +171,11 @@ def moonlight_photons(wavelength_A, v_moon_mag, moon_sep_deg):
 
 @dataclass(frozen=True)
 class MoonGeometry:
-    """Moon state for the sky model: illuminated fraction, target separation and Moon altitude (deg)."""
+    """Moon state for the sky model: illuminated fraction, target separation and Moon altitude (deg).
+
+    Each field is a float or an array (one value per epoch, say); arrays broadcast with each
+    other and with the sky zenith distance and wavelength grid given to :func:`sky_photons`.
+    """
 
     illumination: float = 0.0
     sep_deg: float = 180.0
@@ -187,17 +191,24 @@ def sky_photons(wavelength_A, sky_zenith_deg, k_v, moon: MoonGeometry | None = N
     """Model sky photon surface brightness (photons s^-1 cm^-2 A^-1 arcsec^-2) at the target position.
 
     Dark sky: band values scaled from zenith with K&S eq. (2) (same factor at every wavelength);
-    plus moonlight from K&S eq. (15) spread with :func:`moonlight_photons`.
+    plus moonlight from K&S eq. (15) spread with :func:`moonlight_photons`, where the Moon is
+    above the horizon and lit (elsewhere the dark sky alone).  ``wavelength_A``, ``sky_zenith_deg``,
+    ``k_v``, ``dark_offset_mag`` and the fields of ``moon`` broadcast (e.g. an epoch axis).
     """
     check_range("sky zenith distance", sky_zenith_deg, 0.0, 90.0, high_open=True, unit=" deg")
     x = ks_airmass(sky_zenith_deg)
-    dark_factor = 10.0 ** (-0.4 * k_v * (x - 1.0)) * x
+    dark_factor = 10.0 ** (-0.4 * np.asarray(k_v, dtype=float) * (x - 1.0)) * x
     dark = ab_to_photons(dark_sky_ab_mag(wavelength_A, dark_offset_mag), wavelength_A) * dark_factor
-    if moon is None or moon.altitude_deg <= 0.0 or moon.illumination <= 0.0:
+    if moon is None:
         return dark
-    b_moon = moon_brightness_nl(phase_angle_from_illumination(moon.illumination), moon.sep_deg,
-                                90.0 - moon.altitude_deg, sky_zenith_deg, k_v)
-    return dark + moonlight_photons(wavelength_A, vmag_from_nanolambert(b_moon), moon.sep_deg)
+    illum = np.asarray(moon.illumination, dtype=float)
+    sep = np.asarray(moon.sep_deg, dtype=float)
+    alt = np.asarray(moon.altitude_deg, dtype=float)
+    lit = (alt > 0.0) & (illum > 0.0)
+    b_moon = moon_brightness_nl(phase_angle_from_illumination(illum), sep, 90.0 - alt, sky_zenith_deg, k_v)
+    # where the Moon is down or new, a placeholder 1 nL keeps the magnitude finite; its light is masked out
+    moon_ph = moonlight_photons(wavelength_A, vmag_from_nanolambert(np.where(lit, b_moon, 1.0)), sep)
+    return dark + np.where(lit, moon_ph, 0.0)
 
 
 # --- user sky file -------------------------------------------------------------------------

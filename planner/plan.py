@@ -14,7 +14,8 @@ its own:
    forecast of :mod:`forecast.features`), all epochs x all setups in one call;
 4. per epoch and setup: the S/N reachable at the reference feature in the
    usable time, and the exposure time for the target S/N there
-   (:mod:`forecast.exposure`), batched over the setups of a site.
+   (:mod:`forecast.exposure`), one batched call per site for all its epochs
+   and setups.
 
 The reference feature of a setup is the clear strong feature whose trough
 gets the highest S/N.  Every strong feature (Sobolev tau >= ``STRONG_TAU``)
@@ -251,8 +252,9 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, snr_target: float, 
 
     Features: one :func:`forecast.features.forecast_features` call for all
     epochs x all setups (airmass and water vapour per epoch).  Exposures: per
-    epoch, one :func:`forecast.exposure.rates` call for all setups of the site
-    at once, sampled at the troughs of that epoch's strong features.
+    site, one batched :mod:`forecast.exposure` evaluation for all its epochs and
+    setups at once (:func:`site_exposures`), sampled at the troughs of each
+    epoch's strong features.
     """
     refs = [r for site_refs in by_site.values() for r in site_refs]
     if not epochs or not refs:
@@ -264,11 +266,24 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, snr_target: float, 
     every = plan.transient.flux_flam(fc.epochs.phase_d, fc.windows.trough_A.ravel()).reshape(n, n, nf)
     fc.trough_flux_flam = every[np.arange(n), np.arange(n)]
     column = {r.id: k for k, r in enumerate(refs)}
-    for i, p in enumerate(epochs):  # one batched exposure evaluation per epoch (all setups of its site)
-        site_refs = by_site.get(p.site.id, [])
-        if site_refs:
+    site_of = np.array([p.site.id for p in epochs])
+    batches = {}
+    for site_id, site_refs in by_site.items():  # one batched exposure evaluation per site (a handful of sites)
+        rows = np.flatnonzero(site_of == site_id)
+        if site_refs and rows.size:
             cols = [column[r.id] for r in site_refs]
-            p.outcomes = _outcomes_for_epoch(plan, p, i, fc, site_refs, cols, snr_target)
+            batches[site_id] = (cols, site_exposures(plan, epochs, rows, fc, site_refs, cols, snr_target))
+    for i, p in enumerate(epochs):  # bookkeeping only: SetupOutcome objects from the batched arrays
+        if p.site.id in batches:
+            cols, (needed, snr, t_need, n_need) = batches[p.site.id]
+            ex = (snr[:, i], t_need[:, i], n_need[:, i]) if needed[i] else None
+            p.outcomes = _outcomes_for_epoch(plan, p, i, fc, by_site[p.site.id], cols, ex, snr_target)
+
+
+def strong_mask(fc) -> np.ndarray:
+    """(n_epochs, n_features): Sobolev optical depth finite and >= ``STRONG_TAU``."""
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(fc.tau) & (fc.tau >= STRONG_TAU)
 
 
 def site_conditions(site):
@@ -293,16 +308,20 @@ def feature_forecast(plan: Plan, epochs: list, refs: list):
                              airmass=airmass, pwv_mm=pwv, setup_ids=[r.id for r in refs])
 
 
-def _outcomes_for_epoch(plan: Plan, p: NightPlan, i: int, fc, refs: list, cols: list, snr_target: float):
-    """SetupOutcome per setup of the site at epoch ``i`` (features from ``fc``, S/N from forecast.exposure)."""
+def _outcomes_for_epoch(plan: Plan, p: NightPlan, i: int, fc, refs: list, cols: list, ex, snr_target: float):
+    """SetupOutcome per setup of the site at epoch ``i`` (features from ``fc``).
+
+    ``ex`` is None (no clear strong feature or no usable time) or this epoch's (S/N, time, n_exp) arrays
+    (n_setups, n_features) from :func:`site_exposures`.
+    """
     tau = fc.tau[i]
-    strong_idx = [int(f) for f in fc.rank[i] if np.isfinite(tau[f]) and tau[f] >= STRONG_TAU]
+    strong = strong_mask(fc)[i]
+    strong_idx = [int(f) for f in fc.rank[i] if strong[f]]
     clear = np.array([[fc.verdict[i, f, k] == "clear" for f in strong_idx] for k in cols], dtype=bool)
     clear = clear.reshape(len(cols), len(strong_idx))
     snr = t_need = n_need = None
-    if clear.any() and p.hours_available > 0:
-        snr, t_need, n_need = _exposures(plan, p, refs, fc.windows.trough_A[i, strong_idx],
-                                         fc.trough_flux_flam[i, strong_idx], snr_target)
+    if ex is not None:
+        snr, t_need, n_need = (np.asarray(a)[:, strong_idx] for a in ex)
     outcomes = []
     for j, (k, ref) in enumerate(zip(cols, refs)):
         o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m, n_strong=len(strong_idx),
@@ -349,35 +368,62 @@ def forecast_airmass(window) -> float:
 
 def exposure_conditions(site, window, atmosphere):
     """forecast.exposure.Conditions for a window: best airmass, Moon at the best time, site seeing/PWV."""
+    return windows_conditions([window], atmosphere, scalar=True)
+
+
+def windows_conditions(windows, atmosphere, index=None, scalar=False):
+    """forecast.exposure.Conditions with one value per window (arrays (n_windows,), or picked by ``index``):
+    best airmass, Moon at the best time; the site's seeing, PWV and atmosphere.  ``scalar``: plain floats
+    of the single window given."""
     from forecast.exposure import Conditions
     from forecast.skybright import MoonGeometry
 
-    moon = MoonGeometry(illumination=float(np.clip(window.moon_illumination, 0.0, 1.0)),
-                        sep_deg=float(np.clip(window.moon_sep_deg, 0.0, 180.0)),
-                        altitude_deg=float(np.clip(window.moon_altitude_deg, -90.0, 90.0)))
-    return Conditions(airmass=forecast_airmass(window), seeing_arcsec=atmosphere.seeing_arcsec, moon=moon,
-                      pwv_mm=atmosphere.pwv_mm, atmosphere=atmosphere)
+    def values(get, lo=-np.inf, hi=np.inf):
+        v = np.clip(np.array([float(get(w)) for w in windows]), lo, hi)
+        return float(v[0]) if scalar else (v if index is None else v[index])
+
+    moon = MoonGeometry(illumination=values(lambda w: w.moon_illumination, 0.0, 1.0),
+                        sep_deg=values(lambda w: w.moon_sep_deg, 0.0, 180.0),
+                        altitude_deg=values(lambda w: w.moon_altitude_deg, -90.0, 90.0))
+    return Conditions(airmass=values(forecast_airmass), seeing_arcsec=atmosphere.seeing_arcsec,
+                      moon=moon, pwv_mm=atmosphere.pwv_mm, atmosphere=atmosphere)
 
 
-def _exposures(plan: Plan, p: NightPlan, refs: list, trough_A, flux_flam, snr_target: float):
-    """S/N per resolution element in the usable time, and (time, n_exp) for the target, at every trough
-    (observed continuum ``flux_flam`` there) for every setup of the site: arrays (n_setups, n_troughs), all
-    setups in one batched call."""
+def site_exposures(plan: Plan, epochs: list, rows, fc, refs: list, cols: list, snr_target: float):
+    """Exposures of one site, all its epochs (``rows``: indices into ``epochs``) and setups in one batched call.
+
+    Sampled at the trough of every strong feature of every epoch that has usable time and a strong
+    feature seen clear by one of the setups (observed continuum ``fc.trough_flux_flam`` there), with
+    that epoch's airmass, Moon and time: S/N per resolution element in the usable time, and
+    (time, n_exp) for the target.  Returns (needed (n_epochs,) bool, snr, time s, n_exp), the last
+    three arrays (n_setups, n_epochs, n_features): NaN / 0 where not evaluated.
+    """
     from forecast import exposure
 
-    atm = plan.atmospheres[p.site.id]
-    cond = exposure_conditions(p.site, p.window, atm)
-    lam = np.asarray(trough_A, dtype=float)
+    n, nf = fc.tau.shape
+    strong = strong_mask(fc)[rows]                                                   # (n_rows, nf)
+    hours = np.array([epochs[i].hours_available for i in rows])
+    clear = (fc.verdict[rows][:, :, cols] == "clear") & strong[:, :, None]
+    needed = np.zeros(n, dtype=bool)
+    needed[rows] = clear.any(axis=(1, 2)) & (hours > 0)
+    snr_all = np.full((len(refs), n, nf), np.nan)
+    t_all, n_all = snr_all.copy(), np.zeros((len(refs), n, nf), dtype=int)
+    e, f = np.nonzero(needed[rows][:, None] & strong)                             # samples: (epoch, feature)
+    if not e.size:
+        return needed, snr_all, t_all, n_all
+    ep = rows[e]
+    lam = fc.windows.trough_A[ep, f]
+    cond = windows_conditions([epochs[i].window for i in rows], plan.atmospheres[epochs[rows[0]].site.id], e)
     grid = exposure.stack_grids([exposure.setup_grid(r.telescope, r.instrument, r.setup, wavelength_A=lam)
-                                 for r in refs])
-    flux = np.asarray(flux_flam, dtype=float)[None, :]                                # (1, n_troughs)
+                                 for r in refs])                                    # (n_setups, n_samples)
+    flux = fc.trough_flux_flam[ep, f][None, :]                                      # (1, n_samples)
     telluric = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
     r = exposure.rates(flux, grid, cond, telluric)
-    available = p.hours_available * 3600.0
-    n_exp = max(1, math.ceil(available / MAX_EXPOSURE_S - 1e-9))
-    snr = exposure.expose(r, available, n_exp).snr_per_resel
-    t_need, n_need = exposure.time_for_snr(r, snr_target, MAX_EXPOSURE_S)
-    return np.asarray(snr), np.asarray(t_need), np.asarray(n_need)
+    available = hours[e] * 3600.0
+    n_exp = np.maximum(1, np.ceil(available / MAX_EXPOSURE_S - 1e-9)).astype(int)
+    snr_all[:, ep, f] = exposure.expose(r, available, n_exp).snr_per_resel
+    t_all[:, ep, f], n_all[:, ep, f] = exposure.time_for_snr(r, snr_target, MAX_EXPOSURE_S)
+    return needed, snr_all, t_all, n_all
 
 
 def _verdict(o: SetupOutcome) -> str:
