@@ -73,15 +73,15 @@ def astropy_baseline(skymap, sites, t0, result):
     from astropy.time import Time
 
     from planner.events import Event
-    from planner.skycoverage import _dot, _frame_vectors, _sample_dark_time
+    from planner.skycoverage import dot_rows, frame_vectors, sample_dark_time
     from planner.visibility import compute_visibility
 
     # the coverage's own sample times and zenith vectors, as compute_coverage builds them
     ra, dec = skymap.peak_radec_deg()
     vis = compute_visibility(Event(id="map-peak", ra_deg=ra, dec_deg=dec, t0=t0, source=skymap.path), sites,
                              nights=1, twilight="nautical", min_moon_sep_deg=30.0)
-    cols, _ = _sample_dark_time(vis, result.settings["step_min"])
-    zenith = _frame_vectors(vis, cols)[0]
+    cols, _ = sample_dark_time(vis, result.settings["step_min"])
+    zenith = frame_vectors(vis, cols)[0]
     pick = np.linspace(0, cols.mjd.size - 1, BASE_SAMPLES + 1).round().astype(int)
     pixels = ICRS(CartesianRepresentation(skymap.xyz))
     pix32 = skymap.xyz.astype(np.float32)
@@ -95,7 +95,7 @@ def astropy_baseline(skymap, sites, t0, result):
         alt = pixels.transform_to(frame).alt.deg
         if k:  # the first sample is the warm-up
             elapsed += time.perf_counter() - start
-        sin_alt = _dot(zenith[:, s].astype(np.float32)[None, :], pix32)[0].astype(float)
+        sin_alt = dot_rows(zenith[:, s].astype(np.float32)[None, :], pix32)[0].astype(float)
         ours = np.degrees(np.arcsin(np.clip(sin_alt, -1.0, 1.0)))
         mid = np.abs(alt) <= 80.0
         worst = max(worst, float(np.max(np.abs(ours - alt)[mid])) * 3600.0)

@@ -110,7 +110,7 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
     vis = compute_visibility(probe, sites, nights=nights, twilight=twilight, min_altitude_deg=min_altitude_deg,
                              max_airmass=max_airmass, min_moon_sep_deg=min_moon_sep_deg)
     sites = vis.sites
-    cols, records = _sample_dark_time(vis, step_min)
+    cols, records = sample_dark_time(vis, step_min)
     obs = np.zeros((skymap.npix, len(records)), dtype=bool) if pixel_flags else None
     if cols.mjd.size:
         _accumulate(skymap, vis, cols, records, obs)
@@ -120,7 +120,7 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
     return CoverageResult(skymap=skymap, sites=sites, nights=records, observable=obs, settings=settings)
 
 
-def _sample_dark_time(vis, step_min: float):
+def sample_dark_time(vis, step_min: float):
     """Sample columns inside each night's dark interval after t0, and the empty night records."""
     bounds, t0 = vis.night_bounds_mjd, vis.t0_mjd
     index = {s.id: i for i, s in enumerate(vis.sites)}
@@ -166,7 +166,7 @@ def _record(rec, note, dark_hours, samples) -> CoverageNight:
                          dark_hours=float(dark_hours), samples=int(samples))
 
 
-def _frame_vectors(vis, cols: _Columns):
+def frame_vectors(vis, cols: _Columns):
     """ICRS unit vectors (3, n_samples) of the zenith, north, east and topocentric Moon at each sample."""
     import erfa
 
@@ -195,7 +195,7 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     Arrays are laid out samples x pixels, so each site/night is a contiguous block of rows.
     """
     rules = vis.rules
-    zen, north, east, moon = (np.ascontiguousarray(v.T, dtype=np.float32) for v in _frame_vectors(vis, cols))
+    zen, north, east, moon = (np.ascontiguousarray(v.T, dtype=np.float32) for v in frame_vectors(vis, cols))
     floor = np.maximum(rules.min_altitude_deg[cols.site], rules.airmass_altitude_deg)
     sin_floor = np.sin(np.radians(floor)).astype(np.float32)[:, None]
     horizons = [(_row_range(cols.site, i), hz) for i, hz in enumerate(rules.horizons)
@@ -212,7 +212,7 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     for lo in range(0, skymap.npix, chunk):  # blocks of pixels (memory bound), each vectorized over all samples
         sl = slice(lo, min(lo + chunk, skymap.npix))
         pix = skymap.xyz[:, sl].astype(np.float32)  # (3, m)
-        sin_alt = _dot(zen, pix)  # (n_samples, m)
+        sin_alt = dot_rows(zen, pix)  # (n_samples, m)
         ok = sin_alt >= sin_floor
         for (a, b), hz in horizons:  # sites with a horizon profile: the floor depends on azimuth
             _apply_horizon(ok[a:b], sin_alt[a:b], sin_floor[a:b], pix, north[a:b], east[a:b], hz)
@@ -233,7 +233,7 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
         records[k].area90_observable_deg2 = float(area[s])
 
 
-def _dot(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def dot_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """(n, 3) x (3, m) product by einsum: a 3-term sum is memory-bound, and multithreaded BLAS
     slows it several-fold on a busy machine."""
     return np.einsum("ij,jk->ik", a, b)
@@ -252,7 +252,7 @@ def _apply_horizon(ok, sin_alt, sin_floor, pix, north, east, hz) -> None:
     band = ok & (sin_alt < top)  # above the site floor but not above the profile's highest point
     if not band.any():
         return
-    az = np.degrees(np.arctan2(_dot(east, pix)[band], _dot(north, pix)[band]))
+    az = np.degrees(np.arctan2(dot_rows(east, pix)[band], dot_rows(north, pix)[band]))
     ok[band] = sin_alt[band] >= np.sin(np.radians(hz.min_altitude_deg(az)))
 
 
@@ -269,9 +269,9 @@ def _moon_reach(moon, seg_start, seg_end, min_sep_deg):
 def _apply_moon(ok, pix, moon, reach, seg_start, seg_end, min_sep_deg) -> None:
     """Refuse samples closer than ``min_sep_deg`` to the Moon (only pixels within reach are tested)."""
     mean, cos_reach = reach
-    near = _dot(mean, pix) > cos_reach  # (n_segments, m): the Moon can come that close this night
+    near = dot_rows(mean, pix) > cos_reach  # (n_segments, m): the Moon can come that close this night
     cos_sep = np.float32(math.cos(math.radians(min_sep_deg)))
     for s, (a, b) in enumerate(zip(seg_start, seg_end)):  # per site/night, vectorized over its samples x pixels
         k = np.flatnonzero(near[s])
         if k.size:
-            ok[a:b, k] &= _dot(moon[a:b], pix[:, k]) <= cos_sep
+            ok[a:b, k] &= dot_rows(moon[a:b], pix[:, k]) <= cos_sep

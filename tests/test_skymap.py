@@ -329,13 +329,13 @@ def test_altitudes_agree_with_astropy_altaz(tmp_path, registry):
     from astropy.coordinates import AltAz, EarthLocation, SkyCoord
     from astropy.time import Time
 
-    from planner.skycoverage import _frame_vectors, _sample_dark_time
+    from planner.skycoverage import frame_vectors, sample_dark_time
     from planner.visibility import compute_visibility
 
     site = registry.get("paranal")
     vis = compute_visibility(Event("x", 150.0, -25.0, T0), [site], nights=2)
-    cols, _ = _sample_dark_time(vis, 30.0)
-    zen = _frame_vectors(vis, cols)[0]
+    cols, _ = sample_dark_time(vis, 30.0)
+    zen = frame_vectors(vis, cols)[0]
     rng = np.random.default_rng(3)
     ra, dec = rng.uniform(0, 360, 50), np.degrees(np.arcsin(rng.uniform(-1, 1, 50)))
     xyz = np.stack([np.cos(np.radians(dec)) * np.cos(np.radians(ra)),
@@ -356,13 +356,13 @@ def test_moon_direction_agrees_with_astropy_topocentric_moon(registry):
     from astropy.coordinates import EarthLocation, get_body
     from astropy.time import Time
 
-    from planner.skycoverage import _frame_vectors, _sample_dark_time
+    from planner.skycoverage import frame_vectors, sample_dark_time
     from planner.visibility import compute_visibility
 
     site = registry.get("sutherland")
     vis = compute_visibility(Event("x", 100.0, 5.0, T0), [site], nights=2)
-    cols, _ = _sample_dark_time(vis, 60.0)
-    moon = _frame_vectors(vis, cols)[3]
+    cols, _ = sample_dark_time(vis, 60.0)
+    moon = frame_vectors(vis, cols)[3]
     # independent reference: astropy's topocentric apparent Moon (GCRS with the observer's position)
     loc = EarthLocation.from_geodetic(site.longitude_deg * u.deg, site.latitude_deg * u.deg, site.elevation_m * u.m)
     times = Time(cols.mjd, format="mjd", scale="utc")
