@@ -76,8 +76,9 @@ def rank_candidates(event, sites, nights: int = 3, **visibility_options) -> list
     from planner.visibility import compute_visibility
 
     visibility_options.pop("target_index", None)
+    ephemeris = visibility_options.pop("ephemeris", None)  # e.g. the plan's own, built for every target
     targets = event.targets()
-    first = compute_visibility(event, sites, nights=nights, target_index=0, **visibility_options)
+    first = compute_visibility(event, sites, nights=nights, target_index=0, ephemeris=ephemeris, **visibility_options)
     per_target = [first.nights] + [  # one vectorized run per candidate, one ephemeris build (all targets)
         compute_visibility(event, sites, nights=nights, target_index=i, ephemeris=first.ephemeris,
                            **visibility_options).nights

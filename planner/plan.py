@@ -131,6 +131,7 @@ class Plan:
     setup_refs: list = field(default_factory=list)  # planner.setups.SetupRef of every setup planned
     tellurics: object = None                       # forecast.tellurics.TelluricModel used
     atmospheres: dict = field(default_factory=dict)  # site id -> forecast.extinction_atm.Atmosphere
+    candidates: list = field(default_factory=list)  # planner.candidates.CandidateNight, when the event lists several
 
     def useful(self) -> list[NightPlan]:
         return [n for n in self.nights if n.choice is not None]
@@ -198,6 +199,11 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     for p in plans:
         choose(p, snr_target, overhead_s)
     plan.campaign = campaign_summary(plan)
+    if event.candidates:
+        from planner.candidates import rank_candidates
+
+        say("ranking candidates")
+        plan.candidates = rank_candidates(event, sites, nights=nights, twilight=twilight, ephemeris=vis.ephemeris)
     return plan
 
 
@@ -597,5 +603,5 @@ def plan_document(plan: Plan, files: dict | None = None, references=None, assump
                                                        if sid.split("/")[0] == s.id]} for s in plan.sites]
     return document("plan", event=plan.event.summary(), settings=dict(plan.settings, score=SCORE_DEFINITION),
                     model=plan.model, sites=sites, nights=[night_summary(p) for p in plan.nights],
-                    campaign=plan.campaign, files=files or {}, assumptions=list(assumptions or []),
+                    campaign=plan.campaign, candidates=[c.summary() for c in plan.candidates], files=files or {}, assumptions=list(assumptions or []),
                     references=list(references or []), cautions=list(CAUTIONS))

@@ -94,6 +94,13 @@ PLAN_SCHEMA = {
             "elevation_m": _num, "setups": _strings})},
         "nights": {"type": "array", "items": NIGHT},
         "campaign": CAMPAIGN,
+        "candidates": {"type": "array", "items": _obj({
+            "site": {"type": "string"}, "night": _date, "dusk_utc": _utc_or_null, "dawn_utc": _utc_or_null,
+            "candidates": {"type": "array", "items": _obj({
+                "rank": {"type": "integer", "minimum": 1}, "id": {"type": "string"}, "ra_deg": _num,
+                "dec_deg": _num, "hours": {"type": "number", "minimum": 0}, "best_airmass": _num_or_null,
+                "best_utc": _utc_or_null, "moon_sep_deg": _num_or_null, "windows": {"type": "integer"},
+                "note": {"type": "string"}})}})},
         "files": _obj({"plan": {"const": "plan.json"}, "windows": {"const": "windows.ecsv"},
                        "features": {"const": "features.ecsv"}, "exposures": {"const": "exposures.ecsv"},
                        "figures": _strings, "report_md": {"const": "report.md"},

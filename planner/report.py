@@ -168,6 +168,7 @@ def build_blocks(doc: dict, figures: list[dict]) -> list[Block]:
     blocks += _summary(doc)
     blocks += _night_table(doc)
     blocks += _campaign(doc)
+    blocks += _candidates(doc)
     if figures:
         blocks.append(Block("h2", "Figures"))
         for fig in figures:
@@ -259,6 +260,19 @@ def _campaign(doc: dict) -> list[Block]:
         out.append(Block("table", header=["Setup", "Last epoch reaching target (d)", "Too faint from (d)", "In words"],
                          items=rows))
     return out
+
+
+def _candidates(doc: dict) -> list[Block]:
+    """Several candidate positions ranked per site and night (most observable hours, then airmass)."""
+    nights = [n for n in doc.get("candidates") or [] if any(c["hours"] > 0 for c in n["candidates"])]
+    if not nights:
+        return []
+    rows = [[n["site"], n["night"], " > ".join(f"{c['id']} ({c['hours']:.1f} h)" for c in n["candidates"]
+                                            if c["hours"] > 0)] for n in nights]
+    return [Block("h2", "Candidates ranked per site and night"),
+            Block("p", "Observe in this order: most observable hours first, then the best airmass. Candidates "
+                       "without a window that night are left out."),
+            Block("table", header=["Site", "Night", "Order (observable hours)"], items=rows)]
 
 
 def _justification(doc: dict) -> list[Block]:

@@ -257,6 +257,29 @@ def test_event_near_the_pole_is_planned_from_the_south_only(tmp_path, run_cli):
     assert any(n["epoch"] for n in doc["nights"] if n["site"] in ("paranal", "siding-spring"))
 
 
+def test_several_candidates_are_ranked_per_site_and_night(tmp_path, run_cli):
+    import jsonschema
+
+    from planner.plan_schema import PLAN_SCHEMA
+
+    out = tmp_path / "cands"
+    status, _, err = run_cli("plan", "--event", DEMO / "kn-demo-candidates.toml", "--nights", "2", "--out", out,
+                             "--sites", "paranal,la-palma")
+    assert status == 0, err
+    doc = json.loads((out / "plan.json").read_text())
+    jsonschema.Draft202012Validator(PLAN_SCHEMA).validate(doc)
+    assert {(n["site"], n["night"]) for n in doc["candidates"]} == {(n["site"], n["night"]) for n in doc["nights"]}
+    status, _, err = run_cli("visibility", "--event", DEMO / "kn-demo-candidates.toml", "--nights", "2",
+                             "--sites", "paranal,la-palma", "--candidates", "--json", tmp_path / "v.json")
+    assert status == 0, err
+    alone = json.loads((tmp_path / "v.json").read_text())["candidates"]
+    for planned, separate in zip(doc["candidates"], alone):  # the same ranking as `kncast visibility --candidates`
+        assert [c["id"] for c in planned["candidates"]] == [c["id"] for c in separate["candidates"]]
+        hours = [c["hours"] for c in planned["candidates"]]
+        assert all(round(a, 1) >= round(b, 1) for a, b in zip(hours, hours[1:]))
+    assert "Candidates ranked per site and night" in (out / "report.md").read_text()
+
+
 # ------------------------------------------------------------------ output modes and errors
 def test_json_to_stdout_is_quiet_and_complete(tmp_path, run_cli):
     status, stdout, _ = run_cli("plan", "--event", SOUTH, "--nights", "2", "--sites", "paranal",
