@@ -380,7 +380,7 @@ def document(plan, files: dict) -> dict:
     """The plan.json document with references collected from the modules used."""
     from forecast.linelist import LineList
     from planner.plan import plan_document
-    from planner.report import collect_references, data_references
+    from planner.report import collect_references, data_references, fullest_references
 
-    refs = collect_references() + data_references(plan.tellurics, LineList.load())
+    refs = fullest_references(collect_references() + data_references(plan.tellurics, LineList.load()))
     return plan_document(plan, files=files, references=refs, assumptions=assumptions(plan))

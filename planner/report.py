@@ -114,6 +114,18 @@ def data_references(tellurics=None, linelist=None) -> list[dict]:
     return out
 
 
+def fullest_references(rows: list[dict]) -> list[dict]:
+    """Each work once across all models: the fullest citation of it, first model that names it."""
+    keep = set(_longest([r["reference"] for r in rows]))
+    out, seen = [], set()
+    for r in rows:
+        key = _norm(r["reference"])
+        if r["reference"] in keep and key not in seen:
+            seen.add(key)
+            out.append(r)
+    return out
+
+
 def _longest(refs: list[str]) -> list[str]:
     """Drop a citation that is the start of a fuller one ("Morton 2000" beside "Morton 2000, ApJS 130, 403")."""
     keys = [_norm(r) for r in refs]
