@@ -30,6 +30,7 @@ import sys
 import time
 
 import numpy as np
+from _report import finish
 
 N_EPOCHS, N_SETUPS, N_WAVE, REPEATS = 14, 10, 20000, 3
 RTOL = 1e-9  # agreement required of the per-epoch x per-setup loop (relative)
@@ -118,11 +119,8 @@ def main() -> int:
     print(f"agreement: max relative difference of S/N per resolution element {snr_diff:.2e}, of the time for "
           f"S/N 10 {t_diff:.2e} (tolerance {RTOL:g}); numbers of exposures {'identical' if same_n else 'DIFFERENT'}")
     ok = snr_diff <= RTOL and t_diff <= RTOL and same_n
-    if not ok:
-        print("DISAGREEMENT: the batched call and the per-epoch x per-setup loop differ", file=sys.stderr)
-    print(f"RESULT seconds={best:.4f} baseline_seconds={base:.4f} speedup={base / best:.1f} "
-          f"max_snr_rel_diff={snr_diff:.2e} max_time_rel_diff={t_diff:.2e}")
-    return 0 if ok else 1
+    return finish(best, base, ok, "the batched call and the per-epoch x per-setup loop differ",
+                  f"max_snr_rel_diff={snr_diff:.2e} max_time_rel_diff={t_diff:.2e}", digits=4)
 
 
 if __name__ == "__main__":

@@ -29,6 +29,7 @@ import sys
 import time
 
 import numpy as np
+from _report import finish
 
 N_EPOCHS, N_LINES, N_SETUPS, REPEATS = 50, 40, 20, 5
 TAU_RTOL, ABS_TOL = 1e-9, 1e-9  # agreement required of the per-epoch loop (relative; A and fractions)
@@ -139,11 +140,8 @@ def main() -> int:
           f"max difference of ionization fractions, window edges (A) and coverage fractions {abs_diff:.2e} "
           f"(tolerance {ABS_TOL:g}), verdicts and ranks {'identical' if same else 'DIFFERENT'}")
     ok = tau_diff <= TAU_RTOL and abs_diff <= ABS_TOL and same
-    if not ok:
-        print("DISAGREEMENT: the vectorized forecast and the per-epoch loop differ", file=sys.stderr)
-    print(f"RESULT seconds={ours:.4f} baseline_seconds={base:.4f} speedup={base / ours:.1f} "
-          f"max_tau_rel_diff={tau_diff:.2e} max_abs_diff={abs_diff:.2e}")
-    return 0 if ok else 1
+    return finish(ours, base, ok, "the vectorized forecast and the per-epoch loop differ",
+                  f"max_tau_rel_diff={tau_diff:.2e} max_abs_diff={abs_diff:.2e}", digits=4)
 
 
 if __name__ == "__main__":

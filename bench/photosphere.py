@@ -31,6 +31,7 @@ import sys
 import time
 
 import numpy as np
+from _report import finish
 
 N_EPOCHS, N_WAVE, REPEATS = 1000, 5000, 5
 BASELINE_STRIDE = 10  # the astropy baseline runs on every 10th epoch and is scaled by 10
@@ -117,11 +118,8 @@ def main() -> int:
     print(f"agreement on those epochs: max |F_lambda ratio - 1| = {flux_diff:.2e} (tolerance {FLUX_RTOL:g}), "
           f"max |magnitude difference| = {mag_diff:.4f} mag (tolerance {MAG_TOL:g})")
     ok = flux_diff <= FLUX_RTOL and mag_diff <= MAG_TOL
-    if not ok:
-        print("DISAGREEMENT: kncast and the baseline differ by more than the tolerance", file=sys.stderr)
-    print(f"RESULT seconds={ours:.3f} baseline_seconds={b_time:.3f} speedup={b_time / ours:.1f} "
-          f"max_flux_rel_diff={flux_diff:.2e} max_mag_diff={mag_diff:.4f}")
-    return 0 if ok else 1
+    return finish(ours, b_time, ok, "kncast and the baseline differ by more than the tolerance",
+                  f"max_flux_rel_diff={flux_diff:.2e} max_mag_diff={mag_diff:.4f}")
 
 
 if __name__ == "__main__":

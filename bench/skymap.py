@@ -30,6 +30,7 @@ import time
 from pathlib import Path
 
 import numpy as np
+from _report import finish
 
 NSIDE = 256
 N_SITES = 8
@@ -133,11 +134,8 @@ def main() -> int:
     print(f"agreement at those samples: max |altitude difference| {alt_diff:.1f} arcsec over |alt| <= 80 deg "
           f"(tolerance {ALT_TOL_ARCSEC:g} arcsec)")
     ok = alt_diff <= ALT_TOL_ARCSEC
-    if not ok:
-        print("DISAGREEMENT: kncast's altitudes and astropy's differ by more than the tolerance", file=sys.stderr)
-    print(f"RESULT seconds={ours:.3f} baseline_seconds={base:.3f} speedup={base / ours:.1f} "
-          f"max_alt_diff_arcsec={alt_diff:.1f}")
-    return 0 if ok else 1
+    return finish(ours, base, ok, "kncast's altitudes and astropy's differ by more than the tolerance",
+                  f"max_alt_diff_arcsec={alt_diff:.1f}")
 
 
 if __name__ == "__main__":
