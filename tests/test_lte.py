@@ -8,8 +8,8 @@ from forecast.errors import DataFileError, ForecastInputError
 from forecast.lte import (Composition, ground_term_weight, ionization_fractions, line_optical_depths, lte_state,
                           photospheric_density, sobolev_tau, solve_electron_density)
 
-MSUN_G = 1.98840987e33
-C_CM_S = 2.99792458e10
+MSUN_G = 1.98840987e33  # solar mass, g (IAU 2015 nominal GM_sun / CODATA G, as astropy.constants.M_sun)
+C_CM_S = 2.99792458e10  # speed of light, cm/s (exact SI definition, CODATA)
 
 
 @pytest.fixture(scope="module")
