@@ -37,12 +37,12 @@ RTOL = 1e-9  # agreement required of the per-epoch x per-setup loop (relative)
 
 
 def build():
-    from forecast.exposure import setup_grid, stack_grids
-    from forecast.photosphere import build_model
-    from forecast.source import Transient
-    from forecast.tellurics import TelluricModel
-    from planner.setups import all_setups
-    from planner.sites import SiteRegistry
+    from kncast.forecast.exposure import setup_grid, stack_grids
+    from kncast.forecast.photosphere import build_model
+    from kncast.forecast.source import Transient
+    from kncast.forecast.tellurics import TelluricModel
+    from kncast.planner.setups import all_setups
+    from kncast.planner.sites import SiteRegistry
 
     refs = all_setups(SiteRegistry.load([]))
     chosen = [refs[k % len(refs)] for k in range(N_SETUPS)]
@@ -53,7 +53,7 @@ def build():
 
 def loop(transient, grids, tellurics, phases, conditions):
     """S/N per resolution element, time and number of exposures for S/N 10, one epoch and one setup at a time."""
-    from forecast import exposure as ex
+    from kncast.forecast import exposure as ex
 
     snr = np.empty((phases.size, len(grids), N_WAVE))
     t, n = np.empty_like(snr), np.empty_like(snr)
@@ -76,8 +76,8 @@ def rel_diff(a, b) -> float:
 
 
 def main() -> int:
-    from forecast import exposure as ex
-    from forecast.skybright import MoonGeometry
+    from kncast.forecast import exposure as ex
+    from kncast.forecast.skybright import MoonGeometry
 
     transient, grid, grids, tellurics, n_real = build()
     phases = np.linspace(1.0, 14.0, N_EPOCHS)

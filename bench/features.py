@@ -1,6 +1,6 @@
 """Benchmark: the feature forecast for 50 epochs x 40 lines x 20 spectrograph setups.
 
-Timed: ``forecast.features.forecast_features`` from a Transient (photosphere
+Timed: ``kncast.forecast.features.forecast_features`` from a Transient (photosphere
 state, LTE ionization balance with the charge-neutrality solve, Sobolev tau of
 every line, P Cygni windows, coverage / gap / telluric fractions and verdicts
 for every feature x setup x epoch).  Not timed: loading the line list, the
@@ -37,7 +37,7 @@ TAU_RTOL, ABS_TOL = 1e-9, 1e-9  # agreement required of the per-epoch loop (rela
 
 def tiled_lines(n: int):
     """The bundled line list, tiled to ``n`` lines (each copy a separate feature id)."""
-    from forecast.linelist import LineList
+    from kncast.forecast.linelist import LineList
 
     base = LineList.load()
     reps = -(-n // len(base))
@@ -51,11 +51,11 @@ def tiled_lines(n: int):
 
 
 def build():
-    from forecast.photosphere import build_model
-    from forecast.source import Transient
-    from forecast.tellurics import TelluricModel
-    from planner.setups import all_setups
-    from planner.sites import SiteRegistry
+    from kncast.forecast.photosphere import build_model
+    from kncast.forecast.source import Transient
+    from kncast.forecast.tellurics import TelluricModel
+    from kncast.planner.setups import all_setups
+    from kncast.planner.sites import SiteRegistry
 
     transient = Transient(build_model({"name": "powerlaw"}), distance_mpc=120.0, ebv_mw=0.05)
     refs = all_setups(SiteRegistry.load([]))
@@ -101,8 +101,8 @@ def compare(result, loop) -> tuple[float, float, bool]:
 
 
 def main() -> int:
-    from forecast.features import forecast_features
-    from forecast.lte import Composition
+    from kncast.forecast.features import forecast_features
+    from kncast.forecast.lte import Composition
 
     transient, setups, n_real_setups, tellurics = build()
     lines, n_real_lines = tiled_lines(N_LINES)

@@ -40,8 +40,8 @@ BANDS = ("bessell-U", "bessell-B", "bessell-V", "bessell-R", "bessell-I", "twoma
 
 
 def build():
-    from forecast.photosphere import EjectaComponent, HeatingPhotosphere
-    from forecast.source import Transient
+    from kncast.forecast.photosphere import EjectaComponent, HeatingPhotosphere
+    from kncast.forecast.source import Transient
 
     model = HeatingPhotosphere((
         EjectaComponent("blue", 0.025, 0.25, 0.5, 3000.0),

@@ -1,6 +1,6 @@
 """Benchmark: the full demo campaign plan, 8 sites x 10 nights, timed as a whole process.
 
-Runs ``python -m planner.cli plan`` on the southern demo event in a fresh
+Runs ``python -m kncast.planner.cli plan`` on the southern demo event in a fresh
 subprocess (so Python start-up and every import count), writing the whole
 output folder (plan.json, ECSV tables, figures, report.md, report.html).
 Repeats a few times and reports the median wall time.  Goal: under 10 s on
@@ -16,7 +16,7 @@ for its first useful night, at that night's epoch (read from the first
 run's plan.json).  The plan does more than that sum (features and exposures
 for every setup of every site at every planned epoch, plus the report), so
 ``speedup`` = baseline / plan understates what one plan run saves.  Also
-printed, for information: the import floor, ``python -c "import planner.cli"``.
+printed, for information: the import floor, ``python -c "import kncast.planner.cli"``.
 
 Last line: ``RESULT seconds=<median plan wall time> baseline_seconds=<median sum of the four commands>
 speedup=<baseline/plan>``.
@@ -58,7 +58,7 @@ def timed(cmd: list[str], what: str) -> tuple[float, float]:
 
 
 def run_once(out: Path) -> tuple[float, float]:
-    cmd = [sys.executable, "-m", "planner.cli", "plan", "--event", str(EVENT), "--sites", SITES,
+    cmd = [sys.executable, "-m", "kncast.planner.cli", "plan", "--event", str(EVENT), "--sites", SITES,
            "--nights", str(NIGHTS), "--out", str(out)]
     wall, cpu = timed(cmd, "plan")
     for name in ("plan.json", "report.html", "report.md", "windows.ecsv", "features.ecsv", "exposures.ecsv"):
@@ -78,7 +78,7 @@ def representative(plan_json: Path) -> tuple[str, float]:
 def separate_commands(out: Path, setup: str, phase_d: float) -> dict[str, list[str]]:
     """The per-question commands for the same event, each writing its JSON document and figure."""
     out.mkdir(parents=True, exist_ok=True)
-    base = [sys.executable, "-m", "planner.cli"]
+    base = [sys.executable, "-m", "kncast.planner.cli"]
 
     def cmd(name, *args):
         return base + [name, "--event", str(EVENT), *args, "--json", str(out / f"{name}.json"),
@@ -109,7 +109,7 @@ def main() -> int:
                 per_cmd.setdefault(name, []).append(w)
                 total += w
             base_times.append(total)
-            floor_times.append(timed([sys.executable, "-c", "import planner.cli"], "import planner.cli")[0])
+            floor_times.append(timed([sys.executable, "-c", "import kncast.planner.cli"], "import kncast.planner.cli")[0])
     median = statistics.median(times)
     base = statistics.median(base_times)
     floor = statistics.median(floor_times)
@@ -118,7 +118,7 @@ def main() -> int:
     print(f"baseline, the separate commands as processes for setup {setup} (phase {phase_d:g} d for exposure): "
           + ", ".join(f"{n} {statistics.median(v):.2f} s" for n, v in per_cmd.items())
           + f"; sum median {base:.2f} s of {REPEATS}")
-    print(f"import floor (python -c 'import planner.cli'): median {floor:.2f} s; plan / import floor = "
+    print(f"import floor (python -c 'import kncast.planner.cli'): median {floor:.2f} s; plan / import floor = "
           f"{median / floor:.1f}")
     print(f"RESULT seconds={median:.2f} baseline_seconds={base:.2f} speedup={base / median:.2f}")
     return 0

@@ -14,7 +14,7 @@ number of samples; the output says so.  It computes altitudes only (no Moon
 rule, no sums over pixels), so it is a lower bound for doing the coverage
 with astropy, while kncast's figure includes reading the map and all of
 the coverage.  Agreement: at the same sample times, the altitudes from the
-kernel's own zenith vectors (``planner.skycoverage`` internals, float32
+kernel's own zenith vectors (``kncast.planner.visibility.skycoverage`` internals, float32
 as in the kernel) and astropy's differ by at most ALT_TOL_ARCSEC over the
 pixels with |altitude| <= 80 deg (the kernel neglects annual aberration,
 < 21 arcsec; float32 rounding grows near the zenith and nadir only).
@@ -73,9 +73,9 @@ def astropy_baseline(skymap, sites, t0, result):
     from astropy.coordinates import AltAz, CartesianRepresentation, EarthLocation, ICRS
     from astropy.time import Time
 
-    from planner.events import Event
-    from planner.skycoverage import dot_rows, frame_vectors, sample_dark_time
-    from planner.visibility import compute_visibility
+    from kncast.planner.events.model import Event
+    from kncast.planner.visibility.skycoverage import dot_rows, frame_vectors, sample_dark_time
+    from kncast.planner.visibility.core import compute_visibility
 
     # the coverage's own sample times and zenith vectors, as compute_coverage builds them
     ra, dec = skymap.peak_radec_deg()
@@ -104,10 +104,10 @@ def astropy_baseline(skymap, sites, t0, result):
 
 
 def main() -> int:
-    from planner.skycoverage import compute_coverage
-    from planner.events import parse_time_utc
-    from planner.sites import SiteRegistry
-    from planner.skymap import load_skymap
+    from kncast.planner.visibility.skycoverage import compute_coverage
+    from kncast.planner.events.model import parse_time_utc
+    from kncast.planner.sites import SiteRegistry
+    from kncast.planner.events.skymap import load_skymap
 
     sites = SiteRegistry.load().select()[:N_SITES]
     t0 = parse_time_utc(T0, "--t0")

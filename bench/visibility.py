@@ -19,7 +19,7 @@ import time
 import warnings
 from pathlib import Path
 
-import planner  # noqa: F401  (first: configures astropy for offline use, so astroplan runs offline too)
+import kncast.planner  # noqa: F401  (first: configures astropy for offline use, so astroplan runs offline too)
 
 import numpy as np
 
@@ -29,7 +29,7 @@ EVENT = Path(__file__).resolve().parents[1] / "demo_events" / "kn-demo-south.tom
 
 
 def ours(event, sites):
-    from planner.visibility import compute_visibility
+    from kncast.planner.visibility.core import compute_visibility
 
     return compute_visibility(event, sites, nights=N_NIGHTS, twilight="nautical", min_moon_sep_deg=MOON_SEP_DEG)
 
@@ -83,8 +83,8 @@ def edge_differences(result, theirs):
 
 
 def main() -> int:
-    from planner.events import load_event
-    from planner.sites import SiteRegistry
+    from kncast.planner.events.eventfile import load_event
+    from kncast.planner.sites import SiteRegistry
 
     event = load_event(EVENT)
     sites = [dataclasses.replace(s, horizon=None) for s in list(SiteRegistry.load())[:N_SITES]]

@@ -1,1 +1,1 @@
-"""Bundled demo events (invented scenarios); installed as package data of planner._demo_events."""
+"""Bundled demo events (invented scenarios); installed as package data of kncast.planner._demo_events."""

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from forecast.errors import check_range
+from kncast.forecast.errors import check_range
 
 __all__ = ["air_to_vac", "vac_to_air", "refractive_index_air"]
 

@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from forecast.errors import check_range
+from kncast.forecast.errors import check_range
 
 SIGMA_F_ADU = 0.289  # 1/sqrt(12): rounding to whole ADU (Merline & Howell 1995)
 

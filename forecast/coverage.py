@@ -23,8 +23,8 @@ from functools import lru_cache
 
 import numpy as np
 
-from forecast.errors import ForecastInputError
-from forecast.tellurics import REFERENCE_PWV_MM, _window
+from kncast.forecast.errors import ForecastInputError
+from kncast.forecast.tellurics import REFERENCE_PWV_MM, _window
 
 __all__ = ["window_fractions", "verdict", "VERDICTS", "CLEAR_MIN_USABLE", "PARTLY_MIN_USABLE"]
 
@@ -65,9 +65,9 @@ def window_fractions(lo_A, hi_A, setup, tellurics=None, airmass=1.0, pwv_mm=REFE
     ----------
     lo_A, hi_A : array_like, vacuum Angstrom, any broadcastable shape S (lo <= hi;
         a zero-width window is evaluated over 1e-3 A about the point).
-    setup : forecast.instruments.Setup, or a sequence of them (then every output
+    setup : kncast.forecast.instruments.Setup, or a sequence of them (then every output
         gets a trailing axis of length n_setups: shape S + (n_setups,)).
-    tellurics : forecast.tellurics.TelluricModel or None (no atmosphere).
+    tellurics : kncast.forecast.tellurics.TelluricModel or None (no atmosphere).
     airmass, pwv_mm : scalars or arrays broadcastable to S (one setup) or
         S + (n_setups,) (a sequence; e.g. shape (n_setups,) for one airmass per site).
 

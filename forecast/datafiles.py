@@ -10,7 +10,7 @@ import math
 import tomllib
 from pathlib import Path
 
-from forecast.errors import DataFileError
+from kncast.forecast.errors import DataFileError
 
 _MISSING = object()
 

@@ -4,7 +4,7 @@ from __future__ import annotations
 import astropy.units as u
 from astropy.cosmology import Planck18, z_at_value
 
-from forecast.errors import ForecastInputError
+from kncast.forecast.errors import ForecastInputError
 
 MPC_CM = (1 * u.Mpc).to_value(u.cm)
 DISTANCE_RANGE_MPC = (0.0, 1e5)

@@ -18,7 +18,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from forecast.errors import ForecastInputError, check_range
+from kncast.forecast.errors import ForecastInputError, check_range
 
 __all__ = ["doppler_factor", "FeatureWindows", "feature_windows", "MAX_BETA"]
 

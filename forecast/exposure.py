@@ -5,14 +5,14 @@ Source electrons per spectral pixel, summed over the extraction aperture:
     N* = F_lambda lambda / (h c)               photons s^-1 cm^-2 A^-1
          x A_collect (aperture, central obstruction)
          x T(lambda)                            telescope + instrument + detector
-         x 10^(-0.4 k(lambda) X)                atmospheric extinction (forecast.extinction_atm)
-         x T_telluric(lambda, X, PWV)           molecular bands (forecast.tellurics)
-         x T_slit(FWHM(lambda, X))              slit or fibre losses (forecast.slit)
+         x 10^(-0.4 k(lambda) X)                atmospheric extinction (kncast.forecast.extinction_atm)
+         x T_telluric(lambda, X, PWV)           molecular bands (kncast.forecast.tellurics)
+         x T_slit(FWHM(lambda, X))              slit or fibre losses (kncast.forecast.slit)
          x d_lambda (A per pixel) x t
 
-Sky electrons per pixel: sky photon surface brightness (forecast.skybright,
+Sky electrons per pixel: sky photon surface brightness (kncast.forecast.skybright,
 or a user file) x A_collect x T x d_lambda x (slit width x pixel scale) x t.
-Noise: the CCD equation (forecast.ccd).  "Per resolution element" means the
+Noise: the CCD equation (kncast.forecast.ccd).  "Per resolution element" means the
 sum over lambda / R / d_lambda pixels along the dispersion.
 
 ``ideal=True``: unit throughput, no atmosphere, no sky, no detector noise and
@@ -20,7 +20,7 @@ no slit loss, so S/N = sqrt(N*) exactly (pure photon statistics).
 
 All kernels broadcast: flux arrays (n_epoch, n_setup, n_wave) against setup
 grids (n_setup, n_wave).  The conditions broadcast too: airmass, seeing, water
-vapour and the Moon geometry (:class:`forecast.skybright.MoonGeometry`) may be
+vapour and the Moon geometry (:class:`kncast.forecast.skybright.MoonGeometry`) may be
 arrays, e.g. shape (n_epoch, 1, 1) for one value per epoch, or (n_sample,) for
 one value per wavelength sample of a flat grid; so may the time and the number
 of exposures given to :func:`expose`.
@@ -31,10 +31,11 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from forecast import ccd, slit
-from forecast.errors import ForecastInputError, check_range
-from forecast.extinction_atm import Atmosphere
-from forecast.skybright import MoonGeometry, SkySpectrum, flam_to_photons, sky_photons
+from kncast.forecast import ccd
+from kncast.forecast import slit
+from kncast.forecast.errors import ForecastInputError, check_range
+from kncast.forecast.extinction_atm import Atmosphere
+from kncast.forecast.skybright import MoonGeometry, SkySpectrum, flam_to_photons, sky_photons
 
 SYSTEMATICS_RATIO = 0.01   # source below 1% of the sky in the aperture: sky-subtraction limited (common practice)
 SNR_BASIS = "per resolution element"
@@ -208,7 +209,7 @@ def rates(flux_flam, grid: SetupGrid, conditions: Conditions, telluric=1.0, *, i
 
 
 def _zenith_deg(airmass):
-    from forecast.airmass import zenith_from_airmass
+    from kncast.forecast.airmass import zenith_from_airmass
 
     return zenith_from_airmass(airmass)
 
@@ -259,7 +260,7 @@ def time_for_snr(r: Rates, target_snr_per_resel, max_exposure_s=3600.0):
     """(total time s, n_exp) reaching ``target_snr_per_resel`` at every sample of ``r``.
 
     The CCD equation summed over one resolution element (pixels_per_resel
-    pixels) is solved in closed form for each n_exp (forecast.ccd.time_and_exposures).
+    pixels) is solved in closed form for each n_exp (kncast.forecast.ccd.time_and_exposures).
     Off-detector or sourceless samples give infinite time.
     """
     ppr = r.pixels_per_resel

@@ -19,7 +19,7 @@ import functools
 
 import numpy as np
 
-from forecast.errors import check_range
+from kncast.forecast.errors import check_range
 
 R_V = 3.1
 X_MIN_PER_MICRON, X_MAX_PER_MICRON = 0.3, 10.0  # F99 validity in dust_extinction

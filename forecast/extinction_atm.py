@@ -27,8 +27,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from forecast.datafiles import field
-from forecast.errors import DataFileError, check_range
+from kncast.forecast.datafiles import field
+from kncast.forecast.errors import DataFileError, check_range
 
 P0_HPA = 1013.25          # standard sea-level pressure (ISO 2533)
 SCALE_HEIGHT_M = 8000.0   # barometric scale height (common practice)

@@ -2,8 +2,8 @@
 
 :func:`forecast_features` combines the photosphere (temperature, velocities,
 age, ejecta mass), the line list (blended features), the P Cygni windows of
-:mod:`forecast.doppler`, the LTE Sobolev strengths of :mod:`forecast.lte` and
-the coverage kernel of :mod:`forecast.coverage` into one result, ranked per
+:mod:`kncast.forecast.doppler`, the LTE Sobolev strengths of :mod:`kncast.forecast.lte` and
+the coverage kernel of :mod:`kncast.forecast.coverage` into one result, ranked per
 epoch by expected strength.
 
 Coverage and losses are evaluated over the whole P Cygni profile of a
@@ -16,10 +16,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from forecast.doppler import FeatureWindows, check_velocities, feature_windows
-from forecast.errors import ForecastInputError, check_range
-from forecast.linelist import Feature, LineList
-from forecast.lte import Composition, LTEState, line_optical_depths, lte_state
+from kncast.forecast.doppler import FeatureWindows, check_velocities, feature_windows
+from kncast.forecast.errors import ForecastInputError, check_range
+from kncast.forecast.linelist import Feature, LineList
+from kncast.forecast.lte import Composition, LTEState, line_optical_depths, lte_state
 
 __all__ = ["Epochs", "FeatureForecast", "epochs_from", "forecast_features", "STAGE_NAMES"]
 
@@ -40,7 +40,7 @@ class Epochs:
 
 
 def epochs_from(source, phases_d=None, vphot_c=None, vmax_c=None) -> Epochs:
-    """Epochs from a ``forecast.source.Transient`` (evaluated at ``phases_d``) or an ``Epochs``.
+    """Epochs from a ``kncast.forecast.source.Transient`` (evaluated at ``phases_d``) or an ``Epochs``.
 
     ``vphot_c`` / ``vmax_c`` (fractions of c) replace the model's velocities at
     every epoch (what-if questions); the result must keep 0 < v_phot < v_max < 0.8
@@ -156,19 +156,19 @@ def forecast_features(source, phases_d, linelist: LineList | None = None, setups
 
     Parameters
     ----------
-    source : forecast.source.Transient or Epochs
+    source : kncast.forecast.source.Transient or Epochs
     phases_d : array (n,), observer-frame days since t0 (ignored for an Epochs source)
     linelist : LineList (default: the bundled list)
-    setups : sequence of forecast.instruments.Setup (may be empty)
-    tellurics : forecast.tellurics.TelluricModel or None (no atmosphere)
+    setups : sequence of kncast.forecast.instruments.Setup (may be empty)
+    tellurics : kncast.forecast.tellurics.TelluricModel or None (no atmosphere)
     airmass, pwv_mm : scalars or arrays broadcastable to (n_epochs, n_features, n_setups),
         e.g. (S,) for one value per setup or (n, 1, 1) for one per epoch
     vphot_c, vmax_c : optional velocity overrides (fraction of c) for every epoch
-    composition : forecast.lte.Composition (default: bundled abundances and atoms)
+    composition : kncast.forecast.lte.Composition (default: bundled abundances and atoms)
     setup_ids : labels for the setups (default: each Setup's ``id``)
     """
-    from forecast.coverage import verdict as verdict_words
-    from forecast.coverage import window_fractions
+    from kncast.forecast.coverage import verdict as verdict_words
+    from kncast.forecast.coverage import window_fractions
 
     linelist = linelist if linelist is not None else LineList.load()
     composition = composition if composition is not None else Composition.load()

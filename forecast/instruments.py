@@ -7,7 +7,7 @@ A site file may hold ``[[telescope]]`` tables, each with one or more
 
 Wavelengths are vacuum Angstrom.  Throughput tables are the total
 telescope + instrument + detector efficiency (no atmosphere: that is
-:mod:`forecast.tellurics` and the extinction model).
+:mod:`kncast.forecast.tellurics` and the extinction model).
 """
 from __future__ import annotations
 
@@ -17,8 +17,8 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from forecast.datafiles import field
-from forecast.errors import DataFileError
+from kncast.forecast.datafiles import field
+from kncast.forecast.errors import DataFileError
 
 __all__ = ["Telescope", "Spectrograph", "Arm", "Setup", "parse_telescopes", "DEFAULT_SETUP",
            "MIN_WAVELENGTH_A", "MAX_WAVELENGTH_A"]

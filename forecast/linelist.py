@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from forecast.errors import DataFileError
+from kncast.forecast.errors import DataFileError
 
 __all__ = ["LineList", "Feature", "DEFAULT_PATH", "gf_from_einstein_a"]
 
@@ -217,7 +217,7 @@ def _check_rows(c, path) -> None:
 
 def _check_published(c, path, i) -> None:
     """``wavelength_A`` must agree with ``published_A`` after the air-to-vacuum step (to 0.002 A)."""
-    from forecast.airvac import air_to_vac
+    from kncast.forecast.airvac import air_to_vac
 
     pub = c["published_A"][i]
     if not np.isfinite(pub):

@@ -47,8 +47,8 @@ from pathlib import Path
 import numpy as np
 from astropy import constants as const
 
-from forecast.datafiles import field, read_toml, table
-from forecast.errors import DataFileError, ForecastInputError, check_range
+from kncast.forecast.datafiles import field, read_toml, table
+from kncast.forecast.errors import DataFileError, ForecastInputError, check_range
 
 __all__ = [
     "SOBOLEV_PREFACTOR_CM2_S", "SAHA_CONSTANT", "Composition", "LTEState",

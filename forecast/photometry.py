@@ -24,8 +24,8 @@ from importlib import resources
 
 import numpy as np
 
-from forecast.blackbody import C_A_PER_S
-from forecast.errors import ForecastInputError
+from kncast.forecast.blackbody import C_A_PER_S
+from kncast.forecast.errors import ForecastInputError
 
 AB_ZERO_POINT_JY = 3631.0
 _JY_CGS = 1e-23  # erg s^-1 cm^-2 Hz^-1
@@ -122,7 +122,7 @@ def mag_ab_from_spectrum(wavelength_A, flam, band: str) -> float:
     return float(band_set((band,)).mag_ab(f)[0])
 
 
-VEGA_ZERO_POINTS_FILE = resources.files("forecast") / "data" / "vega_zero_points.toml"
+VEGA_ZERO_POINTS_FILE = resources.files("kncast.forecast.data") / "vega_zero_points.toml"
 
 
 @functools.lru_cache(maxsize=1)
@@ -133,8 +133,8 @@ def vega_zero_points() -> dict[str, float]:
 
 def load_vega_zero_points(path) -> dict[str, float]:
     """Read and validate a zero-point file: ``[[band]]`` rows with name, f_nu_jy and source."""
-    from forecast.datafiles import field, read_toml
-    from forecast.errors import DataFileError
+    from kncast.forecast.datafiles import field, read_toml
+    from kncast.forecast.errors import DataFileError
 
     doc = read_toml(path)
     rows = doc.get("band")

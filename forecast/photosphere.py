@@ -11,7 +11,7 @@ merger in the source frame), vectorized over epochs:
     so the luminosity keeps falling smoothly instead of rising with R = v t.
 
 ``heating``  one or more ejecta components, each a one-zone radioactive
-    model (``forecast.heating``): Korobkin et al. (2012) heating times the
+    model (``kncast.forecast.heating``): Korobkin et al. (2012) heating times the
     Barnes et al. (2016) thermalization, diffused with Arnett (1982), and a
     photosphere with a temperature floor (the floor prescription of multi-component
     kilonova light-curve fits; common practice):
@@ -29,9 +29,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from forecast.blackbody import C_CGS, SIGMA_SB_CGS, stefan_boltzmann_luminosity
-from forecast.errors import ForecastInputError
-from forecast.heating import DAY_S, arnett_luminosity
+from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, stefan_boltzmann_luminosity
+from kncast.forecast.errors import ForecastInputError
+from kncast.forecast.heating import DAY_S, arnett_luminosity
 
 MODEL_NAMES = ("powerlaw", "heating")
 V_LIMIT_C = 0.8  # ejecta velocities allowed in (0, 0.8) c

@@ -30,7 +30,7 @@ from pathlib import Path
 
 import numpy as np
 
-from forecast.errors import DataFileError, ForecastInputError, check_range
+from kncast.forecast.errors import DataFileError, ForecastInputError, check_range
 
 # band: (effective wavelength A, dark-sky Vega mag/arcsec^2, AB - Vega)
 DARK_SKY_BANDS = {

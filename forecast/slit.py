@@ -26,7 +26,7 @@ import functools
 import numpy as np
 from scipy.special import erf
 
-from forecast.errors import check_range
+from kncast.forecast.errors import check_range
 
 SEEING_REFERENCE_A = 5000.0
 MOFFAT_BETA = 4.765

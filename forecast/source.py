@@ -10,7 +10,7 @@ Observed flux density at observed vacuum wavelength lambda:
 
 with host extinction applied in the rest frame and Milky Way extinction
 in the observer frame, both Fitzpatrick (1999) with R_V = 3.1
-(``forecast.extinction``).
+(``kncast.forecast.extinction``).
 """
 from __future__ import annotations
 
@@ -19,11 +19,11 @@ from dataclasses import dataclass
 import numpy as np
 from astropy.cosmology import Planck18
 
-from forecast.blackbody import SIGMA_SB_CGS, planck_sum_flam
-from forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
-from forecast.errors import ForecastInputError, check_range
-from forecast.extinction import transmission
-from forecast.photometry import ab_minus_vega, band_set
+from kncast.forecast.blackbody import SIGMA_SB_CGS, planck_sum_flam
+from kncast.forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
+from kncast.forecast.errors import ForecastInputError, check_range
+from kncast.forecast.extinction import transmission
+from kncast.forecast.photometry import ab_minus_vega, band_set
 
 
 @dataclass(frozen=True)

@@ -21,7 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
-from forecast.errors import DataFileError, check_range
+from kncast.forecast.errors import DataFileError, check_range
 
 __all__ = ["TelluricModel", "default_bands_path", "REFERENCE_PWV_MM"]
 
@@ -32,7 +32,7 @@ _SCALINGS = ("airmass", "airmass_pwv")
 
 
 def default_bands_path() -> Path:
-    return Path(str(resources.files("forecast.data") / "telluric_bands.ecsv"))
+    return Path(str(resources.files("kncast.forecast.data") / "telluric_bands.ecsv"))
 
 
 class TelluricModel:

@@ -6,7 +6,7 @@ library :mod:`forecast`; ``forecast`` never imports ``planner``.
 """
 from importlib.metadata import PackageNotFoundError, version as _version
 
-from planner import _offline  # noqa: F401  (configures astropy/skyfield for offline use)
+from kncast.planner import _offline  # noqa: F401  (configures astropy/skyfield for offline use)
 
 try:
     __version__ = _version("kncast")

@@ -27,14 +27,14 @@ class OneLineParser(argparse.ArgumentParser):
 def _command_modules():
     for name in COMMANDS:
         try:
-            yield name, importlib.import_module(f"planner.commands.{name}")
+            yield name, importlib.import_module(f"kncast.planner.commands.{name}")
         except ModuleNotFoundError as err:
-            if err.name != f"planner.commands.{name}":
+            if err.name != f"kncast.planner.commands.{name}":
                 raise
 
 
 def build_parser() -> argparse.ArgumentParser:
-    from planner import __version__
+    from kncast.planner import __version__
 
     parser = OneLineParser(prog="kncast", description="Follow-up planning and spectral forecasts for "
                            "kilonova candidates. Forecasts are model estimates: the observatory's own "
@@ -55,7 +55,7 @@ def main(argv=None) -> int:
     if not getattr(args, "command", None):
         parser.print_help()
         return EXIT_USAGE
-    from planner.errors import USER_ERRORS
+    from kncast.planner.errors import USER_ERRORS
 
     try:
         return int(args.run(args) or EXIT_OK)

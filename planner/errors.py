@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import difflib
 
-from forecast.errors import DataFileError, ForecastInputError
+from kncast.forecast.errors import DataFileError, ForecastInputError
 
 FileFieldError = DataFileError  # a data file with a missing, malformed or out-of-range field
 

@@ -96,7 +96,7 @@ def to_jsonable(obj):
 
 def document(kind: str, **fields) -> dict:
     """Top of every JSON document: ``{"kncast": VERSION, "kind": kind, "schema": N, ...}``."""
-    from planner import __version__
+    from kncast.planner import __version__
 
     return {"kncast": __version__, "kind": kind, "schema": SCHEMA_VERSION, **fields}
 

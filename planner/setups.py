@@ -8,8 +8,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
-from forecast.instruments import DEFAULT_SETUP
-from planner.errors import UnknownNameError
+from kncast.forecast.instruments import DEFAULT_SETUP
+from kncast.planner.errors import UnknownNameError
 
 __all__ = ["SetupRef", "all_setups", "resolve_setup", "setup_id"]
 
@@ -19,10 +19,10 @@ class SetupRef:
     """One setup with everything around it: the Site, Telescope, Spectrograph and Setup objects."""
 
     id: str
-    site: object        # planner.sites.Site
-    telescope: object   # forecast.instruments.Telescope
-    instrument: object  # forecast.instruments.Spectrograph
-    setup: object       # forecast.instruments.Setup
+    site: object        # kncast.planner.sites.Site
+    telescope: object   # kncast.forecast.instruments.Telescope
+    instrument: object  # kncast.forecast.instruments.Spectrograph
+    setup: object       # kncast.forecast.instruments.Setup
 
 
 def setup_id(site_id: str, telescope_id: str, instrument_id: str, setup: str = DEFAULT_SETUP) -> str:

@@ -2,7 +2,7 @@
 
 One TOML file per site (schema in README.md, section "Site files").  The
 bundled sites live in the top-level ``sites/`` folder (installed as the
-``planner._sites`` package data); users add folders with ``--sites-dir``.
+``kncast.planner._sites`` package data); users add folders with ``--sites-dir``.
 A site id in a user folder replaces a bundled site of the same id.
 """
 from __future__ import annotations
@@ -14,9 +14,9 @@ from pathlib import Path
 
 import numpy as np
 
-from forecast.datafiles import field, read_toml, table
-from forecast.errors import DataFileError
-from planner.errors import InputError, UnknownNameError
+from kncast.forecast.datafiles import field, read_toml, table
+from kncast.forecast.errors import DataFileError
+from kncast.planner.errors import InputError, UnknownNameError
 
 
 @dataclass(frozen=True)
@@ -55,8 +55,8 @@ class Site:
 def bundled_dir(package: str, source_folder: str) -> Path:
     """Folder of bundled data installed as ``package`` (top-level ``source_folder`` in a checkout).
 
-    An installed kncast maps ``sites/`` and ``demo_events/`` to ``planner._sites`` and
-    ``planner._demo_events``; when a source checkout shadows the installed package (``python -m
+    An installed kncast maps ``sites/`` and ``demo_events/`` to ``kncast.planner._sites`` and
+    ``kncast.planner._demo_events``; when a source checkout shadows the installed package (``python -m
     pytest`` from the project root), the folders are read from the checkout itself.
     """
     try:
@@ -67,7 +67,7 @@ def bundled_dir(package: str, source_folder: str) -> Path:
 
 def bundled_sites_dir() -> Path:
     """Folder of the sites shipped with kncast."""
-    return bundled_dir("planner._sites", "sites")
+    return bundled_dir("kncast.planner._sites", "sites")
 
 
 def load_site(path) -> Site:
@@ -118,11 +118,11 @@ def _horizon(st: dict, path) -> Horizon | None:
 
 
 def _telescopes(doc: dict, path) -> tuple:
-    """Telescopes and their instruments (parsed by forecast.instruments)."""
+    """Telescopes and their instruments (parsed by kncast.forecast.instruments)."""
     rows = doc.get("telescope", [])
     if not rows:
         return ()
-    from forecast.instruments import parse_telescopes
+    from kncast.forecast.instruments import parse_telescopes
 
     return parse_telescopes(rows, path)
 

@@ -1,8 +1,8 @@
-"""From an event (and command-line model options) to a :class:`forecast.source.Transient`."""
+"""From an event (and command-line model options) to a :class:`kncast.forecast.source.Transient`."""
 from __future__ import annotations
 
-from forecast.errors import ForecastInputError
-from planner.errors import InputError
+from kncast.forecast.errors import ForecastInputError
+from kncast.planner.errors import InputError
 
 
 def model_config(event, model: str | None = None, overrides: dict | None = None) -> tuple[dict, str]:
@@ -13,7 +13,7 @@ def model_config(event, model: str | None = None, overrides: dict | None = None)
     it differs from the file's, the file's parameters are not used.  Other
     override keys replace the file's values (``component`` as a whole list).
     """
-    from forecast.photosphere import build_model
+    from kncast.forecast.photosphere import build_model
 
     file_cfg = dict(getattr(event, "model", None) or {})
     if file_cfg:
@@ -28,8 +28,8 @@ def model_config(event, model: str | None = None, overrides: dict | None = None)
 
 def transient_for_event(event, model: str | None = None, overrides: dict | None = None):
     """A Transient for ``event``: its [model] table merged with CLI overrides, its distance and dust."""
-    from forecast.photosphere import build_model
-    from forecast.source import Transient
+    from kncast.forecast.photosphere import build_model
+    from kncast.forecast.source import Transient
 
     config, where = model_config(event, model, overrides)
     if where == "model options":
@@ -46,7 +46,7 @@ def transient_for_event(event, model: str | None = None, overrides: dict | None 
 
 def _name_options(message: str, given: set) -> str:
     """Mention the command-line option beside a [model] key in an error message."""
-    from planner.commands._model_options import option_for_key
+    from kncast.planner.commands._model_options import option_for_key
 
     for key in sorted(given, key=len, reverse=True):
         if f" {key}" in message or f".{key}" in message:

@@ -1,1 +1,1 @@
-"""Bundled site files (TOML); installed as package data of planner._sites."""
+"""Bundled site files (TOML); installed as package data of kncast.planner._sites."""

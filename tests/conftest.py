@@ -17,7 +17,7 @@ def demo_event_path():
 @pytest.fixture
 def run_cli(capsys):
     """Run ``kncast ARGS`` in-process; returns (status, stdout, stderr)."""
-    from planner.cli import main
+    from kncast.planner.cli import main
 
     def run(*args):
         try:

@@ -5,7 +5,7 @@ wavelength exactly as published (``published_A``) and says whether that value
 is an air or a vacuum wavelength (``published_medium``: air | vacuum |
 unconfirmed).  This script recomputes ``wavelength_A`` (vacuum, the column
 kncast uses) with the IAU standard air-to-vacuum conversion (Morton 2000,
-ApJS 130, 403; ``forecast.airvac.air_to_vac``), rounded to 0.001 A; vacuum
+ApJS 130, 403; ``kncast.forecast.airvac.air_to_vac``), rounded to 0.001 A; vacuum
 and unconfirmed values are copied unchanged.  It also rewrites the column
 descriptions and the file's provenance notes.
 
@@ -19,7 +19,7 @@ from pathlib import Path
 import numpy as np
 from astropy.table import Table
 
-from forecast.airvac import air_to_vac
+from kncast.forecast.airvac import air_to_vac
 
 HERE = Path(__file__).resolve().parent
 

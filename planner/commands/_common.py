@@ -8,7 +8,7 @@ import argparse
 import re
 import sys
 
-from planner.errors import InputError, OptionError
+from kncast.planner.errors import InputError, OptionError
 
 
 def add_event_options(p: argparse.ArgumentParser, distance: bool = True) -> None:
@@ -30,7 +30,7 @@ def add_event_options(p: argparse.ArgumentParser, distance: bool = True) -> None
 
 def event_from_args(args):
     """The Event named by ``--event`` or built from ``--ra/--dec/--t0``."""
-    from planner.events import event_from_options, load_event
+    from kncast.planner.events.eventfile import event_from_options, load_event
 
     coords = [args.ra, args.dec, args.t0]
     if args.event:
@@ -56,7 +56,7 @@ def add_site_options(p: argparse.ArgumentParser, select: bool = True) -> None:
 
 def sites_from_args(args):
     """(registry, selected sites) from ``--sites-dir`` and ``--sites``."""
-    from planner.sites import SiteRegistry
+    from kncast.planner.sites import SiteRegistry
 
     registry = SiteRegistry.load(args.sites_dir)
     ids = split_list(getattr(args, "sites", None))
@@ -93,7 +93,7 @@ def emit_json(path, doc: dict) -> None:
     """Write ``doc`` to PATH atomically, or to stdout for '-'."""
     import json
 
-    from planner.output import to_jsonable, write_json
+    from kncast.planner.output import to_jsonable, write_json
 
     if path == "-":
         sys.stdout.write(json.dumps(to_jsonable(doc), indent=2, allow_nan=False) + "\n")

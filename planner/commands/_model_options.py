@@ -2,14 +2,14 @@
 
 ``add_model_options(parser)`` adds ``--model`` and the model parameters;
 ``overrides_from_args(args)`` turns whatever the user gave into a dict
-for :func:`planner.source.transient_for_event` (keys as in the event
+for :func:`kncast.planner.source.transient_for_event` (keys as in the event
 file's ``[model]`` table; options not given are left out).
 """
 from __future__ import annotations
 
 import argparse
 
-from planner.commands._common import finite_float
+from kncast.planner.commands._common import finite_float
 
 # option -> [model] key, for the powerlaw model
 POWERLAW_OPTIONS = (

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import sys
 
-from planner.commands._common import (add_night_rule_options, add_output_options, add_site_options,
+from kncast.planner.commands._common import (add_night_rule_options, add_output_options, add_site_options,
                                       check_plot_path, console, emit_json, finite_float, sites_from_args)
 
 HELP = "observable probability of a HEALPix sky map per site and night"
@@ -28,14 +28,14 @@ def add_arguments(p) -> None:
 
 def run(args) -> int:
     check_plot_path(args.plot)
-    from planner.events import parse_time_utc
+    from kncast.planner.events.model import parse_time_utc
 
     t0 = parse_time_utc(args.t0, "--t0")
     _, sites = sites_from_args(args)
     skymap, notices = _load(args.map)
     for line in notices:
         print(f"kncast coverage: warning: {line}", file=sys.stderr)
-    from planner.skycoverage import compute_coverage
+    from kncast.planner.visibility.skycoverage import compute_coverage
 
     result = compute_coverage(skymap, sites, t0, nights=args.nights, twilight=args.twilight,
                               min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
@@ -43,11 +43,11 @@ def run(args) -> int:
     doc = coverage_document(result, t0)
     fig = None
     if args.plot:
-        from planner.plots_skymap import coverage_figure
+        from kncast.planner.figures.skymap import coverage_figure
 
         fig = coverage_figure(result)
     if fig is not None:  # everything is computed: now write, each file atomically
-        from planner.output import save_figure
+        from kncast.planner.output import save_figure
 
         save_figure(fig, args.plot)
     if args.json:
@@ -61,7 +61,7 @@ def _load(path):
     """The validated map and the one-line notices (e.g. renormalisation) raised while reading it."""
     import warnings
 
-    from planner.skymap import SkymapWarning, load_skymap
+    from kncast.planner.events.skymap import SkymapWarning, load_skymap
 
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", SkymapWarning)
@@ -75,7 +75,7 @@ def _load(path):
 
 def coverage_document(result, t0) -> dict:
     """The ``--json`` document (schema in README.md, section "Alerts")."""
-    from planner.output import document, iso_utc
+    from kncast.planner.output import document, iso_utc
 
     return document("coverage", map=result.skymap.summary(), t0_utc=iso_utc(t0), settings=result.settings,
                     nights=[n.summary() for n in result.nights], caution=CAUTION)

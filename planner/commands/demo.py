@@ -8,7 +8,7 @@ DEMO_EVENT = "kn-demo-south.toml"
 
 def add_arguments(p) -> None:
     p.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/kn-demo-south/)")
-    from planner.commands._common import positive_int
+    from kncast.planner.commands._common import positive_int
 
     p.add_argument("--nights", type=positive_int("--nights", 60), default=10, metavar="N",
                    help="local nights after t0 to plan (default 10)")
@@ -16,13 +16,13 @@ def add_arguments(p) -> None:
 
 def demo_event_path():
     """The bundled demo event file (wheel, editable install or source checkout)."""
-    from planner.sites import bundled_dir
+    from kncast.planner.sites import bundled_dir
 
-    return bundled_dir("planner._demo_events", "demo_events") / DEMO_EVENT
+    return bundled_dir("kncast.planner._demo_events", "demo_events") / DEMO_EVENT
 
 
 def run(args) -> int:
-    from planner.cli import build_parser
+    from kncast.planner.cli import build_parser
 
     argv = ["plan", "--event", str(demo_event_path()), "--nights", str(args.nights)]
     if args.out:

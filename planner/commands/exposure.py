@@ -3,9 +3,9 @@ from __future__ import annotations
 
 import math
 
-from planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
+from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, positive_int)
-from planner.commands._model_options import add_model_options, overrides_from_args
+from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 
 HELP = "S/N per resolution element for a setup at one epoch, or the exposure time for a target S/N"
 
@@ -73,7 +73,7 @@ def add_arguments(p) -> None:
 # ------------------------------------------------------------------ option checks
 
 def _check(option, value, low, high, low_open=False):
-    from planner.errors import OptionError
+    from kncast.planner.errors import OptionError
 
     if value is None:
         return
@@ -83,7 +83,7 @@ def _check(option, value, low, high, low_open=False):
 
 def check_options(args) -> None:
     """Validate every option that needs no file, before any work is done."""
-    from planner.errors import InputError
+    from kncast.planner.errors import InputError
 
     check_plot_path(args.plot)
     _check("--phase", args.phase, 0.0, MAX_PHASE_D, low_open=True)
@@ -113,7 +113,7 @@ def check_options(args) -> None:
 
 def observing_conditions(args, event, ref) -> dict:
     """Airmass, seeing, Moon and water vapour: options first, then the planner's best window of that night."""
-    from forecast.extinction_atm import atmosphere_for_site
+    from kncast.forecast.extinction_atm import atmosphere_for_site
 
     atm = atmosphere_for_site(ref.site)
     cond = {"airmass": args.airmass, "seeing_arcsec": args.seeing if args.seeing is not None else atm.seeing_arcsec,
@@ -129,7 +129,7 @@ def observing_conditions(args, event, ref) -> dict:
     night, window = best_window(event, ref.site, args.phase)
     if window is None:
         if args.airmass is None:
-            from planner.errors import InputError
+            from kncast.planner.errors import InputError
 
             raise InputError(f"no observing window for {event.id} from {ref.site.id} on the night of phase "
                              f"{args.phase:g} d ({night.note if night is not None else 'no night found'}); "
@@ -151,7 +151,7 @@ def observing_conditions(args, event, ref) -> dict:
 
 def best_window(event, site, phase_d):
     """(NightRecord, Window with the lowest airmass) for the local night holding t0 + phase (noon to noon)."""
-    from planner.visibility import compute_visibility
+    from kncast.planner.visibility.core import compute_visibility
 
     nights = int(math.ceil(phase_d)) + 2
     result = compute_visibility(event, [site], nights=nights)
@@ -170,7 +170,7 @@ def moon_at(event, site, mjd) -> dict:
     """Moon illumination, separation from the target and altitude at ``mjd`` (UTC) for ``site``."""
     import numpy as np
 
-    from planner import sky
+    from kncast.planner.visibility import sky
 
     eph = sky.Ephemeris.build(mjd - 0.05, mjd + 0.05, [event.ra_deg], [event.dec_deg])
     sites = sky.SiteArrays.of([site])
@@ -186,23 +186,23 @@ def moon_at(event, site, mjd) -> dict:
 def run(args) -> int:
     check_options(args)
     event = event_from_args(args)
-    from planner.setups import resolve_setup
-    from planner.sites import SiteRegistry
+    from kncast.planner.setups import resolve_setup
+    from kncast.planner.sites import SiteRegistry
 
     sky_file = None
     if args.sky:
-        from forecast.skybright import load_sky_spectrum
+        from kncast.forecast.skybright import load_sky_spectrum
 
         sky_file = load_sky_spectrum(args.sky)
     ref = resolve_setup(args.setup, SiteRegistry.load(args.sites_dir))
-    from planner.source import transient_for_event
+    from kncast.planner.source import transient_for_event
 
     transient = transient_for_event(event, overrides=overrides_from_args(args))
     cond = observing_conditions(args, event, ref)
     result = compute(args, event, ref, transient, cond, sky_file)
     if args.plot:
-        from planner.output import save_figure
-        from planner.plots_exposure import exposure_figure
+        from kncast.planner.output import save_figure
+        from kncast.planner.figures.exposure import exposure_figure
 
         save_figure(exposure_figure(result), args.plot)
     if args.json:
@@ -216,8 +216,8 @@ def compute(args, event, ref, transient, cond, sky_file) -> dict:
     """Everything the outputs need: S/N on the sample grid, at features and at reference wavelengths."""
     import numpy as np
 
-    from forecast import exposure as ex
-    from forecast.skybright import MoonGeometry
+    from kncast.forecast import exposure as ex
+    from kncast.forecast.skybright import MoonGeometry
 
     moon = None
     if cond["moon_illumination"] is not None and not args.ideal:
@@ -240,12 +240,12 @@ def compute(args, event, ref, transient, cond, sky_file) -> dict:
         at_A, at_label = _target_wavelength(args.at, feats, ref)
         _, r_at = rates_on(np.array([at_A]))
         if not r_at.on_detector[0]:
-            from planner.errors import OptionError
+            from kncast.planner.errors import OptionError
 
             raise OptionError("--at", args.at, f"a wavelength on the detector of {ref.id} ({_ranges(ref)})")
         t, n = ex.time_for_snr(r_at, args.snr, args.max_exposure)
         if not np.isfinite(t[0]) or t[0] > MAX_TIME_S:
-            from planner.errors import InputError
+            from kncast.planner.errors import InputError
 
             where = at_label if at_label.endswith(" A") else f"{at_label} ({at_A:.0f} A)"
             raise InputError(f"--snr {args.snr:g}: not reachable at {where} within {MAX_TIME_S:g} s, "
@@ -281,7 +281,7 @@ def compute(args, event, ref, transient, cond, sky_file) -> dict:
 
 
 def _tellurics():
-    from forecast.tellurics import TelluricModel
+    from kncast.forecast.tellurics import TelluricModel
 
     return TelluricModel.load()
 
@@ -298,7 +298,7 @@ def strong_features(transient, phase_d, ref, tellurics, airmass, pwv_mm) -> list
     """Features with Sobolev tau >= 1 at this epoch whose trough or emission peak falls in the setup's range."""
     import numpy as np
 
-    from forecast.features import forecast_features
+    from kncast.forecast.features import forecast_features
 
     fc = forecast_features(transient, np.array([phase_d]), setups=[ref.setup], tellurics=tellurics,
                            airmass=airmass, pwv_mm=pwv_mm, setup_ids=[ref.id])
@@ -322,7 +322,7 @@ def strong_features(transient, phase_d, ref, tellurics, airmass, pwv_mm) -> list
 
 def _target_wavelength(at, feats, ref):
     """(wavelength A, label) for --at: a number is a vacuum wavelength, otherwise a feature id."""
-    from planner.errors import OptionError, UnknownNameError
+    from kncast.planner.errors import OptionError, UnknownNameError
 
     if at is None:
         on = [f for f in feats if ref.setup.min_A <= f["trough_obs_A"] <= ref.setup.max_A]
@@ -339,7 +339,7 @@ def _target_wavelength(at, feats, ref):
         if not (math.isfinite(w) and ref.setup.min_A <= w <= ref.setup.max_A):
             raise OptionError("--at", at, f"a feature id or a vacuum wavelength in A within {_ranges(ref)}")
         return w, f"{w:g} A"
-    from forecast.linelist import LineList
+    from kncast.forecast.linelist import LineList
 
     known = {f.id: f for f in LineList.load().features()}
     key = at.strip()
@@ -376,7 +376,7 @@ def _warnings(res, res_pts, target, time_s, nexp, feats) -> list[str]:
 
 def exposure_document(res: dict) -> dict:
     """The ``--json`` document (schema in README.md, section "Exposure times and S/N")."""
-    from planner.output import document
+    from kncast.planner.output import document
 
     cond = res["conditions"]
     e = res["result"]

@@ -1,9 +1,9 @@
 """``kncast lightcurve``: the photosphere and synthetic magnitudes of the transient, epoch by epoch."""
 from __future__ import annotations
 
-from planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
+from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, parse_phases, split_list)
-from planner.commands._model_options import add_model_options, overrides_from_args
+from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 
 HELP = "forecast the photosphere (T, R, L, v) and AB magnitudes at chosen days after t0"
 
@@ -27,8 +27,8 @@ def add_arguments(p) -> None:
 
 def bands_from_args(args) -> tuple[str, ...]:
     """Validated band names (UnknownNameError with suggestions for a misspelt one)."""
-    from forecast.photometry import known_bands
-    from planner.errors import UnknownNameError
+    from kncast.forecast.photometry import known_bands
+    from kncast.planner.errors import UnknownNameError
 
     bands = split_list(args.bands) or DEFAULT_BANDS.split(",")
     for band in bands:
@@ -41,8 +41,8 @@ def compute(args):
     """(event, transient, state, bands, AB mags, Vega mags) for the parsed options."""
     import dataclasses
 
-    from forecast.photometry import vega_zero_points
-    from planner.source import transient_for_event
+    from kncast.forecast.photometry import vega_zero_points
+    from kncast.planner.source import transient_for_event
 
     phases = parse_phases(args.phases)
     bands = bands_from_args(args)
@@ -60,7 +60,7 @@ def compute(args):
 
 def document_for(event, transient, state, bands, mags, vega) -> dict:
     """The ``lightcurve`` JSON document (schema in README.md, section "Photosphere and light-curve forecast")."""
-    from planner.output import document
+    from kncast.planner.output import document
 
     multi = len(state.component_names) > 1
     epochs = []
@@ -96,8 +96,8 @@ def run(args) -> int:
     event, transient, state, bands, mags, vega = compute(args)
     doc = document_for(event, transient, state, bands, mags, vega)
     if args.plot:
-        from planner.plots_lightcurve import lightcurve_figure
-        from planner.output import save_figure
+        from kncast.planner.figures.lightcurve import lightcurve_figure
+        from kncast.planner.output import save_figure
 
         save_figure(lightcurve_figure(transient, state, bands, event.id), args.plot)
     if args.json:

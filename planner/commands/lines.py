@@ -1,9 +1,9 @@
 """``kncast lines``: where each diagnostic feature lands per epoch, how strong it is, which setups see it."""
 from __future__ import annotations
 
-from planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
+from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, parse_phases, split_list)
-from planner.commands._model_options import add_model_options, overrides_from_args
+from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 
 HELP = "forecast diagnostic line features per epoch: observed windows, LTE strength, coverage per setup"
 
@@ -47,7 +47,7 @@ def add_arguments(p) -> None:
 
 
 def _check_velocity(option: str, value) -> None:
-    from planner.errors import OptionError
+    from kncast.planner.errors import OptionError
 
     if value is not None and not 0.0 < value < MAX_VELOCITY_C:
         raise OptionError(option, value, f"a fraction of c in (0, {MAX_VELOCITY_C:g})")
@@ -55,7 +55,7 @@ def _check_velocity(option: str, value) -> None:
 
 def check_options(args) -> list[float]:
     """Validate options that need no files; returns the phases."""
-    from planner.errors import OptionError
+    from kncast.planner.errors import OptionError
 
     phases = parse_phases(args.phases)
     check_plot_path(args.plot)
@@ -69,7 +69,7 @@ def check_options(args) -> list[float]:
 
 
 def load_lines(args):
-    from forecast.linelist import LineList
+    from kncast.forecast.linelist import LineList
 
     lists = [] if args.only_lines else [LineList.load()]
     lists += [LineList.load(path) for path in split_list(args.lines)] if args.lines else []
@@ -78,9 +78,9 @@ def load_lines(args):
 
 def select_setups(args):
     """SetupRefs named by --setup (every setup by default)."""
-    from planner.errors import InputError
-    from planner.setups import all_setups, resolve_setup
-    from planner.sites import SiteRegistry
+    from kncast.planner.errors import InputError
+    from kncast.planner.setups import all_setups, resolve_setup
+    from kncast.planner.sites import SiteRegistry
 
     registry = SiteRegistry.load(args.sites_dir)
     ids = split_list(args.setup)
@@ -92,7 +92,7 @@ def select_setups(args):
 
 def _check_against_model(args, state) -> None:
     """A lone --vphot/--vmax must stay on the right side of the model's other velocity at every epoch."""
-    from planner.errors import OptionError
+    from kncast.planner.errors import OptionError
 
     if args.vphot is not None and args.vmax is None and (args.vphot >= state.v_max_c).any():
         i = int((args.vphot >= state.v_max_c).argmax())
@@ -106,10 +106,10 @@ def _check_against_model(args, state) -> None:
 
 def compute(args):
     """(event, transient, forecast result, setup refs, line list) for parsed options."""
-    from forecast.features import forecast_features
-    from forecast.lte import Composition
-    from forecast.tellurics import TelluricModel
-    from planner.source import transient_for_event
+    from kncast.forecast.features import forecast_features
+    from kncast.forecast.lte import Composition
+    from kncast.forecast.tellurics import TelluricModel
+    from kncast.planner.source import transient_for_event
 
     phases = check_options(args)
     event = event_from_args(args)
@@ -126,7 +126,7 @@ def compute(args):
 
 def lines_document(event, transient, result, args, linelist) -> dict:
     """The ``--json`` document (schema in README.md, section "Spectral features")."""
-    from planner.output import document
+    from kncast.planner.output import document
 
     comp = result.lte.composition
     settings = {
@@ -147,8 +147,8 @@ def run(args) -> int:
     event, transient, result, refs, linelist = compute(args)
     doc = lines_document(event, transient, result, args, linelist)
     if args.plot:
-        from planner.output import save_figure
-        from planner.plots_lines import lines_figure
+        from kncast.planner.output import save_figure
+        from kncast.planner.figures.lines import lines_figure
 
         save_figure(lines_figure(transient, result, refs, airmass=args.airmass, pwv_mm=args.pwv,
                                  title=event.id), args.plot)

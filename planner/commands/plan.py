@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from planner.commands import _common
+from kncast.planner.commands import _common
 
 HELP = "plan a spectroscopy campaign: best setup per site and night, exposure times, report"
 
@@ -34,7 +34,7 @@ def add_arguments(p) -> None:
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")
     o.add_argument("--json", metavar="PATH", help="also write plan.json to PATH ('-' for stdout); quiet terminal")
-    from planner.commands._model_options import add_model_options
+    from kncast.planner.commands._model_options import add_model_options
 
     add_model_options(p)
 
@@ -43,7 +43,7 @@ def run(args) -> int:
     quiet = bool(args.json)
     event = _common.event_from_args(args)
     registry, sites = _common.sites_from_args(args)
-    from planner.commands._model_options import overrides_from_args
+    from kncast.planner.commands._model_options import overrides_from_args
 
     overrides = overrides_from_args(args)
     out = Path(args.out) if args.out else Path("kncast-out") / safe_name(event.id)
@@ -60,7 +60,7 @@ def run(args) -> int:
             elif not bar.disable and not bar.live.is_started:
                 bar.start()
 
-        from planner.plan import build_plan
+        from kncast.planner.plan.core import build_plan
 
         plan = build_plan(event, sites, nights=args.nights, snr_target=args.snr, max_hours=args.max_hours,
                           overhead_s=args.overhead_min * 60.0, twilight=args.twilight, registry=registry,
@@ -85,7 +85,7 @@ def check_out(out: Path) -> None:
     """The output folder must be new or an earlier plan folder, inside a folder we may write."""
     import os
 
-    from planner.errors import OptionError
+    from kncast.planner.errors import OptionError
 
     base = out.absolute().parent
     while not base.exists():
@@ -101,9 +101,9 @@ def check_out(out: Path) -> None:
 
 def write_folder(plan, out: Path, say=lambda text: None) -> dict:
     """Write every output file of ``plan`` into ``out`` atomically; returns the plan document."""
-    from planner import plan_outputs
-    from planner.errors import OptionError
-    from planner.output import atomic_dir, write_json
+    from kncast.planner.plan import folder as plan_outputs
+    from kncast.planner.errors import OptionError
+    from kncast.planner.output import atomic_dir, write_json
 
     try:
         out.absolute().parent.mkdir(parents=True, exist_ok=True)
@@ -119,7 +119,7 @@ def write_folder(plan, out: Path, say=lambda text: None) -> dict:
         doc = plan_outputs.document(plan, files)
         write_json(tmp / "plan.json", doc)
         say("report")
-        from planner.report import write_report
+        from kncast.planner.plan.report import write_report
 
         write_report(tmp, doc, figures)
     return doc
@@ -130,7 +130,7 @@ def print_summary(plan, out: Path, quiet: bool = False) -> None:
     nights without a useful spectrum and why; then the report path and the cautions in one line."""
     from rich.table import Table
 
-    from planner.report import CAUTION_LINE
+    from kncast.planner.plan.report import CAUTION_LINE
 
     con = _common.console()
     if not quiet:

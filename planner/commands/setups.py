@@ -1,7 +1,7 @@
 """``kncast setups``: every spectrograph setup id with its ranges, resolving power and aperture."""
 from __future__ import annotations
 
-from planner.commands._common import add_output_options, add_site_options, console, emit_json, split_list
+from kncast.planner.commands._common import add_output_options, add_site_options, console, emit_json, split_list
 
 HELP = "list spectrograph setups (SITE/TELESCOPE/INSTRUMENT[:SETUP]) with ranges and resolving power"
 
@@ -12,8 +12,8 @@ def add_arguments(p) -> None:
 
 
 def run(args) -> int:
-    from planner.setups import all_setups
-    from planner.sites import SiteRegistry
+    from kncast.planner.setups import all_setups
+    from kncast.planner.sites import SiteRegistry
 
     registry = SiteRegistry.load(args.sites_dir)
     wanted = {s.id for s in registry.select(split_list(args.sites))}
@@ -48,7 +48,7 @@ def setup_summary(ref) -> dict:
 
 
 def setups_document(refs) -> dict:
-    from planner.output import document
+    from kncast.planner.output import document
 
     return document("setups", setups=[setup_summary(r) for r in refs],
                     note="wavelengths are vacuum Angstrom; example instruments carry invented parameters")

@@ -1,7 +1,7 @@
 """``kncast visibility``: from which sites, on which nights, between which times."""
 from __future__ import annotations
 
-from planner.commands._common import (add_event_options, add_night_rule_options, add_output_options,
+from kncast.planner.commands._common import (add_event_options, add_night_rule_options, add_output_options,
                                       add_site_options, check_plot_path, console, emit_json, event_from_args,
                                       sites_from_args)
 
@@ -26,21 +26,21 @@ def run(args) -> int:
     check_plot_path(args.plot)
     event = event_from_args(args)
     _, sites = sites_from_args(args)
-    from planner.visibility import compute_visibility
+    from kncast.planner.visibility.core import compute_visibility
 
     result = compute_visibility(event, sites, nights=args.nights, twilight=args.twilight,
                                 min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
                                 min_moon_sep_deg=args.min_moon_sep)
     ranking = None
     if getattr(args, "candidates", False):
-        from planner.candidates import rank_candidates
+        from kncast.planner.visibility.candidates import rank_candidates
 
         ranking = rank_candidates(event, sites, nights=args.nights, twilight=args.twilight,
                                   min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
                                   min_moon_sep_deg=args.min_moon_sep)
     if args.plot:
-        from planner.plots_campaign import campaign_figure
-        from planner.output import save_figure
+        from kncast.planner.figures.campaign import campaign_figure
+        from kncast.planner.output import save_figure
 
         save_figure(campaign_figure(result), args.plot)
     if args.json:
@@ -51,7 +51,7 @@ def run(args) -> int:
     if args.json != "-":
         print_tables(result)
         if ranking is not None:
-            from planner.candidates import print_ranking
+            from kncast.planner.visibility.candidates import print_ranking
 
             print_ranking(ranking)
     return 0
@@ -59,7 +59,7 @@ def run(args) -> int:
 
 def visibility_document(result) -> dict:
     """The ``--json`` document (schema in README.md, section "Visibility")."""
-    from planner.output import document
+    from kncast.planner.output import document
 
     return document("visibility", event=result.event.summary(), settings=result.settings(),
                     nights=[n.summary() for n in result.nights], caution=CAUTION)

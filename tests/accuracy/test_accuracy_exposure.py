@@ -10,12 +10,14 @@ import pytest
 from astropy import constants as const
 from astropy import units as u
 
-from forecast import ccd, skybright as sb, slit
-from forecast.airmass import airmass_kasten_young
-from forecast.exposure import Conditions, expose, rates, setup_grid, time_for_snr
-from forecast.extinction_atm import (Atmosphere, atmosphere_from_table, extinction_k_mag,
+from kncast.forecast import ccd
+from kncast.forecast import skybright as sb
+from kncast.forecast import slit
+from kncast.forecast.airmass import airmass_kasten_young
+from kncast.forecast.exposure import Conditions, expose, rates, setup_grid, time_for_snr
+from kncast.forecast.extinction_atm import (Atmosphere, atmosphere_from_table, extinction_k_mag,
                                      pressure_from_elevation_hpa, rayleigh_tau)
-from forecast.instruments import Arm, Setup, Spectrograph, Telescope
+from kncast.forecast.instruments import Arm, Setup, Spectrograph, Telescope
 
 REL = 1e-3  # 0.1%
 
@@ -112,7 +114,7 @@ def test_seeing_scaling():
 def test_kasten_young_airmass_reused():
     # Kasten & Young 1989 eq. (3): X(60 deg) = 1 / (0.5 + 0.50572 * 36.07995^-1.6364) = 1.99429 (by hand)
     assert airmass_kasten_young(60.0) == pytest.approx(1.99429, rel=1e-5)
-    from forecast.exposure import _zenith_deg
+    from kncast.forecast.exposure import _zenith_deg
 
     assert _zenith_deg(airmass_kasten_young(60.0)) == pytest.approx(60.0, abs=2e-3)
 
@@ -202,7 +204,7 @@ def test_k_v_high_site_typical():
 
 
 def test_atmosphere_table_validation():
-    from forecast.errors import DataFileError
+    from kncast.forecast.errors import DataFileError
 
     a = atmosphere_from_table({"aerosol_k5500": 0.05, "source": "test"}, 2000.0)
     assert isinstance(a, Atmosphere) and a.aerosol_k5500 == 0.05

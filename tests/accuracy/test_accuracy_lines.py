@@ -10,11 +10,11 @@ import pytest
 from astropy import constants as const
 from astropy import units as u
 
-from forecast.airvac import air_to_vac, vac_to_air
-from forecast.doppler import doppler_factor, feature_windows
-from forecast.features import Epochs, forecast_features
-from forecast.linelist import LineList
-from forecast.lte import SAHA_CONSTANT, SOBOLEV_PREFACTOR_CM2_S, saha_log_ratio
+from kncast.forecast.airvac import air_to_vac, vac_to_air
+from kncast.forecast.doppler import doppler_factor, feature_windows
+from kncast.forecast.features import Epochs, forecast_features
+from kncast.forecast.linelist import LineList
+from kncast.forecast.lte import SAHA_CONSTANT, SOBOLEV_PREFACTOR_CM2_S, saha_log_ratio
 
 AIRVAC_TOL_A = 0.01         # the tolerance for air/vacuum checks
 PUBLISHED_TOL_A = 1e-6      # published values are stored verbatim
@@ -99,7 +99,7 @@ PUBLISHED = [
 def lines():
     from astropy.table import Table
 
-    from forecast.linelist import DEFAULT_PATH
+    from kncast.forecast.linelist import DEFAULT_PATH
 
     return LineList.load(), Table.read(DEFAULT_PATH, format="ascii.ecsv")
 

@@ -13,8 +13,8 @@ import pytest
 from astropy import constants as const
 from astropy import units as u
 
-from forecast.blackbody import planck_flam, planck_sum_flam, stefan_boltzmann_luminosity, wien_peak_A
-from forecast.photometry import DEFAULT_BANDS, ab_minus_vega, mag_ab_from_spectrum
+from kncast.forecast.blackbody import planck_flam, planck_sum_flam, stefan_boltzmann_luminosity, wien_peak_A
+from kncast.forecast.photometry import DEFAULT_BANDS, ab_minus_vega, mag_ab_from_spectrum
 
 PLANCK_RTOL = 1e-10
 SB_RTOL = 1e-6
@@ -103,9 +103,9 @@ def test_vega_ab_offsets_match_published_table(band):
 
 def test_f99_total_to_selective_extinction_is_3_1_at_v():
     # Fitzpatrick 1999 (PASP 111, 63) with R_V = A_V / E(B-V) = 3.1
-    from forecast.extinction import a_lambda_over_a_v, extinction_mag
-    from forecast.photosphere import PowerLawPhotosphere
-    from forecast.source import Transient
+    from kncast.forecast.extinction import a_lambda_over_a_v, extinction_mag
+    from kncast.forecast.photosphere import PowerLawPhotosphere
+    from kncast.forecast.source import Transient
 
     # monochromatic at V (5500 A): F99 curves are normalized to broad-band B, V, so a few per cent
     assert extinction_mag(5500.0, 1.0) == pytest.approx(3.1, rel=0.03)
@@ -123,7 +123,7 @@ def test_f99_matches_dust_extinction_inside_its_range_and_stays_finite_outside()
     # Reference library: dust_extinction.parameter_averages.F99 (Fitzpatrick 1999)
     from dust_extinction.parameter_averages import F99
 
-    from forecast.extinction import a_lambda_over_a_v
+    from kncast.forecast.extinction import a_lambda_over_a_v
 
     wave = np.linspace(1100.0, 33000.0, 500)
     assert np.allclose(a_lambda_over_a_v(wave), F99(Rv=3.1)(wave * u.AA), rtol=1e-12)
@@ -134,7 +134,7 @@ def test_f99_matches_dust_extinction_inside_its_range_and_stays_finite_outside()
 def test_heating_rate_at_one_day_is_of_order_1e10():
     # Korobkin et al. 2012 (MNRAS 426, 1940): about 1e10 erg/g/s deposited at 1 day for a
     # thermalization of 0.5, i.e. ~2e10 erg/g/s total (REFERENCES: from memory)
-    from forecast.heating import heating_rate_erg_g_s
+    from kncast.forecast.heating import heating_rate_erg_g_s
 
     total = float(heating_rate_erg_g_s(86400.0))
     assert 1e10 < total < 4e10
@@ -156,14 +156,14 @@ BARNES_ROWS = {
 
 @pytest.mark.parametrize("key", sorted(BARNES_ROWS))
 def test_thermalization_coefficients_reproduce_barnes_table(key):
-    from forecast.heating import barnes_coefficients
+    from kncast.forecast.heating import barnes_coefficients
 
     assert barnes_coefficients(*key) == pytest.approx(BARNES_ROWS[key], abs=1e-12)
 
 
 def test_thermalization_efficiency_limits():
     # Barnes et al. 2016 eq. 36: eps_th -> 0.36 * 2 = 0.72 as t -> 0, decreasing with time
-    from forecast.heating import thermalization_efficiency
+    from kncast.forecast.heating import thermalization_efficiency
 
     a, b, d = BARNES_ROWS[(1e-2, 0.2)]
     t = np.geomspace(1e-6, 100.0, 200)
@@ -174,7 +174,7 @@ def test_thermalization_efficiency_limits():
 
 def test_arnett_diffusion_of_constant_power():
     # Closed form of Arnett's (1982) integral for constant input L0: L = L0 (1 - exp(-(t/t_d)^2))
-    from forecast.heating import diffuse
+    from kncast.forecast.heating import diffuse
 
     t, td = np.array([0.01, 0.3, 1.0, 2.0, 5.0, 20.0, 100.0]), 1.7
     lum = diffuse(t, td, lambda x: np.full_like(x, 1e41), head_index=0.0)
@@ -186,7 +186,7 @@ def test_arnett_diffusion_of_power_law_heating():
     # L = t_d^-n u^(a+1) / (a+1) * 1F1(1; a+2; -u)  (Kummer's function; Abramowitz & Stegun 13.1.27)
     from scipy.special import hyp1f1
 
-    from forecast.heating import diffuse
+    from kncast.forecast.heating import diffuse
 
     n, td = 1.3, 2.3
     t = np.array([0.05, 0.5, 1.0, 3.0, 10.0, 40.0])

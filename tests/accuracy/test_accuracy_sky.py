@@ -18,12 +18,12 @@ import pytest
 from astropy.coordinates import AltAz, EarthLocation, SkyCoord, get_body
 from astropy.time import Time
 
-from forecast.airmass import airmass_kasten_young
-from planner import sky
-from planner._offline import skyfield_ephemeris, skyfield_timescale
-from planner.events import Event
-from planner.sites import SiteRegistry
-from planner.visibility import compute_visibility
+from kncast.forecast.airmass import airmass_kasten_young
+from kncast.planner.visibility import sky
+from kncast.planner._offline import skyfield_ephemeris, skyfield_timescale
+from kncast.planner.events.model import Event
+from kncast.planner.sites import SiteRegistry
+from kncast.planner.visibility.core import compute_visibility
 
 TWILIGHT_TOL_S = 30.0  # the tolerance for dusk/dawn against skyfield
 ALTITUDE_TOL_ARCSEC = 5.0  # the tolerance for altitudes against astropy

@@ -4,7 +4,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from forecast.tellurics import TelluricModel
+from kncast.forecast.tellurics import TelluricModel
 
 EDGE_TOL_A = 0.5  # band edges are quoted to ~5 A; our conversion must not move them more than this
 
@@ -100,7 +100,7 @@ def test_loss_fraction_is_mean_absorption(model):
 
 
 def test_bad_airmass_and_pwv_refused(model):
-    from forecast.errors import ForecastInputError
+    from kncast.forecast.errors import ForecastInputError
 
     with pytest.raises(ForecastInputError, match="airmass"):
         model.transmission(7000.0, airmass=0.5)

@@ -1,0 +1,1 @@
+"""Events: event files, VOEvent packets and HEALPix sky maps."""

@@ -1,0 +1,89 @@
+"""Reading events: TOML event files (schema in docs/formats.md) and command-line values;
+VOEvent packets are read by :mod:`kncast.planner.events.voevent`."""
+from __future__ import annotations
+
+from pathlib import Path
+
+from kncast.forecast.datafiles import field, read_toml, table
+from kncast.forecast.errors import DataFileError
+from kncast.planner.errors import InputError
+from kncast.planner.events.model import Candidate, Event, check_distance, parse_dec, parse_ra, parse_time_utc
+
+
+def event_from_options(ra, dec, t0, distance_mpc=None, *, event_id: str = "cli-event", redshift=None,
+                       ebv_mw: float = 0.0) -> Event:
+    """Build an Event from command-line values (already split into strings/numbers)."""
+    ra_deg, dec_deg = parse_ra(ra, "--ra"), parse_dec(dec, "--dec")
+    t = parse_time_utc(t0, "--t0")
+    check_distance(distance_mpc, redshift, "--distance-mpc" if distance_mpc is not None else "--redshift")
+    if not 0.0 <= ebv_mw <= 10.0:
+        raise InputError(f"--ebv-mw {ebv_mw:g}: out of range (allowed: 0 to 10 mag)")
+    return Event(event_id, ra_deg, dec_deg, t, distance_mpc=distance_mpc, redshift=redshift, ebv_mw=ebv_mw)
+
+
+def load_event(path) -> Event:
+    """Load an event file; TOML by default, VOEvent XML when the file is XML."""
+    path = Path(path)
+    if path.suffix.lower() == ".xml":
+        from kncast.planner.events.voevent import load_voevent  # arrives with the alert-packet reader
+
+        return load_voevent(path)
+    return event_from_toml(read_toml(path), path)
+
+
+def event_from_toml(doc: dict, path) -> Event:
+    """Validate the ``[event]`` table (and optional ``[model]``, ``[[candidate]]``) of an event file."""
+    ev = table(doc, "event", path)
+    event_id = field(ev, "id", path, prefix="event", kind=str)
+    ra_deg = _file_angle(ev, "ra", path, parse_ra)
+    dec_deg = _file_angle(ev, "dec", path, parse_dec)
+    if "t0" not in ev:
+        raise DataFileError(path, "event.t0", "required key missing", "ISO 8601 UTC, e.g. 2027-03-14T02:17:00Z")
+    t0 = _wrap(lambda: parse_time_utc(ev["t0"], "t0"), path, "event.t0")
+    distance = field(ev, "distance_mpc", path, prefix="event", default=None, low=0, high=1e5, low_open=True, unit="Mpc")
+    redshift = field(ev, "redshift", path, prefix="event", default=None, low=0, high=10, low_open=True)
+    if distance is None and redshift is None:
+        raise DataFileError(path, "event.distance_mpc", "required key missing (or give event.redshift)", "(0, 100000] Mpc")
+    return Event(
+        id=event_id, ra_deg=ra_deg, dec_deg=dec_deg, t0=t0, distance_mpc=distance, redshift=redshift,
+        distance_err_mpc=field(ev, "distance_err_mpc", path, prefix="event", default=None, low=0, unit="Mpc"),
+        ebv_mw=field(ev, "ebv_mw", path, prefix="event", default=0.0, low=0, high=10, unit="mag"),
+        ebv_host=field(ev, "ebv_host", path, prefix="event", default=0.0, low=0, high=10, unit="mag"),
+        error_radius_deg=field(ev, "error_radius_deg", path, prefix="event", default=None, low=0, high=180, low_open=True),
+        model=table(doc, "model", path, required=False),
+        candidates=_candidates(doc, path),
+        source=str(path),
+    )
+
+
+def _file_angle(ev: dict, key: str, path, parser) -> float:
+    if key not in ev:
+        raise DataFileError(path, f"event.{key}", "required key missing", "degrees or a sexagesimal string")
+    return _wrap(lambda: parser(ev[key], key), path, f"event.{key}")
+
+
+def _wrap(fn, path, key):
+    """Re-raise an InputError from a value parser as a DataFileError naming file and key."""
+    try:
+        return fn()
+    except InputError as err:
+        problem = str(err).split(": ", 1)[-1]
+        raise DataFileError(path, key, problem) from None
+
+
+def _candidates(doc: dict, path) -> tuple[Candidate, ...]:
+    rows = doc.get("candidate", [])
+    if not isinstance(rows, list):
+        raise DataFileError(path, "candidate", "expected an array of [[candidate]] tables")
+    out = []
+    for i, row in enumerate(rows):
+        where = f"candidate[{i}]"
+        if not isinstance(row, dict):
+            raise DataFileError(path, where, "expected a [[candidate]] table")
+        cid = field(row, "id", path, prefix=where, kind=str)
+        ra = _wrap(lambda: parse_ra(row["ra"], "ra"), path, f"{where}.ra") if "ra" in row else None
+        dec = _wrap(lambda: parse_dec(row["dec"], "dec"), path, f"{where}.dec") if "dec" in row else None
+        if ra is None or dec is None:
+            raise DataFileError(path, f"{where}.{'ra' if ra is None else 'dec'}", "required key missing")
+        out.append(Candidate(cid, ra, dec))
+    return tuple(out)

@@ -1,0 +1,129 @@
+"""The event record: position, merger/alert time and distance, with the value checks
+shared by every reader (event files, VOEvent packets, command-line values).
+
+Coordinates accept degrees or sexagesimal strings ("10:21:05.3" / "10h21m05.3s" for RA in
+hours, "-35:12:00" / "-35d12m00s" for Dec).
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field as dc_field
+from datetime import datetime, timezone
+import astropy.units as u
+from astropy.coordinates import Angle, SkyCoord
+from astropy.time import Time
+
+from kncast.planner.errors import InputError
+
+# DE421 (skyfield-data) spans 1899-07-28 .. 2053-10-08; keep a margin for the nights after t0.
+T0_MIN, T0_MAX = "1900-01-01", "2053-01-01"
+
+
+@dataclass(frozen=True)
+class Candidate:
+    """One possible counterpart position of an event."""
+
+    id: str
+    ra_deg: float
+    dec_deg: float
+
+
+@dataclass(frozen=True)
+class Event:
+    """A transient to observe.  Angles in degrees, distance in Mpc, t0 a UTC Time."""
+
+    id: str
+    ra_deg: float
+    dec_deg: float
+    t0: Time
+    distance_mpc: float | None = None
+    redshift: float | None = None
+    distance_err_mpc: float | None = None
+    ebv_mw: float = 0.0
+    ebv_host: float = 0.0
+    error_radius_deg: float | None = None
+    model: dict = dc_field(default_factory=dict)
+    candidates: tuple[Candidate, ...] = ()
+    source: str = "command line"
+
+    @property
+    def coord(self) -> SkyCoord:
+        """ICRS position of the (primary) target."""
+        return SkyCoord(self.ra_deg * u.deg, self.dec_deg * u.deg, frame="icrs")
+
+    def targets(self) -> tuple[Candidate, ...]:
+        """All candidate positions, or the single event position if none are listed."""
+        return self.candidates or (Candidate(self.id, self.ra_deg, self.dec_deg),)
+
+    def summary(self) -> dict:
+        """JSON-ready description used as the ``event`` member of every document."""
+        from kncast.planner.output import iso_utc
+
+        doc = {
+            "id": self.id, "ra_deg": self.ra_deg, "dec_deg": self.dec_deg, "t0_utc": iso_utc(self.t0),
+            "distance_mpc": self.distance_mpc, "redshift": self.redshift,
+            "distance_err_mpc": self.distance_err_mpc, "ebv_mw": self.ebv_mw, "source": self.source,
+        }
+        if self.candidates:
+            doc["candidates"] = [{"id": c.id, "ra_deg": c.ra_deg, "dec_deg": c.dec_deg} for c in self.candidates]
+        return doc
+
+
+def parse_ra(value, where: str) -> float:
+    """Right ascension in degrees [0, 360) from a number (deg) or a sexagesimal string (hours)."""
+    deg = _parse_angle(value, where, u.hourangle)
+    if not 0.0 <= deg < 360.0:
+        raise InputError(f"{where}: right ascension {value!r} out of range (allowed: 0 <= RA < 360 deg, or 0h-24h)")
+    return deg
+
+
+def parse_dec(value, where: str) -> float:
+    """Declination in degrees [-90, 90] from a number or a sexagesimal string (degrees)."""
+    deg = _parse_angle(value, where, u.deg)
+    if not -90.0 <= deg <= 90.0:
+        raise InputError(f"{where}: declination {value!r} out of range (allowed: -90 to +90 deg)")
+    return deg
+
+
+def _parse_angle(value, where: str, string_unit) -> float:
+    if isinstance(value, bool):
+        raise InputError(f"{where}: expected an angle, got {value!r}")
+    if isinstance(value, (int, float)):
+        return float(value)
+    text = str(value).strip()
+    try:
+        if re.fullmatch(r"[+-]?\d+(\.\d*)?([eE][+-]?\d+)?", text):
+            return float(text)
+        return float(Angle(text, unit=string_unit).deg)
+    except (ValueError, u.UnitsError):
+        raise InputError(f"{where}: cannot read angle {value!r} (allowed: degrees, or sexagesimal like "
+                         f"'10:21:05.3' / '10h21m05s' for RA, '-35:12:00' for Dec)") from None
+
+
+def parse_time_utc(value, where: str) -> Time:
+    """A UTC Time from an ISO 8601 string that states its zone (``Z`` or ``+hh:mm``)."""
+    if isinstance(value, datetime):
+        dt = value
+    else:
+        text = str(value).strip()
+        try:
+            dt = datetime.fromisoformat(text.replace("Z", "+00:00").replace("z", "+00:00"))
+        except ValueError:
+            raise InputError(f"{where}: cannot read time {value!r} (allowed: ISO 8601 UTC, "
+                             f"e.g. 2027-03-14T02:17:00Z)") from None
+    if dt.tzinfo is None:
+        raise InputError(f"{where}: time {value!r} has no time zone; write it in UTC with a Z, "
+                         f"e.g. {dt.strftime('%Y-%m-%dT%H:%M:%S')}Z")
+    t = Time(dt.astimezone(timezone.utc).replace(tzinfo=None), scale="utc", format="datetime")
+    t.format = "isot"
+    if not Time(T0_MIN) <= t <= Time(T0_MAX):
+        raise InputError(f"{where}: time {value!r} outside the ephemeris span (allowed: {T0_MIN} to {T0_MAX})")
+    return t
+
+
+def check_distance(distance_mpc, redshift, where: str):
+    """Validate distance (Mpc, (0, 1e5]) and redshift ((0, 10])."""
+    if distance_mpc is not None and not 0.0 < distance_mpc <= 1e5:
+        raise InputError(f"{where}: distance {distance_mpc:g} Mpc out of range (allowed: 0 < D <= 100000 Mpc)")
+    if redshift is not None and not 0.0 < redshift <= 10.0:
+        raise InputError(f"{where}: redshift {redshift:g} out of range (allowed: 0 < z <= 10)")

@@ -1,0 +1,1 @@
+"""Figures, one module per figure (matplotlib imported inside the drawing functions' modules only)."""

@@ -1,0 +1,1 @@
+"""The campaign plan: the core, its document and schema, the output folder and the report."""

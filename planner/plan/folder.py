@@ -1,0 +1,386 @@
+"""The files of a plan folder: ECSV tables, figures and the plan document.
+
+Tables are written with astropy's ECSV writer (units in the column
+metadata) so ``astropy.table.Table.read(path)`` gives them back; figures
+are PNG files under ``figures/`` drawn by the plot functions of the
+visibility, photosphere, line and exposure modules.  Column lists are in
+README.md, section "The campaign plan".
+"""
+from __future__ import annotations
+
+import multiprocessing
+import os
+from pathlib import Path
+
+import numpy as np
+
+from kncast.planner.plan.core import MAX_EXPOSURE_S, forecast_airmass
+
+FIGURE_DPI = 90
+
+
+def _write_table(columns: dict, units: dict, path: Path, description: str) -> None:
+    from astropy.table import Table
+
+    from kncast.planner.output import atomic_path
+
+    t = Table(columns)
+    for name, unit in units.items():
+        if name in t.colnames and unit:
+            t[name].unit = unit
+    t.meta["description"] = description
+    with atomic_path(path, suffix=".ecsv") as tmp:
+        t.write(tmp, format="ascii.ecsv", overwrite=True)
+
+
+def _col(rows: list[dict], name: str, kind=float):
+    values = [r[name] for r in rows]
+    if kind is float:
+        return np.array([np.nan if v is None else v for v in values], dtype=float)
+    if kind is int:
+        return np.array([-1 if v is None else v for v in values], dtype=int)
+    if kind is bool:
+        return np.array(values, dtype=bool)
+    return np.array(["" if v is None else str(v) for v in values], dtype=str)
+
+
+WINDOW_COLUMNS = {  # name: (kind, unit)
+    "site": (str, None), "night": (str, None), "window": (int, None), "used": (bool, None),
+    "start_utc": (str, None), "end_utc": (str, None), "hours": (float, "h"), "best_utc": (str, None),
+    "best_airmass": (float, None), "best_altitude_deg": (float, "deg"), "moon_illumination": (float, None),
+    "moon_sep_deg": (float, "deg"), "moon_altitude_deg": (float, "deg"), "phase_start_d": (float, "d"),
+    "phase_end_d": (float, "d"),
+}
+FEATURE_COLUMNS = {
+    "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
+    "feature": (str, None), "species": (str, None), "trough_obs_A": (float, "Angstrom"),
+    "tau_sobolev": (float, None), "strong": (bool, None), "coverage": (float, None), "gap_loss": (float, None),
+    "telluric_loss": (float, None), "verdict": (str, None), "clear": (bool, None),
+}
+EXPOSURE_COLUMNS = {
+    "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
+    "airmass": (float, None), "moon_illumination": (float, None), "moon_sep_deg": (float, "deg"),
+    "available_s": (float, "s"), "n_strong": (int, None), "n_clear_strong": (int, None), "feature": (str, None),
+    "trough_obs_A": (float, "Angstrom"), "snr_window": (float, None), "time_for_target_s": (float, "s"),
+    "nexp": (int, None), "exposure_s": (float, "s"), "reaches_target": (bool, None), "score": (float, None),
+    "chosen": (bool, None),
+}
+
+
+def _table(rows, spec, path, description):
+    cols = {name: _col(rows, name, kind) for name, (kind, _) in spec.items()}
+    _write_table(cols, {n: u for n, (_, u) in spec.items()}, path, description)
+
+
+def window_rows(plan) -> list[dict]:
+    from kncast.planner.output import iso_utc
+
+    rows = []
+    for p in plan.nights:
+        for k, w in enumerate(p.record.windows):
+            rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "window": k,
+                         "used": k == p.window_index, "start_utc": iso_utc(w.start), "end_utc": iso_utc(w.end),
+                         "hours": w.hours, "best_utc": iso_utc(w.best_time), "best_airmass": w.best_airmass,
+                         "best_altitude_deg": w.best_altitude_deg, "moon_illumination": w.moon_illumination,
+                         "moon_sep_deg": w.moon_sep_deg, "moon_altitude_deg": w.moon_altitude_deg,
+                         "phase_start_d": w.phase_start_d, "phase_end_d": w.phase_end_d})
+    return rows
+
+
+def exposure_rows(plan) -> list[dict]:
+    rows = []
+    for p in plan.nights:
+        w = p.window
+        for o in p.outcomes:
+            rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
+                         "setup": o.setup, "airmass": forecast_airmass(w), "moon_illumination": w.moon_illumination,
+                         "moon_sep_deg": w.moon_sep_deg, "available_s": p.hours_available * 3600.0,
+                         "n_strong": o.n_strong, "n_clear_strong": o.n_clear, "feature": o.feature,
+                         "trough_obs_A": o.trough_obs_A, "snr_window": o.snr,
+                         "time_for_target_s": o.time_for_target_s, "nexp": o.nexp, "exposure_s": o.exposure_s,
+                         "reaches_target": o.reaches_target, "score": o.score, "chosen": o is p.choice})
+    return rows
+
+
+def write_tables(plan, folder: Path) -> dict:
+    """``windows.ecsv``, ``features.ecsv``, ``exposures.ecsv`` in ``folder``; returns their names."""
+    _table(window_rows(plan), WINDOW_COLUMNS, folder / "windows.ecsv",
+           "kncast plan: every observing window per site and night (used = the window the plan uses)")
+    _table(plan.features, FEATURE_COLUMNS, folder / "features.ecsv",
+           "kncast plan: feature forecast per site-night epoch and setup (strong: tau_sobolev >= "
+           f"{plan.settings['strong_tau']:g}; clear: strong and verdict 'clear')")
+    _table(exposure_rows(plan), EXPOSURE_COLUMNS, folder / "exposures.ecsv",
+           "kncast plan: S/N per resolution element reachable in the usable window and exposure for the "
+           "target S/N at the reference feature (the clear strong feature with the best S/N), per site-night "
+           "epoch and setup")
+    return {"windows": "windows.ecsv", "features": "features.ecsv", "exposures": "exposures.ecsv"}
+
+
+# ---------------------------------------------------------------------------- figures
+def _save(fig, folder: Path, name: str, tight: bool = False) -> str:
+    from kncast.planner.output import save_figure
+
+    rel = f"figures/{name}.png"
+    save_figure(fig, folder / rel, dpi=FIGURE_DPI, bbox_inches="tight" if tight else None)
+    return rel
+
+
+def write_figures(plan, folder: Path) -> list[dict]:
+    """Campaign chart, light curve, one spectral panel per chosen epoch, S/N curves (PNG under figures/).
+
+    The figures are independent, so they are drawn by two forked worker
+    processes where the platform can fork (plain serial drawing otherwise).
+    """
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot  # noqa: F401  (loaded once, before any fork)
+
+    (folder / "figures").mkdir(exist_ok=True)
+    jobs = figure_jobs(plan)
+    global _JOB_STATE
+    _JOB_STATE = (plan, folder)
+    try:
+        workers = min(2, os.cpu_count() or 1, len(jobs))
+        if workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+            heavy_first = sorted(range(len(jobs)), key=lambda k: -jobs[k][2])
+            with multiprocessing.get_context("fork").Pool(workers) as pool:
+                done = pool.map(_run_job, [jobs[k][:2] for k in heavy_first], chunksize=1)
+            results = [None] * len(jobs)
+            for k, r in zip(heavy_first, done):
+                results[k] = r
+        else:
+            results = [_run_job(j[:2]) for j in jobs]
+    finally:
+        _JOB_STATE = None
+    failed = [r for r in results if r is not None and "error" in r]
+    if failed:
+        raise FigureError(failed[0]["error"], failed[0]["trace"])
+    return [r for r in results if r is not None]
+
+
+class FigureError(RuntimeError):
+    """A figure could not be drawn (an internal error: the message names the figure)."""
+
+    def __init__(self, message: str, trace: str = ""):
+        super().__init__(message)
+        self.trace = trace
+        if trace:
+            self.add_note("in the figure worker:\n" + trace)  # shown with --debug
+
+
+_JOB_STATE = None  # (plan, folder) for the figure workers (inherited through fork)
+
+
+def _run_job(job):
+    """Draw one figure; a failure comes back as text (exception objects may not survive pickling)."""
+    name, arg = job
+    plan, folder = _JOB_STATE
+    try:
+        return FIGURES[name](plan, folder, arg)
+    except Exception as err:  # noqa: BLE001 - re-raised in the parent by write_figures
+        import traceback
+
+        return {"error": f"figure {name!r} ({arg}): {type(err).__name__}: {err}", "trace": traceback.format_exc()}
+
+
+def figure_jobs(plan) -> list[tuple]:
+    """(figure kind, argument, relative cost) in report order."""
+    jobs = [("campaign", None, 2), ("lightcurve", None, 1)]
+    chosen = sorted(plan.useful(), key=lambda p: p.phase_d)
+    jobs += [("spectrum", day, 1 + len(epoch_groups([p for p in chosen if int(p.phase_d) == day])))
+             for day in sorted({int(p.phase_d) for p in chosen})]
+    jobs += [("snr", sid, 1) for sid in snr_figure_setups(plan)]
+    if any(o.snr is not None for p in plan.nights for o in p.outcomes):
+        jobs.append(("snr-campaign", None, 1))
+    return jobs
+
+
+def campaign_chart(plan, folder, _arg):
+    from kncast.planner.figures.campaign import campaign_figure
+
+    return {"title": "Campaign", "path": _save(campaign_figure(plan.visibility), folder, "campaign", tight=True),
+            "caption": "Observing windows per site across the campaign, shaded by airmass, with moonlight."}
+
+
+def light_curve(plan, folder, _arg):
+    from kncast.planner.commands.lightcurve import DEFAULT_BANDS
+    from kncast.planner.figures.lightcurve import lightcurve_figure
+
+    useful = plan.useful() or [p for p in plan.nights if p.phase_d is not None]
+    phases = np.unique(np.round([p.phase_d for p in useful], 4)) if useful else np.array([1.0])
+    state = plan.transient.state(phases)
+    fig = lightcurve_figure(plan.transient, state, tuple(DEFAULT_BANDS.split(",")),
+                            f"{plan.event.id}: {plan.model.get('name', '')} photosphere")
+    return {"title": "Light curve", "path": _save(fig, folder, "lightcurve", tight=True),
+            "caption": "Model AB magnitudes and photospheric temperature; markers at the "
+                       + ("epochs with a useful spectrum." if plan.useful() else "planned epochs.")}
+
+
+SAME_EPOCH_D = 0.05  # chosen epochs closer than this (1.2 h) share one spectral panel
+
+
+def epoch_groups(nights: list) -> list[list]:
+    """Chosen nights in phase order, grouped where consecutive epochs lie within SAME_EPOCH_D."""
+    groups = []
+    for p in sorted(nights, key=lambda n: n.phase_d):
+        if groups and p.phase_d - groups[-1][-1].phase_d < SAME_EPOCH_D:
+            groups[-1].append(p)
+        else:
+            groups.append([p])
+    return groups
+
+
+def spectral_figure(plan, folder, day):
+    """One spectral forecast panel per chosen epoch of days [day, day + 1) since t0 (the lines chart);
+    epochs within SAME_EPOCH_D of each other share a panel."""
+    from kncast.forecast.features import forecast_features
+    from kncast.planner.figures.lines import lines_figure
+
+    refs = {r.id: r for r in plan.setup_refs}
+    groups = epoch_groups([p for p in plan.useful() if int(p.phase_d) == day])
+    members = [p for g in groups for p in g]
+    group_refs = list({p.choice.setup: refs[p.choice.setup] for p in members}.values())
+    airmass = float(np.median([forecast_airmass(p.window) for p in members]))
+    pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in members]))
+    fc = forecast_features(plan.transient, np.array([g[0].phase_d for g in groups]),
+                           setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
+                           pwv_mm=pwv, setup_ids=[r.id for r in group_refs])
+    fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
+                       f"Days {day}-{day + 1}")
+    words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
+                                                              for p in g) for g in groups)
+    return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
+            "path": _save(fig, folder, f"spectrum-day{day:02d}"),
+            "caption": f"One panel per chosen epoch, top to bottom (epochs within {SAME_EPOCH_D * 24:.1f} h share a "
+                       f"panel): {words}. Bottom: the chosen setups' coverage. Telluric bands drawn at airmass "
+                       f"{airmass:.2f}, PWV {pwv:g} mm."}
+
+
+MAX_SNR_FIGURES = 4
+
+
+def snr_figure_setups(plan) -> list[str]:
+    """The chosen setups (most often chosen first, at most MAX_SNR_FIGURES) that get an S/N spectrum."""
+    counts = {}
+    for p in plan.useful():
+        counts[p.choice.setup] = counts.get(p.choice.setup, 0) + 1
+    return sorted(counts, key=lambda s: (-counts[s], s))[:MAX_SNR_FIGURES]
+
+
+def snr_spectrum(plan, folder, setup_id):
+    """S/N against wavelength (the exposure chart) for a setup at the last night it was chosen."""
+    import argparse
+
+    from kncast.planner.commands import exposure as cmd
+    from kncast.planner.figures.exposure import exposure_figure
+
+    p = max((n for n in plan.useful() if n.choice.setup == setup_id), key=lambda n: n.phase_d)
+    ref = next(r for r in plan.setup_refs if r.id == setup_id)
+    w = p.window
+    # the options `kncast exposure` would be given for this night, parsed by its own parser
+    parser = argparse.ArgumentParser()
+    cmd.add_arguments(parser)
+    args = parser.parse_args([
+        f"--setup={setup_id}", f"--phase={p.phase_d!r}", f"--snr={plan.settings['snr_target']!r}",
+        f"--at={p.choice.feature}", f"--max-exposure={MAX_EXPOSURE_S!r}", f"--airmass={forecast_airmass(w)!r}",
+        f"--moon-illumination={float(np.clip(w.moon_illumination, 0, 1))!r}",
+        f"--moon-sep={float(np.clip(w.moon_sep_deg, 0, 180))!r}",
+        f"--moon-alt={float(np.clip(w.moon_altitude_deg, -90, 90))!r}"])
+    cmd.check_options(args)
+    cond = cmd.observing_conditions(args, plan.event, ref)
+    res = cmd.compute(args, plan.event, ref, plan.transient, cond, None)
+    fig = exposure_figure(res)
+    return {"title": f"S/N spectrum, {setup_id}",
+            "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
+            "caption": f"S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s (the "
+                       f"time for S/N {plan.settings['snr_target']:g} at {p.choice.feature}) on day {p.phase_d:.2f}, "
+                       f"night of {p.record.night.isoformat()} at airmass {forecast_airmass(w):.2f}: the last night "
+                       f"this setup is chosen."}
+
+
+def _file_part(text: str) -> str:
+    import re
+
+    return re.sub(r"[^A-Za-z0-9.-]+", "_", text)
+
+
+def snr_campaign(plan, folder, _arg):
+    return {"title": "S/N across the campaign", "path": _save(snr_campaign_figure(plan), folder, "snr-campaign"),
+            "caption": "S/N per resolution element reachable in each night's usable time at each setup's "
+                       "reference feature, against days since t0; the dashed line is the target."}
+
+
+FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": spectral_figure,
+           "snr": snr_spectrum, "snr-campaign": snr_campaign}
+
+
+def snr_campaign_figure(plan):
+    """S/N reachable in the usable window vs epoch, one line per setup (the plan's own numbers)."""
+    import matplotlib.pyplot as plt
+
+    fig, ax = plt.subplots(figsize=(9, 4.6))
+    fig.subplots_adjust(left=0.09, right=0.98, bottom=0.12, top=0.92)
+    target = plan.settings["snr_target"]
+    series = {}
+    for p in plan.nights:
+        for o in p.outcomes:
+            if o.snr is not None:
+                series.setdefault(o.setup, []).append((p.phase_d, max(o.snr, 1e-2), o is p.choice))
+    colours = plt.cm.tab20(np.linspace(0, 1, max(len(series), 2)))
+    for (sid, pts), colour in zip(sorted(series.items()), colours):
+        pts.sort()
+        x, y, chosen = (np.array(v) for v in zip(*pts))
+        ax.plot(x, y, "-", color=colour, lw=1.1, alpha=0.85, label=sid)
+        ax.plot(x[chosen.astype(bool)], y[chosen.astype(bool)], "o", color=colour, ms=5, mec="black", mew=0.6)
+    ax.axhline(target, color="0.2", ls="--", lw=1)
+    ax.set_yscale("log")
+    ax.set_xlabel("days since t0")
+    ax.set_ylabel("S/N per resolution element in the usable window")
+    ax.set_title("Reachable S/N per setup (circled: the setup chosen that night)", fontsize=10)
+    ax.grid(alpha=0.3, which="both")
+    if series:
+        ax.legend(fontsize=6.5, ncol=2, loc="upper right", frameon=False)
+    return fig
+
+
+# ---------------------------------------------------------------------------- document
+def assumptions(plan) -> list[str]:
+    """The assumptions behind the numbers, in words."""
+    st = plan.settings
+    model = plan.model or {}
+    raw = model.get("parameters") or {}
+    params = ", ".join(f"{k} = {v}" for k, v in raw.items() if not isinstance(v, (list, dict)))
+    comps = [c for c in raw.get("component", []) if isinstance(c, dict)]
+    if comps:
+        params = "; ".join(f"{c.get('name', '?')}: {c.get('mass_msun')} Msun at {c.get('velocity_c')} c, "
+                           f"opacity {c.get('opacity_cm2_g')} cm^2/g, floor {c.get('temperature_floor_K')} K"
+                           for c in comps) + (f"; {params}" if params else "")
+    return [
+        f"Photosphere model '{model.get('name', '?')}'" + (f" ({params})" if params else "") + ".",
+        f"Nights are local nights from t0; darkness ends at {st['twilight']} twilight; each night is planned on "
+        "its longest window; the epoch is the middle of the observing block (centred on the best-airmass time, "
+        "kept inside the window); airmass and Moon geometry are taken at the best-airmass time.",
+        f"Usable time per night = min(window, {st['max_hours']:g} h) minus {st['overhead_s'] / 60:.0f} min of "
+        "acquisition and readout overhead.",
+        f"S/N is per resolution element at the absorption trough of the reference feature (the clear strong "
+        f"feature with the best S/N; all strong features are optically thick), on the model continuum (line "
+        f"depths not applied); target S/N {st['snr_target']:g}.",
+        "Exposures are split into single exposures of at most 30 min; seeing, water vapour and extinction "
+        "come from each site's [atmosphere] table (or the defaults).",
+        f"A feature is strong when its Sobolev optical depth is >= {st['strong_tau']:g} (LTE estimate) and "
+        "clear when the setup covers it outside detector gaps and telluric bands.",
+        "Score = number of clear strong features x S/N reachable in the usable time; only setups reaching the "
+        "target are eligible.",
+        "Telescope Sun-avoidance limits, weather, seeing variations and scheduling constraints are not modelled.",
+    ]
+
+
+def document(plan, files: dict) -> dict:
+    """The plan.json document with references collected from the modules used."""
+    from kncast.forecast.linelist import LineList
+    from kncast.planner.plan.core import plan_document
+    from kncast.planner.plan.report import collect_references, data_references, fullest_references
+
+    refs = fullest_references(collect_references() + data_references(plan.tellurics, LineList.load()))
+    return plan_document(plan, files=files, references=refs, assumptions=assumptions(plan))

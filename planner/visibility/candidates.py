@@ -1,0 +1,130 @@
+"""Several candidate positions: which to observe first, per site and night.
+
+An event file may list ``[[candidate]]`` positions (see README.md, section "Alerts").  For
+every site and night, :func:`rank_candidates` orders them by observable hours
+in that night (sum of the window lengths from
+:func:`kncast.planner.visibility.core.compute_visibility`, all its rules applied, compared
+to 0.1 h), then by the best airmass reached, then by file order.  Candidates with no window
+come last and keep the reason the visibility code gives.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import dataclass, field
+
+from astropy.time import Time
+
+
+@dataclass
+class RankedCandidate:
+    """One candidate's standing in one site/night."""
+
+    rank: int  # 1 = observe first
+    candidate: object  # kncast.planner.events.eventfile.Candidate
+    index: int  # position in event.targets()
+    hours: float
+    best_airmass: float | None
+    best_time: Time | None
+    moon_sep_deg: float | None  # at best_time
+    windows: list = field(default_factory=list)  # kncast.planner.visibility.core.Window
+    note: str = ""
+
+    @property
+    def observable(self) -> bool:
+        return self.hours > 0
+
+    def summary(self) -> dict:
+        from kncast.planner.output import iso_utc
+
+        return {"rank": self.rank, "id": self.candidate.id, "ra_deg": self.candidate.ra_deg,
+                "dec_deg": self.candidate.dec_deg, "hours": round(self.hours, 4),
+                "best_airmass": None if self.best_airmass is None else round(self.best_airmass, 4),
+                "best_utc": iso_utc(self.best_time),
+                "moon_sep_deg": None if self.moon_sep_deg is None else round(self.moon_sep_deg, 3),
+                "windows": len(self.windows), "note": self.note}
+
+
+@dataclass
+class CandidateNight:
+    """The candidates ranked for one site and one local night."""
+
+    site: object  # kncast.planner.sites.Site
+    night: dt.date
+    dusk: Time | None
+    dawn: Time | None
+    ranking: list[RankedCandidate]
+
+    @property
+    def first(self) -> RankedCandidate | None:
+        """The candidate to observe first, or None when none is observable."""
+        return self.ranking[0] if self.ranking and self.ranking[0].observable else None
+
+    def summary(self) -> dict:
+        from kncast.planner.output import iso_utc
+
+        return {"site": self.site.id, "night": self.night.isoformat(), "dusk_utc": iso_utc(self.dusk),
+                "dawn_utc": iso_utc(self.dawn), "candidates": [r.summary() for r in self.ranking]}
+
+
+def rank_candidates(event, sites, nights: int = 3, **visibility_options) -> list[CandidateNight]:
+    """Per site and night (site by site, night by night), ``event.targets()`` ranked for observing.
+
+    ``visibility_options`` go to :func:`kncast.planner.visibility.core.compute_visibility`
+    (``twilight``, ``min_altitude_deg``, ``max_airmass``, ``min_moon_sep_deg``).
+    """
+    from kncast.planner.visibility.core import compute_visibility
+
+    visibility_options.pop("target_index", None)
+    ephemeris = visibility_options.pop("ephemeris", None)  # e.g. the plan's own, built for every target
+    targets = event.targets()
+    first = compute_visibility(event, sites, nights=nights, target_index=0, ephemeris=ephemeris, **visibility_options)
+    per_target = [first.nights] + [  # one vectorized run per candidate, one ephemeris build (all targets)
+        compute_visibility(event, sites, nights=nights, target_index=i, ephemeris=first.ephemeris,
+                           **visibility_options).nights
+        for i in range(1, len(targets))]
+    out = []
+    for k, base in enumerate(per_target[0]):  # the same site/night order for every target
+        entries = [_entry(targets[i], i, per_target[i][k]) for i in range(len(targets))]
+        entries.sort(key=_order)
+        for r, e in enumerate(entries, start=1):
+            e.rank = r
+        out.append(CandidateNight(site=base.site, night=base.night, dusk=base.dusk, dawn=base.dawn, ranking=entries))
+    return out
+
+
+def _entry(candidate, index: int, record) -> RankedCandidate:
+    wins = list(record.windows)
+    if not wins:
+        return RankedCandidate(0, candidate, index, 0.0, None, None, None, [], record.note)
+    best = min(wins, key=lambda w: w.best_airmass)
+    return RankedCandidate(0, candidate, index, float(sum(w.hours for w in wins)), float(best.best_airmass),
+                           best.best_time, float(best.moon_sep_deg), wins, record.note)
+
+
+def _order(e: RankedCandidate):
+    airmass = e.best_airmass if e.best_airmass is not None and math.isfinite(e.best_airmass) else math.inf
+    return (-round(e.hours, 1), airmass, e.index)  # hours within 0.05 h tie: airmass decides
+
+
+def print_ranking(nights: list[CandidateNight]) -> None:
+    """One rich table: per site and night, the candidates in observing order."""
+    from rich.table import Table
+
+    from kncast.planner.commands._common import console
+
+    table = Table(title="Candidates ranked per site and night (most observable hours first, then best airmass)",
+                  title_justify="left")
+    for col, just in [("site", "left"), ("night", "left"), ("rank", "right"), ("candidate", "left"),
+                      ("hours", "right"), ("best X", "right"), ("best UTC", "left"), ("Moon sep", "right"),
+                      ("note", "left")]:
+        table.add_column(col, justify=just)
+    for night in nights:
+        for k, r in enumerate(night.ranking):
+            table.add_row(night.site.id if k == 0 else "", night.night.isoformat() if k == 0 else "", str(r.rank),
+                          r.candidate.id, f"{r.hours:.2f}",
+                          "-" if r.best_airmass is None else f"{r.best_airmass:.2f}",
+                          "-" if r.best_time is None else r.best_time.utc.strftime("%m-%d %H:%M"),
+                          "-" if r.moon_sep_deg is None else f"{r.moon_sep_deg:.0f} deg",
+                          f"[dim]{r.note}[/dim]" if not r.observable else "")
+    console().print(table)

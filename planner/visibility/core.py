@@ -1,0 +1,234 @@
+"""Visibility of an event from many sites over many nights, in one vectorized pass.
+
+:func:`compute_visibility` builds the Ephemeris once (Sun, Moon and targets
+are site-independent at the geocentric level), samples every rule of
+:mod:`kncast.planner.visibility.windows` on a 5-minute grid for all sites at once, refines
+dusk, dawn and window edges with the shared root finder (to ~1 s) and
+summarises each window (best airmass and when, Moon at that moment).
+"""
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+
+import numpy as np
+from astropy.time import Time
+
+from kncast.forecast.airmass import airmass_from_altitude
+from kncast.planner.visibility import sky
+from kncast.planner.errors import OptionError
+from kncast.planner.visibility.nights import dusk_dawn, night_bounds_mjd, twilight_altitude_deg
+from kncast.planner.visibility.rootfind import positive_intervals
+from kncast.planner.visibility.windows import Rules, Sky, combined_margin, margins, night_notes, split_at_bounds, window_margin_fn
+
+GRID_STEP_MIN = 5.0  # sampling step before root finding; windows shorter than this may be missed
+BEST_SAMPLES = 97  # samples per window to locate the best airmass (refined by a parabola)
+EDGE_TOL_S = 1.0
+
+
+@dataclass
+class Window:
+    """One observing window.  Moon values are taken at ``best_time``."""
+
+    start: Time
+    end: Time
+    hours: float
+    best_airmass: float
+    best_time: Time
+    best_altitude_deg: float
+    moon_illumination: float
+    moon_phase_angle_deg: float
+    moon_sep_deg: float
+    moon_altitude_deg: float
+    phase_start_d: float
+    phase_end_d: float
+
+    def summary(self) -> dict:
+        """JSON dict (times ISO 8601 UTC with Z)."""
+        from kncast.planner.output import iso_utc
+
+        return {"start_utc": iso_utc(self.start), "end_utc": iso_utc(self.end), "hours": round(self.hours, 4),
+                "best_airmass": round(self.best_airmass, 4), "best_utc": iso_utc(self.best_time),
+                "best_altitude_deg": round(self.best_altitude_deg, 3),
+                "moon_illumination": round(self.moon_illumination, 4),
+                "moon_phase_angle_deg": round(self.moon_phase_angle_deg, 2),
+                "moon_sep_deg": round(self.moon_sep_deg, 3), "moon_altitude_deg": round(self.moon_altitude_deg, 3),
+                "phase_start_d": round(self.phase_start_d, 5), "phase_end_d": round(self.phase_end_d, 5)}
+
+
+@dataclass
+class NightRecord:
+    """One local night at one site: dusk/dawn (None when the Sun does not cross), windows, note."""
+
+    site: object  # kncast.planner.sites.Site
+    night: dt.date
+    dusk: Time | None
+    dawn: Time | None
+    note: str
+    windows: list[Window] = field(default_factory=list)
+    dark_hours: float = 0.0
+
+    def summary(self) -> dict:
+        from kncast.planner.output import iso_utc
+
+        return {"site": self.site.id, "night": self.night.isoformat(), "dusk_utc": iso_utc(self.dusk),
+                "dawn_utc": iso_utc(self.dawn), "note": self.note, "dark_hours": round(self.dark_hours, 4),
+                "windows": [w.summary() for w in self.windows]}
+
+
+@dataclass
+class VisibilityResult:
+    """Everything :func:`compute_visibility` found, plus what plots need to resample the sky."""
+
+    event: object
+    sites: list
+    nights: list[NightRecord]
+    twilight: str
+    rules: Rules
+    ephemeris: sky.Ephemeris
+    night_bounds_mjd: np.ndarray  # (n_sites, n_nights + 1), local noons
+    target_index: int = 0
+
+    @property
+    def t0_mjd(self) -> float:
+        return self.rules.t0_mjd
+
+    def for_site(self, site_id: str) -> list[NightRecord]:
+        return [n for n in self.nights if n.site.id == site_id]
+
+    def windows(self) -> list[tuple[NightRecord, Window]]:
+        return [(n, w) for n in self.nights for w in n.windows]
+
+    def settings(self) -> dict:
+        r = self.rules
+        return {"twilight": self.twilight, "twilight_sun_altitude_deg": r.twilight_deg,
+                "min_altitude_deg": {s.id: float(a) for s, a in zip(self.sites, r.min_altitude_deg)},
+                "max_airmass": r.max_airmass, "min_moon_sep_deg": r.min_moon_sep_deg,
+                "nights": self.night_bounds_mjd.shape[1] - 1,
+                "target": self.event.targets()[self.target_index].id}
+
+
+def _deg(value, name: str, low: float, high: float, option: str):
+    """Plain float degrees from a float or an angle Quantity, range-checked."""
+    if value is None:
+        return None
+    if hasattr(value, "to_value"):
+        import astropy.units as u
+
+        value = value.to_value(u.deg) if name != "max_airmass" else float(value)
+    value = float(value)
+    if not np.isfinite(value) or not low <= value <= high:
+        raise OptionError(option, value, f"[{low:g}, {high:g}]")
+    return value
+
+
+def compute_visibility(event, sites, nights: int = 3, twilight: str = "nautical", min_altitude_deg=None,
+                       max_airmass=None, min_moon_sep_deg=None, target_index: int = 0,
+                       ephemeris: sky.Ephemeris | None = None) -> VisibilityResult:
+    """Dusk, dawn and observing windows of ``event`` at each site for ``nights`` local nights from t0.
+
+    ``min_altitude_deg`` replaces every site's own pointing limit; ``max_airmass``
+    (Kasten & Young 1989) and ``min_moon_sep_deg`` add rules.  ``target_index``
+    picks one of ``event.targets()``.  The Ephemeris (built for all targets) is
+    reused from ``ephemeris`` (e.g. ``result.ephemeris`` of an earlier call for
+    another target) when it covers the span, so a run builds it only once.
+    """
+    sites = list(sites)
+    if not sites:
+        raise OptionError("--sites", "", "at least one site")
+    if int(nights) < 1:
+        raise OptionError("--nights", nights, "a whole number >= 1")
+    nights = int(nights)
+    targets = event.targets()
+    if not 0 <= target_index < len(targets):
+        raise OptionError("--target", target_index, f"0 to {len(targets) - 1}")
+    twilight_deg = twilight_altitude_deg(twilight)
+    override = _deg(min_altitude_deg, "min_altitude_deg", 0.0, 89.0, "--min-altitude")
+    rules = Rules(
+        twilight_deg=twilight_deg,
+        min_altitude_deg=np.array([override if override is not None else s.min_altitude_deg for s in sites], float),
+        horizons=tuple(s.horizon for s in sites),
+        max_airmass=_deg(max_airmass, "max_airmass", 1.0, 38.0, "--max-airmass"),
+        min_moon_sep_deg=_deg(min_moon_sep_deg, "min_moon_sep_deg", 0.0, 180.0, "--min-moon-sep"),
+        t0_mjd=float(event.t0.utc.mjd))
+
+    dates, bounds = night_bounds_mjd(sites, rules.t0_mjd, nights)
+    span = (bounds.min() - 0.05, bounds.max() + 0.05)
+    eph = ephemeris
+    if eph is None or eph.mjd[0] > span[0] or eph.mjd[-1] < span[1] or eph.target_xyz.shape[0] != len(targets):
+        eph = sky.Ephemeris.build(*span, [t.ra_deg for t in targets], [t.dec_deg for t in targets])
+    skyq = Sky(eph, sites, target_index)
+    n_grid = int(np.ceil((bounds.max() - bounds.min()) * 1440.0 / GRID_STEP_MIN)) + 1
+    grid = bounds.min() + np.arange(n_grid) * GRID_STEP_MIN / 1440.0
+    rows = np.arange(len(sites))[:, None]
+    m = margins(skyq, rules, grid, rows)
+
+    # dusk and dawn: where the twilight margin changes sign
+    sun_fn = lambda t, r: rules.twilight_deg - skyq.sun_altitude_deg(t, r)  # noqa: E731
+    dusk, dawn, dark_h = dusk_dawn(*positive_intervals(sun_fn, grid, m["sun"], EDGE_TOL_S), bounds)
+
+    # windows: where the combined margin is positive, cut at the night bounds
+    w_rows, w_start, w_end, *_ = positive_intervals(window_margin_fn(skyq, rules), grid, combined_margin(m), EDGE_TOL_S)
+    w_rows, w_night, w_start, w_end = split_at_bounds(w_rows, w_start, w_end, bounds)
+    details = _window_details(skyq, eph, w_rows, w_start, w_end)
+
+    night_of = (grid[None, None, :] >= bounds[:, :, None]).sum(axis=1) - 1
+    night_of[night_of >= nights] = -1
+    notes = night_notes(m, night_of, rules, twilight, nights)
+
+    records = _records(sites, dates, dusk, dawn, dark_h, notes, rules,
+                       w_rows, w_night, w_start, w_end, details)
+    return VisibilityResult(event=event, sites=sites, nights=records, twilight=twilight, rules=rules,
+                            ephemeris=eph, night_bounds_mjd=bounds, target_index=target_index)
+
+
+def _window_details(skyq: Sky, eph, rows, start, end) -> dict[str, np.ndarray]:
+    """Best altitude/airmass and its time per window, and the Moon at that time (arrays per window)."""
+    if rows.size == 0:
+        return {}
+    frac = np.linspace(0.0, 1.0, BEST_SAMPLES)
+    t = start[:, None] + (end - start)[:, None] * frac  # (n_windows, BEST_SAMPLES)
+    alt = skyq.target_altaz_deg(t, rows[:, None])[0]
+    k = np.argmax(alt, axis=1)
+    kk = np.clip(k, 1, BEST_SAMPLES - 2)
+    i = np.arange(rows.size)
+    a0, a1, a2 = alt[i, kk - 1], alt[i, kk], alt[i, kk + 1]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        shift = np.where((a0 - 2 * a1 + a2) < 0, 0.5 * (a0 - a2) / (a0 - 2 * a1 + a2), 0.0)
+    inner = (k > 0) & (k < BEST_SAMPLES - 1)
+    step = (end - start) / (BEST_SAMPLES - 1)
+    best_t = np.where(inner, t[i, kk] + np.clip(shift, -1, 1) * step, t[i, k])
+    best_alt = skyq.target_altaz_deg(best_t, rows)[0]
+    sep, moon_alt = skyq.moon(best_t, rows)
+    illum, phase = sky.moon_illumination(eph, best_t)
+    return {"best_t": best_t, "best_alt": best_alt, "best_airmass": airmass_from_altitude(best_alt),
+            "sep": sep, "moon_alt": moon_alt, "illum": illum, "phase": phase}
+
+
+def _time(mjd) -> Time | None:
+    return None if not np.isfinite(mjd) else Time(mjd, format="mjd", scale="utc")
+
+
+def _records(sites, dates, dusk, dawn, dark_h, notes, rules, w_rows, w_night, w_start, w_end, d):
+    per_night: dict[tuple[int, int], list[Window]] = {}
+    for k in range(w_rows.size):  # one Window object per window found
+        t0 = rules.t0_mjd
+        per_night.setdefault((int(w_rows[k]), int(w_night[k])), []).append(Window(
+            start=_time(w_start[k]), end=_time(w_end[k]), hours=float((w_end[k] - w_start[k]) * 24.0),
+            best_airmass=float(d["best_airmass"][k]), best_time=_time(d["best_t"][k]),
+            best_altitude_deg=float(d["best_alt"][k]), moon_illumination=float(d["illum"][k]),
+            moon_phase_angle_deg=float(d["phase"][k]), moon_sep_deg=float(d["sep"][k]),
+            moon_altitude_deg=float(d["moon_alt"][k]),
+            phase_start_d=float(w_start[k] - t0), phase_end_d=float(w_end[k] - t0)))
+    out = []
+    for i, site in enumerate(sites):
+        for j, night in enumerate(dates[i]):
+            wins = per_night.get((i, j), [])
+            note = "" if wins else str(notes[i, j])
+            if wins and abs(wins[0].phase_start_d) * 86400.0 < 2 * EDGE_TOL_S:
+                note = "night began before t0: first window starts at t0"
+            if wins and not np.isfinite(dusk[i, j]) and dark_h[i, j] > 0:
+                note = (note + "; " if note else "") + f"Sun below {rules.twilight_deg:g} deg from local noon on"
+            out.append(NightRecord(site=site, night=night, dusk=_time(dusk[i, j]), dawn=_time(dawn[i, j]),
+                                   note=note, windows=wins, dark_hours=float(dark_h[i, j])))
+    return out

@@ -1,0 +1,277 @@
+"""How much of a probability sky map each site can observe, night by night.
+
+For every site and local night, the dark interval (dusk to dawn of the chosen
+twilight, from :func:`kncast.planner.visibility.core.compute_visibility`, and not before
+t0) is sampled every ``step_min`` minutes at the middle of equal sub-intervals.
+A pixel is *observable* at a sample when it stands above the site's floor
+(pointing limit or ``--min-altitude``, the altitude of ``max_airmass``, the
+horizon profile at the pixel's azimuth -- the rules of :mod:`kncast.planner.visibility.windows`)
+and, with a Moon rule, lies farther than ``min_moon_sep_deg`` from the
+topocentric Moon.  Per site and night:
+
+* ``observable_probability``: sum of the probability of the pixels observable
+  at one sample at least;
+* ``weighted_hours``: sum over pixels of probability x hours observable;
+* ``area90_observable_deg2``: area of the pixels of the 90 % credible region
+  that are observable.
+
+The kernel is one matrix product per chunk of pixels: sin(altitude) is the dot
+product of the pixel's unit vector with the local zenith, and cos(Moon
+separation) its dot product with the Moon's direction.  The pixels stay in
+ICRS; the zenith and Moon vectors of date are rotated back to ICRS by the
+precession-nutation matrix (IAU 2006/2000A, ``erfa.pnm06a``) evaluated once
+per night, which is the same as precessing every pixel to the true equator of
+that night.  Annual aberration (< 21 arcsec) and refraction are neglected, as
+in :mod:`kncast.planner.visibility.sky`.
+"""
+from __future__ import annotations
+
+import datetime as dt
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from astropy.time import Time
+
+from kncast.planner.visibility import sky
+from kncast.planner.errors import OptionError
+from kncast.planner.events.skymap import SR_TO_DEG2, SkyMap
+
+DEFAULT_STEP_MIN = 10.0
+CHUNK_ELEMENTS = 4_000_000  # pixels x samples per block: bounds memory to a few tens of MB
+CREDIBLE_LEVEL = 0.9
+
+
+@dataclass
+class CoverageNight:
+    """Coverage of the map from one site in one local night."""
+
+    site: object  # kncast.planner.sites.Site
+    night: dt.date
+    dusk: Time | None
+    dawn: Time | None
+    note: str
+    dark_hours: float  # sampled dark time after t0
+    samples: int
+    observable_probability: float = 0.0
+    weighted_hours: float = 0.0
+    area90_observable_deg2: float = 0.0
+
+    def summary(self) -> dict:
+        from kncast.planner.output import iso_utc
+
+        return {"site": self.site.id, "night": self.night.isoformat(), "dusk_utc": iso_utc(self.dusk),
+                "dawn_utc": iso_utc(self.dawn), "dark_hours": round(self.dark_hours, 4), "samples": self.samples,
+                "observable_probability": round(self.observable_probability, 6),
+                "weighted_hours": round(self.weighted_hours, 5),
+                "area90_observable_deg2": round(self.area90_observable_deg2, 4), "note": self.note}
+
+
+@dataclass
+class CoverageResult:
+    """Per site/night coverage and, per pixel, whether each site/night can observe it."""
+
+    skymap: SkyMap
+    sites: list
+    nights: list[CoverageNight]
+    observable: np.ndarray | None  # bool (n_pixels, len(nights)); None with pixel_flags=False
+    settings: dict
+
+    def best(self) -> CoverageNight | None:
+        return max(self.nights, key=lambda n: n.observable_probability, default=None)
+
+
+@dataclass(frozen=True)
+class _Columns:
+    """The sample times of every site/night, as flat columns."""
+
+    site: np.ndarray  # site row per sample
+    mjd: np.ndarray
+    record: np.ndarray  # index into the night records per sample
+    night: np.ndarray  # night index per sample
+    dt_h: np.ndarray  # hours per sample, per record
+
+
+def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight: str = "nautical",
+                     min_altitude_deg=None, max_airmass=None, min_moon_sep_deg=None,
+                     step_min: float = DEFAULT_STEP_MIN, pixel_flags: bool = True) -> CoverageResult:
+    """Observable probability, probability-weighted hours and observable 90 % area per site and night.
+
+    ``pixel_flags=False`` skips keeping the per-pixel observable flags (``observable`` is then None),
+    which only charts need.
+    """
+    from kncast.planner.events.model import Event
+    from kncast.planner.visibility.core import compute_visibility
+
+    if not 1.0 <= float(step_min) <= 60.0:
+        raise OptionError("--step", step_min, "1 to 60 minutes")
+    ra, dec = skymap.peak_radec_deg()
+    probe = Event(id="map-peak", ra_deg=ra, dec_deg=dec, t0=t0, source=skymap.path)
+    vis = compute_visibility(probe, sites, nights=nights, twilight=twilight, min_altitude_deg=min_altitude_deg,
+                             max_airmass=max_airmass, min_moon_sep_deg=min_moon_sep_deg)
+    sites = vis.sites
+    cols, records = sample_dark_time(vis, step_min)
+    obs = np.zeros((skymap.npix, len(records)), dtype=bool) if pixel_flags else None
+    if cols.mjd.size:
+        _accumulate(skymap, vis, cols, records, obs)
+    settings = vis.settings()
+    settings.pop("target", None)
+    settings.update(step_min=float(step_min), credible_level=CREDIBLE_LEVEL)
+    return CoverageResult(skymap=skymap, sites=sites, nights=records, observable=obs, settings=settings)
+
+
+def sample_dark_time(vis, step_min: float):
+    """Sample columns inside each night's dark interval after t0, and the empty night records."""
+    bounds, t0 = vis.night_bounds_mjd, vis.t0_mjd
+    index = {s.id: i for i, s in enumerate(vis.sites)}
+    seen_nights: dict[str, int] = {}
+    site, mjd, rec_of, night_of, dt_h, records = [], [], [], [], [], []
+    for rec in vis.nights:  # one block of samples per site and night
+        i = index[rec.site.id]
+        j = seen_nights[rec.site.id] = seen_nights.get(rec.site.id, -1) + 1  # records run night by night
+        lo = rec.dusk.utc.mjd if rec.dusk is not None else bounds[i, j]
+        hi = rec.dawn.utc.mjd if rec.dawn is not None else bounds[i, j + 1]
+        lo = max(lo, t0)
+        note, n = "", 0
+        if rec.dark_hours <= 0:
+            note = f"no {vis.twilight} darkness"
+        elif hi <= lo:
+            note = "dark time over before t0"
+        else:
+            n = max(1, int(math.ceil((hi - lo) * 1440.0 / step_min)))
+            k = len(records)
+            site.append(np.full(n, i))
+            mjd.append(lo + (np.arange(n) + 0.5) * (hi - lo) / n)
+            rec_of.append(np.full(n, k))
+            night_of.append(np.full(n, j))
+        records.append(_record(rec, note, (hi - lo) * 24.0 if n else 0.0, n))
+        dt_h.append(records[-1].dark_hours / n if n else 0.0)
+    cat = lambda parts, kind: np.concatenate(parts).astype(kind) if parts else np.zeros(0, kind)  # noqa: E731
+    cols = _Columns(cat(site, int), cat(mjd, float), cat(rec_of, int), cat(night_of, int), np.asarray(dt_h, float))
+    # polar cases (dark from local noon on): keep only samples with the Sun below the twilight limit
+    if cols.mjd.size:
+        arrays = sky.SiteArrays.of(vis.sites)
+        here = sky.SiteArrays(arrays.lat_deg[cols.site, 0], arrays.lon_deg[cols.site, 0], arrays.elevation_m[cols.site, 0])
+        dark = sky.sun_altitude_deg(vis.ephemeris, here, cols.mjd) <= vis.rules.twilight_deg
+        if not np.all(dark):
+            cols = _Columns(cols.site[dark], cols.mjd[dark], cols.record[dark], cols.night[dark], cols.dt_h)
+            counts = np.bincount(cols.record, minlength=len(records))
+            for k, r in enumerate(records):
+                r.samples, r.dark_hours = int(counts[k]), float(counts[k] * cols.dt_h[k])
+    return cols, records
+
+
+def _record(rec, note, dark_hours, samples) -> CoverageNight:
+    return CoverageNight(site=rec.site, night=rec.night, dusk=rec.dusk, dawn=rec.dawn, note=note,
+                         dark_hours=float(dark_hours), samples=int(samples))
+
+
+def frame_vectors(vis, cols: _Columns):
+    """ICRS unit vectors (3, n_samples) of the zenith, north, east and topocentric Moon at each sample."""
+    import erfa
+
+    eph = vis.ephemeris
+    arrays = sky.SiteArrays.of(vis.sites)
+    lat = np.radians(arrays.lat_deg[cols.site, 0])
+    here = sky.SiteArrays(arrays.lat_deg[cols.site, 0], arrays.lon_deg[cols.site, 0], arrays.elevation_m[cols.site, 0])
+    lst = np.radians(eph.gast(cols.mjd) + here.lon_deg)
+    zen = np.stack([np.cos(lat) * np.cos(lst), np.cos(lat) * np.sin(lst), np.sin(lat)])
+    north = np.stack([-np.sin(lat) * np.cos(lst), -np.sin(lat) * np.sin(lst), np.cos(lat)])
+    east = np.stack([-np.sin(lst), np.cos(lst), np.zeros_like(lst)])
+    moon = sky.moon_topocentric(eph, here, cols.mjd)[0]
+    # one precession-nutation matrix (GCRS -> true equator and equinox of date) per night index
+    n_nights = vis.night_bounds_mjd.shape[1] - 1
+    mid = np.array([cols.mjd[cols.night == j].mean() if np.any(cols.night == j) else cols.mjd[0]
+                    for j in range(n_nights)])
+    tt = Time(mid, format="mjd", scale="utc").tt
+    rot = erfa.pnm06a(tt.jd1, tt.jd2)[cols.night]  # (n_samples, 3, 3)
+    back = lambda v: np.einsum("cji,jc->ic", rot, v)  # noqa: E731  -- R^T v: of date -> ICRS
+    return back(zen), back(north), back(east), back(moon)
+
+
+def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | None) -> None:
+    """Fill the per-record totals and the per-pixel observable flags, chunk by chunk of pixels.
+
+    Arrays are laid out samples x pixels, so each site/night is a contiguous block of rows.
+    """
+    rules = vis.rules
+    zen, north, east, moon = (np.ascontiguousarray(v.T, dtype=np.float32) for v in frame_vectors(vis, cols))
+    floor = np.maximum(rules.min_altitude_deg[cols.site], rules.airmass_altitude_deg)
+    sin_floor = np.sin(np.radians(floor)).astype(np.float32)[:, None]
+    horizons = [(_row_range(cols.site, i), hz) for i, hz in enumerate(rules.horizons)
+                if hz is not None and np.any(cols.site == i)]
+    moon_rule = rules.min_moon_sep_deg
+    seg_start = np.flatnonzero(np.r_[True, cols.record[1:] != cols.record[:-1]])
+    seg_end = np.r_[seg_start[1:], cols.mjd.size]
+    seg_record = cols.record[seg_start]
+    moon_reach = _moon_reach(moon, seg_start, seg_end, moon_rule) if moon_rule else None
+    dt_h = cols.dt_h[seg_record]
+    area90_deg2 = np.where(skymap.credible_mask(CREDIBLE_LEVEL), skymap.area_sr * SR_TO_DEG2, 0.0)
+    chunk = max(1024, CHUNK_ELEMENTS // cols.mjd.size)
+    prob_obs, hours, area = np.zeros(seg_start.size), np.zeros(seg_start.size), np.zeros(seg_start.size)
+    for lo in range(0, skymap.npix, chunk):  # blocks of pixels (memory bound), each vectorized over all samples
+        sl = slice(lo, min(lo + chunk, skymap.npix))
+        pix = skymap.xyz[:, sl].astype(np.float32)  # (3, m)
+        sin_alt = dot_rows(zen, pix)  # (n_samples, m)
+        ok = sin_alt >= sin_floor
+        for (a, b), hz in horizons:  # sites with a horizon profile: the floor depends on azimuth
+            _apply_horizon(ok[a:b], sin_alt[a:b], sin_floor[a:b], pix, north[a:b], east[a:b], hz)
+        if moon_rule:
+            _apply_moon(ok, pix, moon, moon_reach, seg_start, seg_end, moon_rule)
+        # samples observable per site/night, (n_segments, m): one contiguous block of rows each
+        count = np.stack([ok[a:b].view(np.uint8).sum(axis=0, dtype=np.uint16) for a, b in zip(seg_start, seg_end)])
+        seen = count > 0
+        if obs is not None:
+            obs[sl, seg_record] = seen.T
+        p = skymap.prob[sl]
+        prob_obs += np.where(seen, p, 0.0).sum(axis=1)
+        hours += (count * p).sum(axis=1) * dt_h
+        area += np.where(seen, area90_deg2[sl], 0.0).sum(axis=1)
+    for s, k in enumerate(seg_record):
+        records[k].observable_probability = float(min(prob_obs[s], 1.0))
+        records[k].weighted_hours = float(hours[s])
+        records[k].area90_observable_deg2 = float(area[s])
+
+
+def dot_rows(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """(n, 3) x (3, m) product by einsum: a 3-term sum is memory-bound, and multithreaded BLAS
+    slows it several-fold on a busy machine."""
+    return np.einsum("ij,jk->ik", a, b)
+
+
+def _row_range(site_of_sample: np.ndarray, i: int) -> tuple[int, int]:
+    """The contiguous block of samples of site ``i`` (samples run site by site)."""
+    rows = np.flatnonzero(site_of_sample == i)
+    assert rows[-1] - rows[0] + 1 == rows.size, "samples of a site must be contiguous"
+    return int(rows[0]), int(rows[-1]) + 1
+
+
+def _apply_horizon(ok, sin_alt, sin_floor, pix, north, east, hz) -> None:
+    """Refuse samples below the horizon profile at the pixel's azimuth (views on one site's rows)."""
+    top = np.float32(math.sin(math.radians(float(hz.altitude_deg.max()))))
+    band = ok & (sin_alt < top)  # above the site floor but not above the profile's highest point
+    if not band.any():
+        return
+    az = np.degrees(np.arctan2(dot_rows(east, pix)[band], dot_rows(north, pix)[band]))
+    ok[band] = sin_alt[band] >= np.sin(np.radians(hz.min_altitude_deg(az)))
+
+
+def _moon_reach(moon, seg_start, seg_end, min_sep_deg):
+    """Per site/night: mean Moon direction (n_segments, 3) and cos(min_sep + the Moon's spread about it)."""
+    mean = np.add.reduceat(moon.astype(float), seg_start, axis=0)
+    mean /= np.linalg.norm(mean, axis=1, keepdims=True)
+    spread = np.array([sky.separation_deg(moon[a:b].T.astype(float), mean[s][:, None]).max()
+                       for s, (a, b) in enumerate(zip(seg_start, seg_end))])
+    reach = np.minimum(min_sep_deg + spread + 0.01, 180.0)
+    return mean.astype(np.float32), np.cos(np.radians(reach)).astype(np.float32)[:, None]
+
+
+def _apply_moon(ok, pix, moon, reach, seg_start, seg_end, min_sep_deg) -> None:
+    """Refuse samples closer than ``min_sep_deg`` to the Moon (only pixels within reach are tested)."""
+    mean, cos_reach = reach
+    near = dot_rows(mean, pix) > cos_reach  # (n_segments, m): the Moon can come that close this night
+    cos_sep = np.float32(math.cos(math.radians(min_sep_deg)))
+    for s, (a, b) in enumerate(zip(seg_start, seg_end)):  # per site/night, vectorized over its samples x pixels
+        k = np.flatnonzero(near[s])
+        if k.size:
+            ok[a:b, k] &= dot_rows(moon[a:b], pix[:, k]) <= cos_sep

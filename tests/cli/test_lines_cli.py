@@ -1,0 +1,153 @@
+"""``kncast lines``: JSON schema, options, errors (exit 2, one line, no partial output)."""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+DEMO_EVENT = Path(__file__).resolve().parents[2] / "demo_events" / "kn-demo-south.toml"
+SETUP = "maunakea/t10m/nir-xd"
+TOP_KEYS = {"kncast", "kind", "event", "epochs"}
+EPOCH_KEYS = {"phase_d", "temperature_K", "v_phot_c", "v_max_c", "features"}
+FEATURE_KEYS = {"feature", "species", "rest_vac_A", "trough_obs_A", "absorption_obs_A", "emission_obs_A",
+                "tau_sobolev", "setups"}
+SETUP_KEYS = {"setup", "coverage", "gap_loss", "telluric_loss", "verdict"}
+VERDICTS = {"clear", "partly hidden", "hidden by atmosphere", "in detector gap", "outside coverage"}
+
+
+@pytest.fixture(scope="module")
+def doc(tmp_path_factory):
+    from kncast.planner.cli import main
+
+    out = tmp_path_factory.mktemp("lines") / "lines.json"
+    status = main(["lines", "--event", str(DEMO_EVENT), "--phases", "1.5,3", "--setup", SETUP,
+                   "--setup", "hanle/t2m/lowres-optical", "--json", str(out)])
+    assert status == 0
+    return json.loads(out.read_text())
+
+
+def test_json_keys(doc):
+    assert TOP_KEYS <= set(doc) and doc["kind"] == "lines"
+    assert [e["phase_d"] for e in doc["epochs"]] == [1.5, 3.0]
+    for ep in doc["epochs"]:
+        assert EPOCH_KEYS <= set(ep)
+        assert len(ep["features"]) >= 10
+        for f in ep["features"]:
+            assert FEATURE_KEYS <= set(f)
+            assert len(f["absorption_obs_A"]) == 2 and len(f["emission_obs_A"]) == 2
+            assert [s["setup"] for s in f["setups"]] == [SETUP, "hanle/t2m/lowres-optical"]
+            for s in f["setups"]:
+                assert set(s) == SETUP_KEYS and s["verdict"] in VERDICTS
+                assert 0 <= s["telluric_loss"] <= s["coverage"] <= 1 and 0 <= s["gap_loss"] <= 1
+
+
+def test_multiplets_list_rest_wavelengths(doc):
+    feats = {f["feature"]: f for f in doc["epochs"][0]["features"]}
+    assert isinstance(feats["ca2-nir"]["rest_vac_A"], list) and len(feats["ca2-nir"]["rest_vac_A"]) == 3
+    assert isinstance(feats["y2-4375"]["rest_vac_A"], float)
+
+
+def test_features_ranked_by_tau(doc):
+    for ep in doc["epochs"]:
+        taus = [f["tau_sobolev"] for f in ep["features"]]
+        known = [t for t in taus if t is not None]
+        assert known == sorted(known, reverse=True)
+        assert taus[:len(known)] == known  # unknown strengths come last
+        fr = ep["ionization_fractions"]["Sr"]
+        assert sum(fr.values()) == pytest.approx(1.0, abs=1e-5)
+
+
+def test_terminal_tables(run_cli):
+    status, out, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP)
+    assert status == 0, err
+    assert "sr2-nir" in out and SETUP in out and "day 2" in out
+
+
+def test_all_setups_by_default_and_plot(run_cli, tmp_path):
+    png = tmp_path / "lines.png"
+    status, out, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--plot", png)
+    assert status == 0, err
+    assert png.stat().st_size > 10_000
+    assert "alike" in out or "verdict per setup" in out
+
+
+def test_velocity_overrides(run_cli, tmp_path):
+    out = tmp_path / "v.json"
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2,4", "--setup", SETUP,
+                             "--vphot", "0.1", "--vmax", "0.3", "--json", out)
+    assert status == 0, err
+    eps = json.loads(out.read_text())["epochs"]
+    assert all(e["v_phot_c"] == 0.1 and e["v_max_c"] == 0.3 for e in eps)
+
+
+@pytest.mark.parametrize("args,needle", [
+    (["--phases", "0"], "--phases"),
+    (["--phases", "-1"], "--phases"),
+    (["--phases", "2,abc"], "--phases"),
+    (["--vphot", "0.3", "--vmax", "0.2"], "--vphot"),
+    (["--vphot", "0.25", "--vmax", "0.25"], "--vphot"),
+    (["--vphot", "0"], "--vphot"),
+    (["--vmax", "0.8"], "--vmax"),
+    (["--vmax", "1.5"], "--vmax"),
+    (["--vphot", "0.7"], "--vphot"),          # above the model's v_max with no --vmax
+    (["--airmass", "0.5"], "--airmass"),
+    (["--pwv", "-1"], "--pwv"),
+    (["--plot", "x.gif"], "--plot"),
+])
+def test_bad_options_exit_2(run_cli, tmp_path, args, needle):
+    out = tmp_path / "bad.json"
+    status, stdout, err = run_cli("lines", "--event", DEMO_EVENT, "--setup", SETUP, *args, "--json", out)
+    assert status == 2
+    assert needle in err and len(err.strip().splitlines()) == 1 and "Traceback" not in err
+    assert not out.exists()
+
+
+def test_unknown_setup_suggests(run_cli, tmp_path):
+    out = tmp_path / "bad.json"
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", "maunakea/t10m/nir-xdd",
+                             "--json", out)
+    assert status == 2 and "did you mean maunakea/t10m/nir-xd" in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
+
+
+def test_malformed_line_file(run_cli, tmp_path):
+    bad = tmp_path / "mylines.ecsv"
+    bad.write_text("this is not an ECSV table\n1 2 3\n")
+    out = tmp_path / "bad.json"
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP,
+                             "--lines", bad, "--json", out)
+    assert status == 2 and "mylines.ecsv" in err and len(err.strip().splitlines()) == 1
+    assert not out.exists()
+
+
+def test_user_line_file_added(run_cli, tmp_path):
+    from kncast.forecast.linelist import DEFAULT_PATH
+
+    text = DEFAULT_PATH.read_text()
+    header = "".join(line + "\n" for line in text.splitlines() if line.startswith("#"))
+    cols = next(line for line in text.splitlines() if not line.startswith("#"))
+    row = next(line for line in text.splitlines() if line.startswith("ba2-res "))
+    mine = tmp_path / "mine.ecsv"
+    mine.write_text(header + cols + "\n" + row.replace("ba2-res", "my-ba2", 1) + "\n")
+    out = tmp_path / "mine.json"
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP,
+                             "--lines", mine, "--json", out)
+    assert status == 0, err
+    ids = [f["feature"] for f in json.loads(out.read_text())["epochs"][0]["features"]]
+    assert "my-ba2" in ids and "ba2-res" in ids
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP,
+                             "--lines", mine, "--only-lines", "--json", out)
+    assert status == 0, err
+    assert [f["feature"] for f in json.loads(out.read_text())["epochs"][0]["features"]] == ["my-ba2"]
+    # the same feature id twice is refused
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP,
+                             "--lines", mine, "--lines", mine)
+    assert status == 2 and "already used" in err
+
+
+def test_bad_abundance_file(run_cli, tmp_path):
+    ab = tmp_path / "ab.toml"
+    ab.write_text("[abundances]\n[abundances.mass_fraction]\nSr = 1.0\n")
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP, "--abundances", ab)
+    assert status == 2 and "no abundance for" in err and len(err.strip().splitlines()) == 1

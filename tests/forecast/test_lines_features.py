@@ -1,0 +1,102 @@
+"""kncast.forecast.features: shapes, ranking, blends, velocity overrides and airmass broadcasting."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from kncast.forecast.errors import ForecastInputError
+from kncast.forecast.features import Epochs, epochs_from, forecast_features
+from kncast.forecast.linelist import LineList
+
+
+def _epochs(n=3, vp=0.2, vm=0.35):
+    return Epochs(np.linspace(1.5, 6.0, n), np.linspace(1.5, 6.0, n), np.linspace(5500.0, 3000.0, n),
+                  np.full(n, vp), np.full(n, vm), 0.02, 0.04)
+
+
+@pytest.fixture(scope="module")
+def setups():
+    from kncast.planner.setups import all_setups
+    from kncast.planner.sites import SiteRegistry
+
+    refs = all_setups(SiteRegistry.load([]))[:5]
+    return [r.setup for r in refs], [r.id for r in refs]
+
+
+@pytest.fixture(scope="module")
+def tellurics():
+    from kncast.forecast.tellurics import TelluricModel
+
+    return TelluricModel.load()
+
+
+def test_shapes_and_ranking(setups, tellurics):
+    s, ids = setups
+    fc = forecast_features(_epochs(), None, None, s, tellurics, setup_ids=ids)
+    n, nf = 3, len(fc.features)
+    assert fc.tau.shape == (n, nf) and fc.coverage.shape == (n, nf, len(s)) and fc.verdict.shape == (n, nf, len(s))
+    for i in range(n):
+        t = fc.tau[i, fc.rank[i]]
+        known = t[np.isfinite(t)]
+        assert np.all(np.diff(known) <= 0) and np.all(np.isfinite(t[:known.size]))
+    assert np.all(fc.telluric_loss <= fc.coverage + 1e-12)
+
+
+def test_blend_trough_at_strongest_member():
+    ll = LineList.load()
+    fc = forecast_features(_epochs(1), None, ll, [])
+    f = [k for k, feat in enumerate(fc.features) if feat.id == "ca2-nir"][0]
+    members = list(fc.features[f].members)
+    strongest = members[int(np.argmax(fc.tau_lines[0, members]))]
+    assert fc.trough_member[0, f] == strongest
+    assert fc.tau[0, f] == pytest.approx(fc.tau_lines[0, strongest])
+    # the blend spans its members: absorption up to the reddest rest wavelength (x (1 + z))
+    assert fc.windows.absorption_hi_A[0, f] == pytest.approx(ll.wavelength_A[members].max() * 1.02)
+
+
+def test_per_epoch_airmass_broadcasts(setups, tellurics):
+    s, ids = setups
+    ep = _epochs()
+    one = forecast_features(ep, None, None, s, tellurics, airmass=2.0, setup_ids=ids)
+    per_epoch = forecast_features(ep, None, None, s, tellurics, airmass=np.full((3, 1, 1), 2.0), setup_ids=ids)
+    assert np.allclose(one.telluric_loss, per_epoch.telluric_loss)
+    low = forecast_features(ep, None, None, s, tellurics, airmass=1.0, pwv_mm=1.0, setup_ids=ids)
+    assert np.all(low.telluric_loss <= one.telluric_loss + 1e-12)
+
+
+def test_velocity_overrides():
+    ep = epochs_from(_epochs(), vphot_c=0.1)
+    assert np.all(ep.v_phot_c == 0.1) and np.all(ep.v_max_c == 0.35)
+    with pytest.raises(ForecastInputError, match="below the outer velocity"):
+        epochs_from(_epochs(), vphot_c=0.4)
+    with pytest.raises(ForecastInputError, match="vmax_c"):
+        epochs_from(_epochs(), vmax_c=0.9)
+
+
+def test_faster_ejecta_shift_troughs_bluer():
+    slow = forecast_features(_epochs(1, 0.1, 0.2), None, None, [])
+    fast = forecast_features(_epochs(1, 0.25, 0.4), None, None, [])
+    assert np.all(fast.windows.trough_A < slow.windows.trough_A)
+    assert np.all(fast.windows.absorption_lo_A < slow.windows.absorption_lo_A)
+
+
+def test_epoch_rows_json_ready(setups, tellurics):
+    import json
+
+    s, ids = setups
+    rows = forecast_features(_epochs(2), None, None, s, tellurics, setup_ids=ids).epoch_rows()
+    text = json.dumps(rows, allow_nan=False)
+    assert '"tau_sobolev": null' in text  # Cs I and [Te III] have no strength estimate
+
+
+def test_model_photosphere_at_the_outer_edge_is_allowed():
+    # early times: a model photosphere may sit at v_max; what-if overrides must leave a shell
+    fc = forecast_features(_epochs(2, 0.35, 0.35), None, None, [])
+    assert np.all(np.isfinite(fc.lte.density_g_cm3))
+    with pytest.raises(ForecastInputError, match="below the outer velocity"):
+        epochs_from(_epochs(), vphot_c=0.3, vmax_c=0.3)
+
+
+def test_rounding_overshoot_of_the_model_photosphere_is_clipped():
+    ep = epochs_from(_epochs(2, 0.35 * (1 + 1e-12), 0.35))
+    assert np.all(ep.v_phot_c <= ep.v_max_c)

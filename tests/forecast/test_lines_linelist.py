@@ -1,0 +1,99 @@
+"""Line-list loading: bundled list, blends, and one-line errors naming file, column and row."""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from kncast.forecast.errors import DataFileError
+from kncast.forecast.linelist import DEFAULT_PATH, LineList
+
+
+@pytest.fixture(scope="module")
+def text():
+    return DEFAULT_PATH.read_text()
+
+
+def _write(tmp_path, content, name="lines.ecsv"):
+    p = tmp_path / name
+    p.write_text(content)
+    return p
+
+
+def test_bundled_list_has_the_required_species():
+    ll = LineList.load()
+    assert len(ll) >= 25
+    species = set(ll.species)
+    for s in ("Sr II", "Ca II", "Ba II", "Y II", "Zr II", "He I", "Cs I", "[Te III]"):
+        assert s in species
+    assert np.all(np.diff(ll.wavelength_A[ll.feature == "sr2-nir"]) > 0)
+
+
+def test_multiplets_merge_into_features():
+    feats = {f.id: f for f in LineList.load().features()}
+    assert len(feats["ca2-nir"].members) == 3 and len(feats["ca2-hk"].members) == 2
+    assert len(feats["he1-10830"].members) == 3
+    assert feats["cs1-d"].uncertain and not feats["sr2-uv"].uncertain
+
+
+def test_regenerate_script_reproduces_the_vacuum_column(tmp_path, text):
+    import runpy
+
+    copy = _write(tmp_path, text)
+    mod = runpy.run_path(str(DEFAULT_PATH.parent / "make_lines.py"), run_name="kncast_test")
+    table = mod["regenerate"](copy)
+    assert np.allclose(np.asarray(table["wavelength_A"]), LineList.load().wavelength_A, atol=1e-9)
+
+
+def _replace_row(text, start, old, new):
+    lines = text.splitlines()
+    i = next(k for k, line in enumerate(lines) if line.startswith(start))
+    assert old in lines[i]
+    lines[i] = lines[i].replace(old, new, 1)
+    return "\n".join(lines) + "\n", i
+
+
+@pytest.mark.parametrize("start,old,new,match", [
+    ("sr2-uv \"Sr II\" Sr 2 4078.86", " 2 4078.86", " 7 4078.86", r"ion_stage row 1: value 7 out of range"),
+    ("ca2-hk \"Ca II\" Ca 2 3934.774", "\"Ca II\" Ca", "\"Ca III\" Ca", r"species row 6: 'Ca III' does not match"),
+    ("ba2-res \"Ba II\" Ba 2 4555.306", "4555.306", "4556.306", r"wavelength_A row 11: .*rerun forecast/data/make_lines.py"),
+    ("y2-4375 ", " air ", " sky ", r"published_medium row 16: value 'sky' not recognised"),
+    ("zr2-4443 ", " 1.486 ", " -3.0 ", r"E_low_eV row 24: value -3 out of range"),
+    ("sr2-nir \"Sr II\" Sr 2 10039.406", "sr2-nir", "\"sr2 nir\"", r"feature row 3: id .sr2 nir. has spaces"),
+])
+def test_bad_rows_name_file_column_row(tmp_path, text, start, old, new, match):
+    content, _ = _replace_row(text, start, old, new)
+    with pytest.raises(DataFileError, match=r"lines\.ecsv: " + match) as err:
+        LineList.load(_write(tmp_path, content))
+    assert "\n" not in str(err.value)
+
+
+def test_missing_column(tmp_path, text):
+    content = text.replace("{name: log_gf,", "{name: logGF,").replace(" log_gf ", " logGF ")
+    with pytest.raises(DataFileError, match=r"log_gf: required column missing"):
+        LineList.load(_write(tmp_path, content))
+
+
+@pytest.mark.parametrize("content", ["", "not a table\n", "# %ECSV 1.0\n# ---\n# garbage: [\n"])
+def test_not_ecsv(tmp_path, content):
+    with pytest.raises(DataFileError, match=r"mine\.ecsv: malformed ECSV") as err:
+        LineList.load(_write(tmp_path, content, "mine.ecsv"))
+    assert "\n" not in str(err.value)
+
+
+def test_missing_file_and_folder(tmp_path):
+    with pytest.raises(DataFileError, match="file not found"):
+        LineList.load(tmp_path / "nope.ecsv")
+    with pytest.raises(DataFileError, match="is a folder"):
+        LineList.load(tmp_path)
+
+
+def test_a_value_needs_g_up(tmp_path, text):
+    content, _ = _replace_row(text, "he1-10830 \"He I\" He 1 10832.057", " 3 1 ", " 3 0 ")
+    with pytest.raises(DataFileError, match=r"g_up row 25"):
+        LineList.load(_write(tmp_path, content))
+
+
+def test_blend_members_too_far_apart(tmp_path, text):
+    content, _ = _replace_row(text, "te3-21050", "te3-21050", "sr2-uv")
+    with pytest.raises(DataFileError, match=r"blend 'sr2-uv' spans members too far apart"):
+        LineList.load(_write(tmp_path, content))
