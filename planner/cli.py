@@ -45,8 +45,34 @@ def build_parser() -> argparse.ArgumentParser:
         p = sub.add_parser(name, help=module.HELP, description=module.HELP)
         p.add_argument("--debug", action="store_true", help="show the full traceback of internal errors")
         module.add_arguments(p)
-        p.set_defaults(run=module.run)
+        p.set_defaults(run=module.run, option_of=_options_by_parameter(p, getattr(module, "PARAMETER_DESTS", {})))
     return parser
+
+
+def _options_by_parameter(parser: argparse.ArgumentParser, aliases: dict) -> dict:
+    """Parameter name of the Python API -> the option that sets it in this command.
+
+    A parameter is found by the option's ``dest``, or through ``aliases`` (parameter -> dest) where
+    the names differ (the command's ``PARAMETER_DESTS`` and the photosphere-model keys).
+    """
+    from kncast.planner.commands._common import PARAMETER_DESTS as common_dests
+    from kncast.planner.commands._model_options import PARAMETER_DESTS as model_dests
+
+    by_dest = {a.dest: max(a.option_strings, key=len) for a in parser._actions if a.option_strings}
+    out = dict(by_dest)
+    for parameter, dest in {**common_dests, **model_dests, **aliases}.items():
+        if dest in by_dest:
+            out[parameter] = by_dest[dest]
+    return out
+
+
+def user_message(err, option_of: dict) -> str:
+    """The one-line message for a user error; a ParameterError names the option that sets it."""
+    from kncast.planner.errors import ParameterError
+
+    if isinstance(err, ParameterError):
+        return err.renamed(option_of)
+    return str(err)
 
 
 def main(argv=None) -> int:
@@ -60,7 +86,7 @@ def main(argv=None) -> int:
     try:
         return int(args.run(args) or EXIT_OK)
     except USER_ERRORS as err:
-        print(f"kncast {args.command}: error: {err}", file=sys.stderr)
+        print(f"kncast {args.command}: error: {user_message(err, args.option_of)}", file=sys.stderr)
         return EXIT_USAGE
     except KeyboardInterrupt:
         print(f"kncast {args.command}: interrupted", file=sys.stderr)

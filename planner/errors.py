@@ -23,6 +23,34 @@ class OptionError(InputError):
         super().__init__(f"{option} {value!r}: allowed {allowed}")
 
 
+class ParameterError(InputError):
+    """A bad value for a named parameter of the Python API (``snr_target``, ``twilight``, a ``[model]`` key).
+
+    Lower layers name the parameter; the command layer, which knows which option sets it, shows the
+    option instead (:meth:`renamed`).  ``str(err)`` is a complete one-line message on its own.
+    """
+
+    def __init__(self, parameter: str, value=None, allowed: str | None = None, message: str | None = None,
+                 also: tuple = ()):
+        self.parameter, self.value, self.allowed, self.also = parameter, value, allowed, tuple(also)
+        self.message = message if message is not None else f"{parameter} {value!r}: allowed {allowed}"
+        super().__init__(self.message)
+
+    def renamed(self, option_of: dict) -> str:
+        """The message with each parameter named in it (``parameter`` and ``also``) replaced by the option
+        that sets it (``option_of``: parameter -> option); the option is added when the message does not
+        name the parameter."""
+        import re
+
+        msg = self.message
+        for name in (self.parameter, *self.also):
+            if name in option_of:
+                msg = re.sub(rf"(?<![\w-]){re.escape(name)}(?![\w-])", option_of[name], msg)
+        if self.parameter in option_of and option_of[self.parameter] not in msg:
+            msg += f" (option {option_of[self.parameter]})"
+        return msg
+
+
 class UnknownNameError(InputError):
     """An unknown site, setup or feature id; suggests the closest known ids."""
 
@@ -36,4 +64,4 @@ class UnknownNameError(InputError):
 
 USER_ERRORS = (InputError, ForecastInputError)
 
-__all__ = ["InputError", "FileFieldError", "OptionError", "UnknownNameError", "USER_ERRORS"]
+__all__ = ["InputError", "FileFieldError", "OptionError", "ParameterError", "UnknownNameError", "USER_ERRORS"]

@@ -16,7 +16,7 @@ import numpy as np
 
 from kncast.forecast.datafiles import field, read_toml, table
 from kncast.forecast.errors import DataFileError
-from kncast.planner.errors import InputError, UnknownNameError
+from kncast.planner.errors import InputError, ParameterError, UnknownNameError
 
 
 @dataclass(frozen=True)
@@ -164,7 +164,7 @@ class SiteRegistry:
 
 def _load_folder(folder: Path) -> dict[str, Site]:
     if not folder.is_dir():
-        raise InputError(f"--sites-dir {str(folder)!r}: not a folder")
+        raise ParameterError("extra_dirs", message=f"extra_dirs {str(folder)!r}: not a folder")
     found: dict[str, Site] = {}
     for path in sorted(folder.glob("*.toml")):
         site = load_site(path)

@@ -1,8 +1,8 @@
-"""From an event (and command-line model options) to a :class:`kncast.forecast.source.Transient`."""
+"""From an event (and model overrides) to a :class:`kncast.forecast.source.Transient`."""
 from __future__ import annotations
 
 from kncast.forecast.errors import ForecastInputError
-from kncast.planner.errors import InputError
+from kncast.planner.errors import InputError, ParameterError
 
 
 def model_config(event, model: str | None = None, overrides: dict | None = None) -> tuple[dict, str]:
@@ -27,7 +27,8 @@ def model_config(event, model: str | None = None, overrides: dict | None = None)
 
 
 def transient_for_event(event, model: str | None = None, overrides: dict | None = None):
-    """A Transient for ``event``: its [model] table merged with CLI overrides, its distance and dust."""
+    """A Transient for ``event``: its [model] table merged with ``overrides`` (``[model]`` keys), its
+    distance and dust.  A bad override raises a ParameterError naming its key."""
     from kncast.forecast.photosphere import build_model
     from kncast.forecast.source import Transient
 
@@ -37,21 +38,19 @@ def transient_for_event(event, model: str | None = None, overrides: dict | None 
         try:
             photosphere = build_model(config, where=where)
         except ForecastInputError as err:
-            raise InputError(_name_options(str(err), given)) from None
+            raise _named_error(str(err), given) from None
     else:
         photosphere = build_model(config, where=where)
     return Transient(photosphere, distance_mpc=event.distance_mpc, redshift=event.redshift,
                      ebv_mw=event.ebv_mw, ebv_host=getattr(event, "ebv_host", 0.0))
 
 
-def _name_options(message: str, given: set) -> str:
-    """Mention the command-line option beside a [model] key in an error message."""
-    from kncast.planner.commands._model_options import option_for_key
-
+def _named_error(message: str, given: set) -> InputError:
+    """A ParameterError naming the overridden [model] key the message is about (if one is)."""
     for key in sorted(given, key=len, reverse=True):
         if f" {key}" in message or f".{key}" in message:
-            return f"{message} (option {option_for_key(key)})"
-    return message
+            return ParameterError(key, message=message)
+    return InputError(message)
 
 
 __all__ = ["transient_for_event", "model_config"]

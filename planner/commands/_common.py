@@ -28,9 +28,14 @@ def add_event_options(p: argparse.ArgumentParser, distance: bool = True) -> None
                        help="Milky Way E(B-V), mag (default 0)")
 
 
+# parameter of the Python API -> dest of the option that sets it, where the names differ
+PARAMETER_DESTS = {"extra_dirs": "sites_dir", "target_index": "target", "min_altitude_deg": "min_altitude",
+                   "min_moon_sep_deg": "min_moon_sep", "snr_target": "snr", "step_min": "step"}
+
+
 def event_from_args(args):
     """The Event named by ``--event`` or built from ``--ra/--dec/--t0``."""
-    from kncast.planner.events.eventfile import event_from_options, load_event
+    from kncast.planner.events.eventfile import event_from_values, load_event
 
     coords = [args.ra, args.dec, args.t0]
     if args.event:
@@ -40,7 +45,7 @@ def event_from_args(args):
     if any(v is None for v in coords):
         missing = [n for n, v in zip(("--ra", "--dec", "--t0"), coords) if v is None]
         raise InputError(f"no event: give --event FILE, or all of --ra --dec --t0 (missing {' '.join(missing)})")
-    return event_from_options(args.ra, args.dec, args.t0, getattr(args, "distance_mpc", None),
+    return event_from_values(args.ra, args.dec, args.t0, getattr(args, "distance_mpc", None),
                               event_id=args.event_id, redshift=getattr(args, "redshift", None),
                               ebv_mw=getattr(args, "ebv_mw", 0.0) or 0.0)
 

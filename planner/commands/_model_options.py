@@ -72,12 +72,9 @@ def overrides_from_args(args) -> dict:
     return out
 
 
-def option_for_key(key: str) -> str:
-    """The command-line option that sets a ``[model]`` key (for messages)."""
-    for option, k, _text in POWERLAW_OPTIONS:
-        if k == key:
-            return option
-    return {"name": "--model", "component": "--component"}.get(key, key)
+# [model] key -> the option's dest, so that a ParameterError naming a key shows its option
+PARAMETER_DESTS = {key: f"model_{key}" for _option, key, _text in POWERLAW_OPTIONS} | {
+    "name": "model", "component": "model_component"}
 
 
-__all__ = ["add_model_options", "overrides_from_args", "parse_component", "option_for_key"]
+__all__ = ["add_model_options", "overrides_from_args", "parse_component", "PARAMETER_DESTS"]

@@ -6,19 +6,30 @@ from pathlib import Path
 
 from kncast.forecast.datafiles import field, read_toml, table
 from kncast.forecast.errors import DataFileError
-from kncast.planner.errors import InputError
+from kncast.planner.errors import InputError, ParameterError
 from kncast.planner.events.model import Candidate, Event, check_distance, parse_dec, parse_ra, parse_time_utc
 
 
-def event_from_options(ra, dec, t0, distance_mpc=None, *, event_id: str = "cli-event", redshift=None,
-                       ebv_mw: float = 0.0) -> Event:
-    """Build an Event from command-line values (already split into strings/numbers)."""
-    ra_deg, dec_deg = parse_ra(ra, "--ra"), parse_dec(dec, "--dec")
-    t = parse_time_utc(t0, "--t0")
-    check_distance(distance_mpc, redshift, "--distance-mpc" if distance_mpc is not None else "--redshift")
+def event_from_values(ra, dec, t0, distance_mpc=None, *, event_id: str = "cli-event", redshift=None,
+                      ebv_mw: float = 0.0) -> Event:
+    """Build an Event from plain values: RA/Dec in degrees or sexagesimal strings, t0 an ISO 8601 UTC
+    string, distance in Mpc, E(B-V) in mag.  A bad value raises a ParameterError naming its parameter."""
+    ra_deg = _named("ra", lambda: parse_ra(ra, "ra"))
+    dec_deg = _named("dec", lambda: parse_dec(dec, "dec"))
+    t = _named("t0", lambda: parse_time_utc(t0, "t0"))
+    which = "distance_mpc" if distance_mpc is not None else "redshift"
+    _named(which, lambda: check_distance(distance_mpc, redshift, which))
     if not 0.0 <= ebv_mw <= 10.0:
-        raise InputError(f"--ebv-mw {ebv_mw:g}: out of range (allowed: 0 to 10 mag)")
+        raise ParameterError("ebv_mw", message=f"ebv_mw {ebv_mw:g}: out of range (allowed: 0 to 10 mag)")
     return Event(event_id, ra_deg, dec_deg, t, distance_mpc=distance_mpc, redshift=redshift, ebv_mw=ebv_mw)
+
+
+def _named(parameter: str, fn):
+    """Run a value parser; its InputError becomes a ParameterError naming ``parameter``."""
+    try:
+        return fn()
+    except InputError as err:
+        raise ParameterError(parameter, message=str(err)) from None
 
 
 def load_event(path) -> Event:

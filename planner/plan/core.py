@@ -43,7 +43,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from kncast.planner.errors import OptionError
+from kncast.planner.errors import ParameterError
 
 __all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
            "campaign_summary", "STRONG_TAU", "MAX_EXPOSURE_S"]
@@ -138,15 +138,15 @@ class Plan:
 
 
 def check_settings(snr_target, max_hours, overhead_s, nights) -> None:
-    """Range checks with one-line errors naming the option."""
+    """Range checks with one-line errors naming the parameter."""
     if not (math.isfinite(snr_target) and 0.0 < snr_target <= 1000.0):
-        raise OptionError("--snr", snr_target, "a S/N per resolution element in (0, 1000]")
+        raise ParameterError("snr_target", snr_target, "a S/N per resolution element in (0, 1000]")
     if not (math.isfinite(max_hours) and 0.0 < max_hours <= 24.0):
-        raise OptionError("--max-hours", max_hours, "hours per night in (0, 24]")
+        raise ParameterError("max_hours", max_hours, "hours per night in (0, 24]")
     if not (math.isfinite(overhead_s) and 0.0 <= overhead_s <= 4 * 3600.0):
-        raise OptionError("--overhead-min", overhead_s / 60.0, "minutes in [0, 240]")
+        raise ParameterError("overhead_s", overhead_s, "seconds in [0, 14400]")
     if not 1 <= int(nights) <= 60:
-        raise OptionError("--nights", nights, "a whole number from 1 to 60")
+        raise ParameterError("nights", nights, "a whole number from 1 to 60")
 
 
 def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,

@@ -16,7 +16,7 @@ from astropy.time import Time
 
 from kncast.forecast.airmass import airmass_from_altitude
 from kncast.planner.visibility import sky
-from kncast.planner.errors import OptionError
+from kncast.planner.errors import ParameterError
 from kncast.planner.visibility.nights import dusk_dawn, night_bounds_mjd, twilight_altitude_deg
 from kncast.planner.visibility.rootfind import positive_intervals
 from kncast.planner.visibility.windows import Rules, Sky, combined_margin, margins, night_notes, split_at_bounds, window_margin_fn
@@ -108,7 +108,7 @@ class VisibilityResult:
                 "target": self.event.targets()[self.target_index].id}
 
 
-def _deg(value, name: str, low: float, high: float, option: str):
+def _deg(value, name: str, low: float, high: float):
     """Plain float degrees from a float or an angle Quantity, range-checked."""
     if value is None:
         return None
@@ -118,7 +118,7 @@ def _deg(value, name: str, low: float, high: float, option: str):
         value = value.to_value(u.deg) if name != "max_airmass" else float(value)
     value = float(value)
     if not np.isfinite(value) or not low <= value <= high:
-        raise OptionError(option, value, f"[{low:g}, {high:g}]")
+        raise ParameterError(name, value, f"[{low:g}, {high:g}]")
     return value
 
 
@@ -135,21 +135,21 @@ def compute_visibility(event, sites, nights: int = 3, twilight: str = "nautical"
     """
     sites = list(sites)
     if not sites:
-        raise OptionError("--sites", "", "at least one site")
+        raise ParameterError("sites", "", "at least one site")
     if int(nights) < 1:
-        raise OptionError("--nights", nights, "a whole number >= 1")
+        raise ParameterError("nights", nights, "a whole number >= 1")
     nights = int(nights)
     targets = event.targets()
     if not 0 <= target_index < len(targets):
-        raise OptionError("--target", target_index, f"0 to {len(targets) - 1}")
+        raise ParameterError("target_index", target_index, f"0 to {len(targets) - 1}")
     twilight_deg = twilight_altitude_deg(twilight)
-    override = _deg(min_altitude_deg, "min_altitude_deg", 0.0, 89.0, "--min-altitude")
+    override = _deg(min_altitude_deg, "min_altitude_deg", 0.0, 89.0)
     rules = Rules(
         twilight_deg=twilight_deg,
         min_altitude_deg=np.array([override if override is not None else s.min_altitude_deg for s in sites], float),
         horizons=tuple(s.horizon for s in sites),
-        max_airmass=_deg(max_airmass, "max_airmass", 1.0, 38.0, "--max-airmass"),
-        min_moon_sep_deg=_deg(min_moon_sep_deg, "min_moon_sep_deg", 0.0, 180.0, "--min-moon-sep"),
+        max_airmass=_deg(max_airmass, "max_airmass", 1.0, 38.0),
+        min_moon_sep_deg=_deg(min_moon_sep_deg, "min_moon_sep_deg", 0.0, 180.0),
         t0_mjd=float(event.t0.utc.mjd))
 
     dates, bounds = night_bounds_mjd(sites, rules.t0_mjd, nights)

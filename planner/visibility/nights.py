@@ -14,7 +14,7 @@ import datetime as dt
 
 import numpy as np
 
-from kncast.planner.errors import OptionError
+from kncast.planner.errors import ParameterError
 
 TWILIGHT_DEG = {"civil": -6.0, "nautical": -12.0, "astronomical": -18.0}
 MJD_UNIX_EPOCH = 40587.0  # MJD of 1970-01-01T00:00 UTC
@@ -25,7 +25,7 @@ def twilight_altitude_deg(twilight: str) -> float:
     try:
         return TWILIGHT_DEG[twilight]
     except KeyError:
-        raise OptionError("--twilight", twilight, ", ".join(TWILIGHT_DEG)) from None
+        raise ParameterError("twilight", twilight, ", ".join(TWILIGHT_DEG)) from None
 
 
 def mjd_of(moment: dt.datetime) -> float:

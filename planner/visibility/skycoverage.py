@@ -34,7 +34,7 @@ import numpy as np
 from astropy.time import Time
 
 from kncast.planner.visibility import sky
-from kncast.planner.errors import OptionError
+from kncast.planner.errors import ParameterError
 from kncast.planner.events.skymap import SR_TO_DEG2, SkyMap
 
 DEFAULT_STEP_MIN = 10.0
@@ -104,7 +104,7 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
     from kncast.planner.visibility.core import compute_visibility
 
     if not 1.0 <= float(step_min) <= 60.0:
-        raise OptionError("--step", step_min, "1 to 60 minutes")
+        raise ParameterError("step_min", step_min, "1 to 60 minutes")
     ra, dec = skymap.peak_radec_deg()
     probe = Event(id="map-peak", ra_deg=ra, dec_deg=dec, t0=t0, source=skymap.path)
     vis = compute_visibility(probe, sites, nights=nights, twilight=twilight, min_altitude_deg=min_altitude_deg,
