@@ -45,7 +45,7 @@ class ParameterError(InputError):
         msg = self.message
         for name in (self.parameter, *self.also):
             if name in option_of:
-                msg = re.sub(rf"(?<![\w-]){re.escape(name)}(?![\w-])", option_of[name], msg)
+                msg = re.sub(rf"(?<![\w.-]){re.escape(name)}(?![\w-])", option_of[name], msg)
         if self.parameter in option_of and option_of[self.parameter] not in msg:
             msg += f" (option {option_of[self.parameter]})"
         return msg
