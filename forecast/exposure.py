@@ -33,12 +33,12 @@ import numpy as np
 
 from kncast.forecast import ccd
 from kncast.forecast import slit
+from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S, SNR_BASIS  # noqa: F401  (re-exported)
 from kncast.forecast.errors import ForecastInputError, check_range
 from kncast.forecast.extinction_atm import Atmosphere
 from kncast.forecast.skybright import MoonGeometry, SkySpectrum, flam_to_photons, sky_photons
 
 SYSTEMATICS_RATIO = 0.01   # source below 1% of the sky in the aperture: sky-subtraction limited (common practice)
-SNR_BASIS = "per resolution element"
 
 
 @dataclass(frozen=True)

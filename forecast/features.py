@@ -16,19 +16,35 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from kncast.forecast.defaults import STRONG_TAU
+
 from kncast.forecast.doppler import FeatureWindows, check_velocities, feature_windows
 from kncast.forecast.errors import ForecastInputError, check_range
 from kncast.forecast.linelist import Feature, LineList
 from kncast.forecast.lte import Composition, LTEState, line_optical_depths, lte_state
 
-__all__ = ["Epochs", "FeatureForecast", "epochs_from", "forecast_features", "STAGE_NAMES"]
+__all__ = ["Epochs", "FeatureForecast", "epochs_from", "forecast_features", "strong_mask", "STAGE_NAMES",
+           "STRONG_TAU"]
 
 STAGE_NAMES = ("I", "II", "III", "IV")
 
 
+def strong_mask(tau) -> np.ndarray:
+    """True where the Sobolev optical depth is finite and >= ``STRONG_TAU`` (any array shape)."""
+    tau = np.asarray(tau, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(tau) & (tau >= STRONG_TAU)
+
+
 @dataclass(frozen=True)
 class Epochs:
-    """Physical conditions per epoch (arrays over n epochs) and the ejecta they belong to."""
+    """Physical conditions per epoch (arrays over n epochs) and the ejecta they belong to.
+
+    ``v_phot_c`` is the photospheric velocity where the features form: from a
+    Transient, its line-forming velocity ``PhotosphereState.v_line_c`` (not the
+    blackbody radius over c t, which recedes faster once a temperature floor or
+    the heating cap is reached; ``kncast.forecast.photosphere``).
+    """
 
     phase_d: np.ndarray
     age_d: np.ndarray
@@ -51,7 +67,7 @@ def epochs_from(source, phases_d=None, vphot_c=None, vmax_c=None) -> Epochs:
     else:
         st = source.state(phases_d)
         ep = Epochs(np.asarray(st.phase_d, float), np.asarray(st.age_d, float), np.asarray(st.temperature_K, float),
-                    np.asarray(st.v_phot_c, float), np.asarray(st.v_max_c, float), float(source.redshift),
+                    np.asarray(st.v_line_c, float), np.asarray(st.v_max_c, float), float(source.redshift),
                     float(source.ejecta_mass_msun))
     n = ep.phase_d.shape
     vp = ep.v_phot_c if vphot_c is None else np.full(n, float(check_range("vphot_c", vphot_c, 0.0, 0.8,

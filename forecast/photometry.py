@@ -25,13 +25,12 @@ from importlib import resources
 import numpy as np
 
 from kncast.forecast.blackbody import C_A_PER_S
+from kncast.forecast.defaults import DEFAULT_BANDS
 from kncast.forecast.errors import ForecastInputError
 
 AB_ZERO_POINT_JY = 3631.0
 _JY_CGS = 1e-23  # erg s^-1 cm^-2 Hz^-1
 POINTS_PER_BAND = 200
-DEFAULT_BANDS = ("bessell-U", "bessell-B", "bessell-V", "bessell-R", "bessell-I",
-                 "twomass-J", "twomass-H", "twomass-Ks")
 
 
 @functools.lru_cache(maxsize=1)

@@ -27,25 +27,26 @@ class ParameterError(InputError):
     """A bad value for a named parameter of the Python API (``snr_target``, ``twilight``, a ``[model]`` key).
 
     Lower layers name the parameter; the command layer, which knows which option sets it, shows the
-    option instead (:meth:`renamed`).  ``str(err)`` is a complete one-line message on its own.
+    option instead (:meth:`renamed`).  ``message`` may name parameters as ``{name}`` placeholders
+    (``parameter`` and those in ``also``); a message that starts with the bare parameter name has that
+    name replaced too.  ``str(err)`` is a complete one-line message on its own.
     """
 
     def __init__(self, parameter: str, value=None, allowed: str | None = None, message: str | None = None,
                  also: tuple = ()):
         self.parameter, self.value, self.allowed, self.also = parameter, value, allowed, tuple(also)
-        self.message = message if message is not None else f"{parameter} {value!r}: allowed {allowed}"
-        super().__init__(self.message)
+        self.template = message if message is not None else f"{{{parameter}}} {value!r}: allowed {allowed}"
+        if not self.template.startswith("{") and self.template.startswith(parameter):
+            self.template = "{" + parameter + "}" + self.template[len(parameter):]
+        super().__init__(self.renamed({}))
 
     def renamed(self, option_of: dict) -> str:
-        """The message with each parameter named in it (``parameter`` and ``also``) replaced by the option
-        that sets it (``option_of``: parameter -> option); the option is added when the message does not
-        name the parameter."""
-        import re
-
-        msg = self.message
+        """The message with every ``{name}`` placeholder replaced by the option that sets it
+        (``option_of``: parameter -> option) or else by the parameter's name; the option is added when
+        the message does not name the parameter."""
+        msg = self.template
         for name in (self.parameter, *self.also):
-            if name in option_of:
-                msg = re.sub(rf"(?<![\w.-]){re.escape(name)}(?![\w-])", option_of[name], msg)
+            msg = msg.replace("{" + name + "}", option_of.get(name, name))
         if self.parameter in option_of and option_of[self.parameter] not in msg:
             msg += f" (option {option_of[self.parameter]})"
         return msg

@@ -72,7 +72,9 @@ def add_night_rule_options(g, subject: str, max_nights: int) -> None:
     """``--nights --twilight --min-altitude --max-airmass --min-moon-sep`` for ``subject`` ("target", "pixel")."""
     g.add_argument("--nights", type=positive_int("--nights", high=max_nights), default=3, metavar="N",
                    help="local nights from the one in progress at t0 (default 3)")
-    g.add_argument("--twilight", choices=["civil", "nautical", "astronomical"], default="nautical",
+    from kncast.planner.visibility.nights import TWILIGHT_DEG
+
+    g.add_argument("--twilight", choices=tuple(TWILIGHT_DEG), default="nautical",
                    help="darkness starts when the Sun is below -6 / -12 / -18 deg (default nautical)")
     g.add_argument("--min-altitude", type=finite_float("--min-altitude", 0, 89), metavar="DEG",
                    help=f"lowest {subject} altitude, replaces each site's own limit (0-89 deg)")

@@ -3,12 +3,12 @@ from __future__ import annotations
 
 from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, parse_phases, split_list)
+from kncast.forecast.defaults import DEFAULT_BANDS
 from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 
 HELP = "forecast the photosphere (T, R, L, v) and AB magnitudes at chosen days after t0"
 
 DEFAULT_PHASES = "0.5,1,1.5,2,3,4,5,7,10,14"
-DEFAULT_BANDS = "bessell-U,bessell-B,bessell-V,bessell-R,bessell-I,twomass-J,twomass-H,twomass-Ks"
 CAUTION = ("Model estimates from a blackbody photosphere: real kilonova spectra depart from it; "
            "use the observatory's own tools for any exposure decision.")
 
@@ -30,7 +30,7 @@ def bands_from_args(args) -> tuple[str, ...]:
     from kncast.forecast.photometry import known_bands
     from kncast.planner.errors import UnknownNameError
 
-    bands = split_list(args.bands) or DEFAULT_BANDS.split(",")
+    bands = split_list(args.bands) or list(DEFAULT_BANDS)
     for band in bands:
         if band not in known_bands():
             raise UnknownNameError("band (--bands)", band, known_bands())

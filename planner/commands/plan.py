@@ -13,10 +13,11 @@ from kncast.planner.commands import _common
 
 HELP = "plan a spectroscopy campaign: best setup per site and night, exposure times, report"
 
-TWILIGHTS = ("civil", "nautical", "astronomical")
 
 
 def add_arguments(p) -> None:
+    from kncast.planner.visibility.nights import TWILIGHT_DEG
+
     _common.add_event_options(p)
     _common.add_site_options(p)
     g = p.add_argument_group("plan")
@@ -29,7 +30,7 @@ def add_arguments(p) -> None:
                    metavar="H", help="at most this many hours per night on the target (default 4)")
     g.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
                    metavar="MIN", help="acquisition and readout overhead per night, minutes (default 15)")
-    g.add_argument("--twilight", choices=TWILIGHTS, default="nautical",
+    g.add_argument("--twilight", choices=tuple(TWILIGHT_DEG), default="nautical",
                    help="Sun altitude that ends twilight (default nautical, -12 deg)")
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")

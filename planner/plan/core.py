@@ -45,15 +45,17 @@ import numpy as np
 
 from kncast.planner.errors import ParameterError
 
-__all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
-           "campaign_summary", "STRONG_TAU", "MAX_EXPOSURE_S"]
+from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S, SNR_BASIS, STRONG_TAU
+from kncast.forecast.features import strong_mask
+from kncast.planner.observation import batched_conditions, forecast_airmass
 
-STRONG_TAU = 1.0  # Sobolev optical depth above which a feature counts as strong (common practice: tau ~ 1)
+__all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
+           "campaign_summary", "MAG_BANDS"]
+
 DEFAULT_SNR = 10.0
 DEFAULT_MAX_HOURS = 4.0
 DEFAULT_OVERHEAD_S = 900.0
 MAG_BANDS = ("bessell-R", "bessell-I", "twomass-J")  # model AB magnitudes quoted per epoch (speclite names)
-MAX_EXPOSURE_S = 1800.0  # longest single exposure (cosmic rays, sky variation; common practice)
 
 STATUS_WORDS = {
     "observe": "observe",
@@ -176,9 +178,9 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     refs = [r for r in all_setups(registry if registry is not None else sites_registry(sites))
             if r.site.id in site_ids]
     settings = {"nights": int(nights), "twilight": twilight, "snr_target": float(snr_target),
-                "snr_per": "resolution element", "max_hours": float(max_hours), "overhead_s": float(overhead_s),
+                "snr_per": SNR_BASIS.removeprefix("per "), "max_hours": float(max_hours), "overhead_s": float(overhead_s),
                 "strong_tau": STRONG_TAU, "sites": [s.id for s in sites], "setups": [r.id for r in refs],
-                "target": event.targets()[0].id}
+                "target": event.targets()[0].id, "mag_bands": list(MAG_BANDS)}
     t0_mjd = float(event.t0.utc.mjd)
     plans = [_night_plan(rec, t0_mjd, max_hours, overhead_s) for rec in vis.nights]
     epochs = [p for p in plans if p.window is not None]
@@ -286,12 +288,6 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, snr_target: float, 
             p.outcomes = _outcomes_for_epoch(plan, p, i, fc, by_site[p.site.id], cols, ex, snr_target)
 
 
-def strong_mask(fc) -> np.ndarray:
-    """(n_epochs, n_features): Sobolev optical depth finite and >= ``STRONG_TAU``."""
-    with np.errstate(invalid="ignore"):
-        return np.isfinite(fc.tau) & (fc.tau >= STRONG_TAU)
-
-
 def site_conditions(site):
     """(Atmosphere, TelluricModel) of a site: its ``[atmosphere]`` table or the defaults."""
     from kncast.forecast.extinction_atm import atmosphere_for_site
@@ -321,7 +317,7 @@ def _outcomes_for_epoch(plan: Plan, p: NightPlan, i: int, fc, refs: list, cols: 
     (n_setups, n_features) from :func:`site_exposures`.
     """
     tau = fc.tau[i]
-    strong = strong_mask(fc)[i]
+    strong = strong_mask(fc.tau)[i]
     strong_idx = [int(f) for f in fc.rank[i] if strong[f]]
     clear = np.array([[fc.verdict[i, f, k] == "clear" for f in strong_idx] for k in cols], dtype=bool)
     clear = clear.reshape(len(cols), len(strong_idx))
@@ -367,34 +363,6 @@ def _feature_rows(p: NightPlan, fc, i: int, k: int, setup_id: str, strong_idx: l
     return rows
 
 
-def forecast_airmass(window) -> float:
-    """The window's best airmass (Kasten & Young 1989, >= 1) as the forecasts' plain float."""
-    return float(window.best_airmass)
-
-
-def exposure_conditions(site, window, atmosphere):
-    """kncast.forecast.exposure.Conditions for a window: best airmass, Moon at the best time, site seeing/PWV."""
-    return windows_conditions([window], atmosphere, scalar=True)
-
-
-def windows_conditions(windows, atmosphere, index=None, scalar=False):
-    """kncast.forecast.exposure.Conditions with one value per window (arrays (n_windows,), or picked by ``index``):
-    best airmass, Moon at the best time; the site's seeing, PWV and atmosphere.  ``scalar``: plain floats
-    of the single window given."""
-    from kncast.forecast.exposure import Conditions
-    from kncast.forecast.skybright import MoonGeometry
-
-    def values(get, lo=-np.inf, hi=np.inf):
-        v = np.clip(np.array([float(get(w)) for w in windows]), lo, hi)
-        return float(v[0]) if scalar else (v if index is None else v[index])
-
-    moon = MoonGeometry(illumination=values(lambda w: w.moon_illumination, 0.0, 1.0),
-                        sep_deg=values(lambda w: w.moon_sep_deg, 0.0, 180.0),
-                        altitude_deg=values(lambda w: w.moon_altitude_deg, -90.0, 90.0))
-    return Conditions(airmass=values(forecast_airmass), seeing_arcsec=atmosphere.seeing_arcsec,
-                      moon=moon, pwv_mm=atmosphere.pwv_mm, atmosphere=atmosphere)
-
-
 def site_exposures(plan: Plan, epochs: list, rows, fc, refs: list, cols: list, snr_target: float):
     """Exposures of one site, all its epochs (``rows``: indices into ``epochs``) and setups in one batched call.
 
@@ -407,7 +375,7 @@ def site_exposures(plan: Plan, epochs: list, rows, fc, refs: list, cols: list, s
     from kncast.forecast import exposure
 
     n, nf = fc.tau.shape
-    strong = strong_mask(fc)[rows]                                                   # (n_rows, nf)
+    strong = strong_mask(fc.tau)[rows]                                                   # (n_rows, nf)
     hours = np.array([epochs[i].hours_available for i in rows])
     clear = (fc.verdict[rows][:, :, cols] == "clear") & strong[:, :, None]
     needed = np.zeros(n, dtype=bool)
@@ -419,16 +387,16 @@ def site_exposures(plan: Plan, epochs: list, rows, fc, refs: list, cols: list, s
         return needed, snr_all, t_all, n_all
     ep = rows[e]
     lam = fc.windows.trough_A[ep, f]
-    cond = windows_conditions([epochs[i].window for i in rows], plan.atmospheres[epochs[rows[0]].site.id], e)
+    cond = batched_conditions([epochs[i].window for i in rows], plan.atmospheres[epochs[rows[0]].site.id], e)
     grid = exposure.stack_grids([exposure.setup_grid(r.telescope, r.instrument, r.setup, wavelength_A=lam)
                                  for r in refs])                                    # (n_setups, n_samples)
     flux = fc.trough_flux_flam[ep, f][None, :]                                      # (1, n_samples)
     telluric = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
     r = exposure.rates(flux, grid, cond, telluric)
     available = hours[e] * 3600.0
-    n_exp = np.maximum(1, np.ceil(available / MAX_EXPOSURE_S - 1e-9)).astype(int)
+    n_exp = np.maximum(1, np.ceil(available / DEFAULT_MAX_EXPOSURE_S - 1e-9)).astype(int)
     snr_all[:, ep, f] = exposure.expose(r, available, n_exp).snr_per_resel
-    t_all[:, ep, f], n_all[:, ep, f] = exposure.time_for_snr(r, snr_target, MAX_EXPOSURE_S)
+    t_all[:, ep, f], n_all[:, ep, f] = exposure.time_for_snr(r, snr_target, DEFAULT_MAX_EXPOSURE_S)
     return needed, snr_all, t_all, n_all
 
 

@@ -14,7 +14,8 @@ from pathlib import Path
 
 import numpy as np
 
-from kncast.planner.plan.core import MAX_EXPOSURE_S, forecast_airmass
+from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S
+from kncast.planner.observation import forecast_airmass
 
 FIGURE_DPI = 90
 
@@ -204,13 +205,13 @@ def campaign_chart(plan, folder, _arg):
 
 
 def light_curve(plan, folder, _arg):
-    from kncast.planner.commands.lightcurve import DEFAULT_BANDS
+    from kncast.forecast.defaults import DEFAULT_BANDS
     from kncast.planner.figures.lightcurve import lightcurve_figure
 
     useful = plan.useful() or [p for p in plan.nights if p.phase_d is not None]
     phases = np.unique(np.round([p.phase_d for p in useful], 4)) if useful else np.array([1.0])
     state = plan.transient.state(phases)
-    fig = lightcurve_figure(plan.transient, state, tuple(DEFAULT_BANDS.split(",")),
+    fig = lightcurve_figure(plan.transient, state, DEFAULT_BANDS,
                             f"{plan.event.id}: {plan.model.get('name', '')} photosphere")
     return {"title": "Light curve", "path": _save(fig, folder, "lightcurve", tight=True),
             "caption": "Model AB magnitudes and photospheric temperature; markers at the "
@@ -270,26 +271,16 @@ def snr_figure_setups(plan) -> list[str]:
 
 def snr_spectrum(plan, folder, setup_id):
     """S/N against wavelength (the exposure chart) for a setup at the last night it was chosen."""
-    import argparse
-
-    from kncast.planner.commands import exposure as cmd
     from kncast.planner.figures.exposure import exposure_figure
+    from kncast.planner.observation import Request, observe, window_conditions
 
     p = max((n for n in plan.useful() if n.choice.setup == setup_id), key=lambda n: n.phase_d)
     ref = next(r for r in plan.setup_refs if r.id == setup_id)
     w = p.window
-    # the options `kncast exposure` would be given for this night, parsed by its own parser
-    parser = argparse.ArgumentParser()
-    cmd.add_arguments(parser)
-    args = parser.parse_args([
-        f"--setup={setup_id}", f"--phase={p.phase_d!r}", f"--snr={plan.settings['snr_target']!r}",
-        f"--at={p.choice.feature}", f"--max-exposure={MAX_EXPOSURE_S!r}", f"--airmass={forecast_airmass(w)!r}",
-        f"--moon-illumination={float(np.clip(w.moon_illumination, 0, 1))!r}",
-        f"--moon-sep={float(np.clip(w.moon_sep_deg, 0, 180))!r}",
-        f"--moon-alt={float(np.clip(w.moon_altitude_deg, -90, 90))!r}"])
-    cmd.check_options(args)
-    cond = cmd.observing_conditions(args, plan.event, ref)
-    res = cmd.compute(args, plan.event, ref, plan.transient, cond, None)
+    cond = window_conditions(w, plan.atmospheres[p.site.id], f"night of {p.record.night.isoformat()} at {p.site.id}")
+    request = Request(phase_d=p.phase_d, snr_target=plan.settings["snr_target"], at=p.choice.feature,
+                      max_exposure_s=DEFAULT_MAX_EXPOSURE_S)
+    res = observe(plan.event, ref, plan.transient, cond, request, tellurics=plan.tellurics)
     fig = exposure_figure(res)
     return {"title": f"S/N spectrum, {setup_id}",
             "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),

@@ -52,7 +52,6 @@ MODEL_MODULES = (
 )
 
 # An author-year citation: "Kasten & Young 1989", "Korobkin et al. (2012)", "Benn & Ellison 1998, ...".
-MAG_COLUMNS = ("bessell-R", "bessell-I", "twomass-J")
 
 _CITATION = re.compile(
     r"\b((?:[A-Z][A-Za-z'\-]+)(?:, [A-Z][A-Za-z'\-]+)*(?:,? (?:&|and) [A-Z][A-Za-z'\-]+| et al\.)?,? "
@@ -163,6 +162,11 @@ def _fmt(value, spec: str = ".1f", none: str = "-") -> str:
 def _hm(iso: str | None) -> str:
     """'2027-03-14T23:10:00Z' -> '03-14 23:10'."""
     return f"{iso[5:10]} {iso[11:16]}" if iso else "-"
+
+
+def _band_label(band: str) -> str:
+    """'bessell-R' -> 'R', 'twomass-J' -> 'J' (speclite names: group-band)."""
+    return band.split("-", 1)[-1]
 
 
 def _exposure_words(choice: dict) -> str:
@@ -304,12 +308,13 @@ def _justification(doc: dict) -> list[Block]:
         ch, ep = n["choice"], n["epoch"]
         ph = ep["photosphere"]
         mags = ph.get("mag_ab") or {}
+        bands = st.get("mag_bands") or list(mags)
         rows.append([n["site"], n["night"], f"{ep['phase_d']:.2f}", ch["setup"], _fmt(ph.get("temperature_K"), ".0f"),
-                     " / ".join(_fmt(mags.get(b), ".1f") for b in MAG_COLUMNS),
+                     " / ".join(_fmt(mags.get(b), ".1f") for b in bands),
                      ch["feature"] or "-", _fmt(ch["trough_obs_A"], ".0f"), _exposure_words(ch),
                      f"{st['snr_target']:g}", _fmt(ch["snr"], ".1f"), _fmt(ep["airmass"], ".2f")])
     if rows:
-        out.append(Block("table", header=["Site", "Night", "Day", "Setup", "T (K)", "AB mag R / I / J", "Feature",
+        out.append(Block("table", header=["Site", "Night", "Day", "Setup", "T (K)", "AB mag " + " / ".join(_band_label(b) for b in st.get("mag_bands") or ()), "Feature",
                                           "Trough (A)", "Exposure", "Target S/N", "S/N in window", "Airmass"],
                          items=rows))
         chosen = [n for n in doc["nights"] if n.get("choice")]

@@ -5,6 +5,9 @@ README.md, section "The campaign plan" describes every member in words.
 """
 from __future__ import annotations
 
+from kncast.forecast.defaults import SNR_BASIS
+from kncast.planner.visibility.nights import TWILIGHT_DEG
+
 _num = {"type": "number"}
 _num_or_null = {"type": ["number", "null"]}
 _int_or_null = {"type": ["integer", "null"]}
@@ -83,11 +86,11 @@ PLAN_SCHEMA = {
         "event": _obj({"id": {"type": "string"}, "ra_deg": _num, "dec_deg": _num, "t0_utc": _utc,
                        "distance_mpc": _num_or_null, "redshift": _num_or_null}, extra=True),
         "settings": _obj({
-            "nights": {"type": "integer", "minimum": 1}, "twilight": {"enum": ["civil", "nautical", "astronomical"]},
-            "snr_target": {"type": "number", "exclusiveMinimum": 0}, "snr_per": {"const": "resolution element"},
+            "nights": {"type": "integer", "minimum": 1}, "twilight": {"enum": list(TWILIGHT_DEG)},
+            "snr_target": {"type": "number", "exclusiveMinimum": 0}, "snr_per": {"const": SNR_BASIS.removeprefix("per ")},
             "max_hours": {"type": "number", "exclusiveMinimum": 0}, "overhead_s": {"type": "number", "minimum": 0},
             "strong_tau": _num, "sites": _strings, "setups": _strings, "target": {"type": "string"},
-            "score": {"type": "string"}}),
+            "score": {"type": "string"}}, {"mag_bands": _strings}),
         "model": _obj({"name": {"type": "string"}, "parameters": {"type": "object"}}, extra=True),
         "sites": {"type": "array", "items": _obj({
             "id": {"type": "string"}, "name": {"type": "string"}, "latitude_deg": _num, "longitude_deg": _num,

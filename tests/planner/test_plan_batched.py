@@ -138,7 +138,7 @@ def _per_epoch_reference(plan, p, refs, trough_A, snr_target, max_exposure_s):
 
 
 def test_batched_plan_exposures_equal_one_call_per_epoch(small_plan):
-    from kncast.planner.plan.core import MAX_EXPOSURE_S
+    from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S as MAX_EXPOSURE_S
 
     plan = small_plan
     by_id = {r.id: r for r in plan.setup_refs}
