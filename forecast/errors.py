@@ -33,6 +33,35 @@ def check_range(name: str, value, low=None, high=None, *, low_open=False, high_o
     return value
 
 
+class ParameterError(ForecastInputError):
+    """A bad value for a named parameter (``distance_mpc``, ``snr_target``, ``twilight`` ...).
+
+    The library names the parameter; an application that knows which of its own options sets it
+    shows that instead (:meth:`renamed`).  ``message`` may name parameters as ``{name}`` placeholders
+    (``parameter`` and those in ``also``); a message that starts with the bare parameter name has that
+    name replaced too.  ``str(err)`` is a complete one-line message on its own.
+    """
+
+    def __init__(self, parameter: str, value=None, allowed: str | None = None, message: str | None = None,
+                 also: tuple = ()):
+        self.parameter, self.value, self.allowed, self.also = parameter, value, allowed, tuple(also)
+        self.template = message if message is not None else f"{{{parameter}}} {value!r}: allowed {allowed}"
+        if not self.template.startswith("{") and self.template.startswith(parameter):
+            self.template = "{" + parameter + "}" + self.template[len(parameter):]
+        super().__init__(self.renamed({}))
+
+    def renamed(self, option_of: dict) -> str:
+        """The message with every ``{name}`` placeholder replaced by the option that sets it
+        (``option_of``: parameter -> option) or else by the parameter's name; the option is added when
+        the message does not name the parameter."""
+        msg = self.template
+        for name in (self.parameter, *self.also):
+            msg = msg.replace("{" + name + "}", option_of.get(name, name))
+        if self.parameter in option_of and option_of[self.parameter] not in msg:
+            msg += f" (option {option_of[self.parameter]})"
+        return msg
+
+
 class DataFileError(ForecastInputError):
     """A data file (TOML, ECSV, FITS, XML) with a missing, malformed or out-of-range field."""
 

@@ -68,7 +68,7 @@ def _options_by_parameter(parser: argparse.ArgumentParser, aliases: dict) -> dic
 
 def user_message(err, option_of: dict) -> str:
     """The one-line message for a user error; a ParameterError names the option that sets it."""
-    from kncast.planner.errors import ParameterError
+    from kncast.forecast.errors import ParameterError
 
     if isinstance(err, ParameterError):
         return err.renamed(option_of)

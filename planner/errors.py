@@ -4,6 +4,7 @@ from __future__ import annotations
 import difflib
 
 from kncast.forecast.errors import DataFileError, ForecastInputError
+from kncast.forecast.errors import ParameterError as BaseParameterError
 
 FileFieldError = DataFileError  # a data file with a missing, malformed or out-of-range field
 
@@ -23,33 +24,9 @@ class OptionError(InputError):
         super().__init__(f"{option} {value!r}: allowed {allowed}")
 
 
-class ParameterError(InputError):
-    """A bad value for a named parameter of the Python API (``snr_target``, ``twilight``, a ``[model]`` key).
-
-    Lower layers name the parameter; the command layer, which knows which option sets it, shows the
-    option instead (:meth:`renamed`).  ``message`` may name parameters as ``{name}`` placeholders
-    (``parameter`` and those in ``also``); a message that starts with the bare parameter name has that
-    name replaced too.  ``str(err)`` is a complete one-line message on its own.
-    """
-
-    def __init__(self, parameter: str, value=None, allowed: str | None = None, message: str | None = None,
-                 also: tuple = ()):
-        self.parameter, self.value, self.allowed, self.also = parameter, value, allowed, tuple(also)
-        self.template = message if message is not None else f"{{{parameter}}} {value!r}: allowed {allowed}"
-        if not self.template.startswith("{") and self.template.startswith(parameter):
-            self.template = "{" + parameter + "}" + self.template[len(parameter):]
-        super().__init__(self.renamed({}))
-
-    def renamed(self, option_of: dict) -> str:
-        """The message with every ``{name}`` placeholder replaced by the option that sets it
-        (``option_of``: parameter -> option) or else by the parameter's name; the option is added when
-        the message does not name the parameter."""
-        msg = self.template
-        for name in (self.parameter, *self.also):
-            msg = msg.replace("{" + name + "}", option_of.get(name, name))
-        if self.parameter in option_of and option_of[self.parameter] not in msg:
-            msg += f" (option {option_of[self.parameter]})"
-        return msg
+class ParameterError(InputError, BaseParameterError):
+    """A bad value for a named parameter of the Python API (see
+    :class:`kncast.forecast.errors.ParameterError`); also an InputError."""
 
 
 class UnknownNameError(InputError):

@@ -51,8 +51,6 @@ def run(args) -> int:
     if args.json != "-":
         print_tables(result)
         if ranking is not None:
-            from kncast.planner.visibility.candidates import print_ranking
-
             print_ranking(ranking)
     return 0
 
@@ -107,3 +105,24 @@ def print_tables(result) -> None:
                 table.add_row("", "", f"[dim]{rec.note}[/dim]", *[""] * 7)
         out.print(table)
     out.print(f"[dim]{CAUTION}[/dim]")
+
+
+def print_ranking(nights: list) -> None:
+    """One rich table: per site and night, the candidates in observing order."""
+    from rich.table import Table
+
+    table = Table(title="Candidates ranked per site and night (most observable hours first, then best airmass)",
+                  title_justify="left")
+    for col, just in [("site", "left"), ("night", "left"), ("rank", "right"), ("candidate", "left"),
+                      ("hours", "right"), ("best X", "right"), ("best UTC", "left"), ("Moon sep", "right"),
+                      ("note", "left")]:
+        table.add_column(col, justify=just)
+    for night in nights:
+        for k, r in enumerate(night.ranking):
+            table.add_row(night.site.id if k == 0 else "", night.night.isoformat() if k == 0 else "", str(r.rank),
+                          r.candidate.id, f"{r.hours:.2f}",
+                          "-" if r.best_airmass is None else f"{r.best_airmass:.2f}",
+                          "-" if r.best_time is None else r.best_time.utc.strftime("%m-%d %H:%M"),
+                          "-" if r.moon_sep_deg is None else f"{r.moon_sep_deg:.0f} deg",
+                          f"[dim]{r.note}[/dim]" if not r.observable else "")
+    console().print(table)

@@ -56,7 +56,7 @@ def load_voevent(path) -> Event:
     if pos is None:
         raise DataFileError(path, f"{LOCATION}/AstroCoords/Position2D",
                             "required element missing: the packet gives no position (for an alert with only "
-                            "a probability sky map, use kncast coverage --map FILE)")
+                            "a probability sky map, use the sky-coverage command with the map)")
     ra_deg, dec_deg, err_deg = _position(pos, system, path)
     t0 = _time(coords, system, path)
     params = _params(root)

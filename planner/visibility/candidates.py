@@ -105,26 +105,3 @@ def _entry(candidate, index: int, record) -> RankedCandidate:
 def _order(e: RankedCandidate):
     airmass = e.best_airmass if e.best_airmass is not None and math.isfinite(e.best_airmass) else math.inf
     return (-round(e.hours, 1), airmass, e.index)  # hours within 0.05 h tie: airmass decides
-
-
-def print_ranking(nights: list[CandidateNight]) -> None:
-    """One rich table: per site and night, the candidates in observing order."""
-    from rich.table import Table
-
-    from kncast.planner.commands._common import console
-
-    table = Table(title="Candidates ranked per site and night (most observable hours first, then best airmass)",
-                  title_justify="left")
-    for col, just in [("site", "left"), ("night", "left"), ("rank", "right"), ("candidate", "left"),
-                      ("hours", "right"), ("best X", "right"), ("best UTC", "left"), ("Moon sep", "right"),
-                      ("note", "left")]:
-        table.add_column(col, justify=just)
-    for night in nights:
-        for k, r in enumerate(night.ranking):
-            table.add_row(night.site.id if k == 0 else "", night.night.isoformat() if k == 0 else "", str(r.rank),
-                          r.candidate.id, f"{r.hours:.2f}",
-                          "-" if r.best_airmass is None else f"{r.best_airmass:.2f}",
-                          "-" if r.best_time is None else r.best_time.utc.strftime("%m-%d %H:%M"),
-                          "-" if r.moon_sep_deg is None else f"{r.moon_sep_deg:.0f} deg",
-                          f"[dim]{r.note}[/dim]" if not r.observable else "")
-    console().print(table)

@@ -92,7 +92,7 @@ def test_bad_options_exit_2_with_one_line_and_no_output(run_cli, tmp_path, extra
 def test_missing_distance_is_a_clear_error(run_cli, tmp_path):
     out = tmp_path / "lc.json"
     status, _, stderr = run_cli("lightcurve", *EVENT, "--json", out)
-    assert status == 2 and "distance needed: give --distance-mpc or distance_mpc in the event file" in stderr
+    assert status == 2 and "distance needed: give --distance-mpc (in an event file: distance_mpc)" in stderr  # the option, mapped by the command line
     assert not out.exists()
 
 

@@ -37,15 +37,23 @@ def test_luminosity_is_4_pi_r2_sigma_t4_at_every_epoch(model):
     for arr in (s.phase_d, s.age_d, s.temperature_K, s.radius_cm, s.luminosity_erg_s, s.v_phot_c, s.v_max_c):
         assert arr.shape == PHASES.shape and np.all(np.isfinite(arr))
     assert np.all(s.v_phot_c <= s.v_max_c + 1e-12) and np.all(s.v_phot_c > 0)
+    # line-forming velocity: inside the ejecta, never below the blackbody radius over c t,
+    # and the luminosity-weighted mean of the components' values (as the other totals)
+    assert s.v_line_c.shape == PHASES.shape and s.comp_v_line_c.shape == (n, PHASES.size)
+    assert np.all(s.v_line_c <= s.v_max_c + 1e-12) and np.all(s.comp_v_line_c >= s.comp_v_phot_c * (1 - 1e-12))
+    weights = s.comp_luminosity_erg_s / s.luminosity_erg_s
+    assert np.allclose((weights * s.comp_v_line_c).sum(axis=0), s.v_line_c, rtol=1e-12)
 
 
 def test_powerlaw_defaults_follow_common_practice():
-    # common practice: ~5000 K at 1.5 days, ~2500 K within a week, photosphere at 0.1-0.3 c
+    # common practice: ~5000 K at 1.5 days, ~2500 K within a week, features forming at 0.1-0.3 c
+    # (the line-forming velocity; the blackbody radius recedes faster once L is capped by the heating)
     s = Transient(PowerLawPhotosphere(), distance_mpc=40.0).state([1.5 * (1 + 0.00925), 7.0])
     assert s.temperature_K[0] == pytest.approx(5000.0, rel=0.02)
     assert s.temperature_K[1] == pytest.approx(2500.0, rel=0.05)
     day = Transient(PowerLawPhotosphere(), distance_mpc=40.0).state(np.linspace(1.0, 5.0, 9))
-    assert np.all((day.v_phot_c >= 0.1) & (day.v_phot_c <= 0.3))
+    assert np.all((day.v_line_c >= 0.1) & (day.v_line_c <= 0.3))
+    assert np.all(day.v_phot_c <= day.v_line_c * (1 + 1e-12))
     assert np.all(np.diff(day.temperature_K) < 0) and np.all(np.diff(day.luminosity_erg_s) < 0)
 
 
@@ -120,7 +128,7 @@ def test_vega_magnitudes_follow_ab_offsets():
 
 
 def test_transient_needs_a_distance():
-    with pytest.raises(ForecastInputError, match="distance needed: give --distance-mpc or distance_mpc"):
+    with pytest.raises(ForecastInputError, match=r"distance needed: give distance_mpc \(in an event file: distance_mpc\)"):
         Transient(PowerLawPhotosphere())
 
 
