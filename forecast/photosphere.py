@@ -3,12 +3,37 @@
 Two models, both evaluated at rest-frame ages ``age_d`` (days since the
 merger in the source frame), vectorized over epochs:
 
-``powerlaw``  an empirical cooling, expanding blackbody
+``powerlaw``  an empirical cooling, expanding blackbody, bounded by its radioactive power
     T_free(t) = T_ref (t / t_ref)^-alpha,   v(t) = min(v_ref (t / t_ref)^-beta, v_max),
-    R = v t (homologous),   L = 4 pi R^2 sigma T_free^4,
-    and the same temperature floor as ``heating``: T = max(T_free, T_floor); once
-    at the floor the photosphere recedes, R = (L / (4 pi sigma T_floor^4))^1/2,
-    so the luminosity keeps falling smoothly instead of rising with R = v t.
+    R = v t (homologous),   L_free = 4 pi R^2 sigma T_free^4,
+    L = min(L_free, L_heat),   L_heat = M eps(t) eps_th(t)
+    (the thermalized r-process heating of the model's own ejecta mass M: Korobkin
+    et al. 2012, MNRAS 426, 1940, times the Barnes et al. 2016, ApJ 829, 110,
+    thermalization for M and v_ref; ``kncast.forecast.heating``), and the same
+    temperature floor as ``heating``: T = max(T_free, T_floor).  Wherever the
+    luminosity is below 4 pi (v t)^2 sigma T^4 (capped, or at the floor) the
+    blackbody radius recedes, R = (L / (4 pi sigma T^4))^1/2; T keeps its law.
+
+    Why a cap rather than the heating model as default: the power laws are an
+    empirical description of the colour temperature and the photospheric
+    velocity that observers fit, and they stay the default so that users can
+    match what they see; but unbounded, L_free falls only as t^-0.6 and by a
+    week radiates more than the radioactive power its ejecta deposit (4x at
+    7 d, 9x at 14 d for the defaults), which energy conservation forbids.
+    After the diffusion peak a radioactively powered transient radiates close
+    to its instantaneous deposition (Arnett 1982, ApJ 253, 785; for kilonova
+    ejecta of low opacity from about a day on: Waxman et al. 2018, MNRAS 481,
+    3423, from memory), so the thermalized heating is the upper bound.  Stated
+    approximation: stored diffusion energy released after the peak (which can
+    lift L above the deposition by up to ~2x near 2-4 d for kappa ~ 0.5 cm^2/g,
+    and by < 10% after a week; Arnett's integral in ``kncast.forecast.heating``)
+    is neglected, so capped epochs are, if anything, slightly faint.
+
+    Line-forming velocity (``line_velocities``): v(t) above, the velocity where
+    the spectral features form.  The cap and the floor shrink only the emitting
+    area of the blackbody, not the velocity of the matter that makes the lines
+    (published spectral fits find line-forming velocities of ~0.13-0.2 c at
+    4-5 d; checked in ``tests/accuracy/test_accuracy_photosphere.py``).
 
 ``heating``  one or more ejecta components, each a one-zone radioactive
     model (``kncast.forecast.heating``): Korobkin et al. (2012) heating times the
@@ -17,7 +42,11 @@ merger in the source frame), vectorized over epochs:
     kilonova light-curve fits; common practice):
     T = max[(L / (4 pi sigma v^2 t^2))^1/4, T_floor]; R = v t above the
     floor, R = (L / (4 pi sigma T_floor^4))^1/2 once the floor is reached.
-    Components radiate as separate blackbodies.
+    Components radiate as separate blackbodies.  Line-forming velocity of a
+    component: its ejecta velocity v (a one-zone component has no other
+    velocity; the receding floor radius is an emitting area, not matter
+    slowing down); the features of the whole are taken at the luminosity-
+    weighted mean over components (``kncast.forecast.source``).
 
 Models are built from a plain dict (the event file's ``[model]`` table
 merged with command-line overrides) by :func:`build_model`; every value
@@ -31,7 +60,7 @@ import numpy as np
 
 from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, stefan_boltzmann_luminosity
 from kncast.forecast.errors import ForecastInputError
-from kncast.forecast.heating import DAY_S, arnett_luminosity
+from kncast.forecast.heating import DAY_S, arnett_luminosity, input_luminosity_erg_s
 
 MODEL_NAMES = ("powerlaw", "heating")
 V_LIMIT_C = 0.8  # ejecta velocities allowed in (0, 0.8) c
@@ -69,7 +98,8 @@ def _check(key, value, lo, hi, lo_open, hi_open, unit, where):
 
 @dataclass(frozen=True)
 class PowerLawPhotosphere:
-    """Empirical cooling blackbody.  Defaults: common practice for kilonovae
+    """Empirical cooling blackbody, its luminosity capped at the thermalized heating of
+    ``mass_msun`` (module docstring).  Defaults: common practice for kilonovae
     (about 5000 K at 1.5 days, reaching the 2500 K floor after 6 days,
     photospheric velocity 0.2 c at 1.5 days slowly receding, 0.1-0.3 c)."""
 
@@ -80,7 +110,7 @@ class PowerLawPhotosphere:
     velocity_ref_c: float = 0.2
     velocity_index: float = 0.3
     v_max_c: float = 0.35        # outer edge of the ejecta; the photosphere never lies outside it
-    mass_msun: float = 0.04      # total ejecta mass, used by line-strength estimates
+    mass_msun: float = 0.04      # total ejecta mass: line-strength estimates and the heating cap on L
 
     name = "powerlaw"
 
@@ -102,19 +132,29 @@ class PowerLawPhotosphere:
     def parameters(self) -> dict:
         return {key: getattr(self, key) for key, *_ in POWERLAW_RANGES}
 
+    def _velocity(self, t):
+        return np.minimum(self.velocity_ref_c * (t / self.t_ref_d) ** -self.velocity_index, self.v_max_c)
+
+    def heating_luminosity(self, age_d):
+        """Thermalized r-process power of the ejecta (mass_msun at velocity_ref_c), erg s^-1: the cap on L."""
+        return input_luminosity_erg_s(np.asarray(age_d, dtype=float), self.mass_msun, self.velocity_ref_c)
+
     def components(self, age_d):
-        """(T_K, R_cm, L_erg_s, v_phot_c), each shaped (1, n_epoch)."""
+        """(T_K, R_cm, L_erg_s, v_phot_c), each shaped (1, n_epoch); v_phot_c = R / (c t)."""
         t = np.asarray(age_d, dtype=float).reshape(1, -1)
-        x = t / self.t_ref_d
-        t_free = self.temperature_ref_K * x ** -self.temperature_index
-        v_free = np.minimum(self.velocity_ref_c * x ** -self.velocity_index, self.v_max_c)
-        r_free = v_free * C_CGS * t * DAY_S
-        lum = stefan_boltzmann_luminosity(t_free, r_free)
-        # at the floor the photosphere recedes into the ejecta and keeps L (floor prescription, common practice)
+        t_free = self.temperature_ref_K * (t / self.t_ref_d) ** -self.temperature_index
+        r_free = self._velocity(t) * C_CGS * t * DAY_S
+        l_free = stefan_boltzmann_luminosity(t_free, r_free)
+        lum = np.minimum(l_free, self.heating_luminosity(t))
+        # at the floor or the cap the photosphere recedes and keeps L (floor prescription, common practice)
         temp = np.maximum(t_free, self.temperature_floor_K)
-        radius = np.where(t_free >= self.temperature_floor_K, r_free,
-                          np.sqrt(lum / (4.0 * np.pi * SIGMA_SB_CGS * temp**4)))
+        free = (t_free >= self.temperature_floor_K) & (l_free <= lum)
+        radius = np.where(free, r_free, np.sqrt(lum / (4.0 * np.pi * SIGMA_SB_CGS * temp**4)))
         return temp, radius, lum, radius / (C_CGS * t * DAY_S)
+
+    def line_velocities(self, age_d):
+        """Line-forming velocity (c), shaped (1, n_epoch): the photospheric velocity law v(t)."""
+        return self._velocity(np.asarray(age_d, dtype=float).reshape(1, -1))
 
     def v_max(self, age_d):
         return np.full(np.shape(age_d), self.v_max_c)
@@ -189,6 +229,11 @@ class HeatingPhotosphere:
         radius = np.where(above, r_free, np.sqrt(lum / (4.0 * np.pi * SIGMA_SB_CGS * floor**4)))
         v_phot = radius / (C_CGS * t[None, :] * DAY_S)
         return temp, radius, lum, v_phot
+
+    def line_velocities(self, age_d):
+        """Line-forming velocity (c) of each component, shaped (n_comp, n_epoch): its ejecta velocity."""
+        t = np.asarray(age_d, dtype=float).ravel()
+        return np.repeat(np.array([[c.velocity_c] for c in self.ejecta]), t.size, axis=1)
 
     def v_max(self, age_d):
         return np.full(np.shape(age_d), max(c.velocity_c for c in self.ejecta))

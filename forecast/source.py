@@ -36,6 +36,10 @@ class PhotosphereState:
     with those; ``v_phot_c`` the luminosity-weighted mean photospheric
     velocity (R_i / t of each component, in c).  ``v_max_c`` is the outer
     ejecta velocity (the fastest component's velocity for ``heating``).
+    ``v_line_c`` is the line-forming velocity, where the spectral features form
+    (luminosity-weighted mean of the components' ``line_velocities``; see
+    ``kncast.forecast.photosphere``): it differs from ``v_phot_c`` once a
+    temperature floor or the heating cap shrinks the blackbody radius.
     """
 
     phase_d: np.ndarray
@@ -50,6 +54,8 @@ class PhotosphereState:
     comp_radius_cm: np.ndarray
     comp_luminosity_erg_s: np.ndarray
     comp_v_phot_c: np.ndarray
+    v_line_c: np.ndarray
+    comp_v_line_c: np.ndarray
 
 
 class Transient:
@@ -104,12 +110,14 @@ class Transient:
         total = lum.sum(axis=0)
         weights = lum / np.where(total > 0, total, 1.0)
         t_eff = (weights * temp).sum(axis=0)
+        v_line = np.asarray(self.photosphere.line_velocities(age), float)
         r_eff = np.sqrt(total / (4.0 * np.pi * SIGMA_SB_CGS * t_eff**4))
         return PhotosphereState(
             phase_d=phase, age_d=age, temperature_K=t_eff, radius_cm=r_eff, luminosity_erg_s=total,
             v_phot_c=(weights * v_phot).sum(axis=0), v_max_c=np.asarray(self.photosphere.v_max(age), float),
             component_names=self.component_names, comp_temperature_K=temp, comp_radius_cm=radius,
-            comp_luminosity_erg_s=lum, comp_v_phot_c=v_phot)
+            comp_luminosity_erg_s=lum, comp_v_phot_c=v_phot, v_line_c=(weights * v_line).sum(axis=0),
+            comp_v_line_c=v_line)
 
     def flux_flam(self, phase_d, wavelength_A) -> np.ndarray:
         """Observed F_lambda (erg s^-1 cm^-2 A^-1), shape (n_epoch, n_wave), at observed vacuum wavelengths."""
