@@ -73,6 +73,19 @@ def test_velocity_overrides():
         epochs_from(_epochs(), vmax_c=0.9)
 
 
+def test_features_form_at_the_models_line_forming_velocity():
+    # past the temperature floor / heating cap the blackbody radius recedes; the troughs and the LTE
+    # density follow the line-forming velocity instead (kncast.forecast.photosphere)
+    from kncast.forecast.photosphere import build_model
+    from kncast.forecast.source import Transient
+
+    for name in ("powerlaw", "heating"):
+        tr = Transient(build_model({"name": name}), distance_mpc=100.0)
+        st, ep = tr.state([1.0, 5.0]), epochs_from(tr, [1.0, 5.0])
+        assert np.array_equal(ep.v_phot_c, st.v_line_c)
+        assert st.v_phot_c[1] < st.v_line_c[1]
+
+
 def test_faster_ejecta_shift_troughs_bluer():
     slow = forecast_features(_epochs(1, 0.1, 0.2), None, None, [])
     fast = forecast_features(_epochs(1, 0.25, 0.4), None, None, [])
