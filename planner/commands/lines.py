@@ -98,9 +98,9 @@ def _check_against_model(args, state) -> None:
         i = int((args.vphot >= state.v_max_c).argmax())
         raise OptionError("--vphot", args.vphot, f"below the model's v_max {state.v_max_c[i]:.3f} c at "
                           f"{state.phase_d[i]:g} d (or give --vmax too)")
-    if args.vmax is not None and args.vphot is None and (args.vmax <= state.v_phot_c).any():
-        i = int((args.vmax <= state.v_phot_c).argmax())
-        raise OptionError("--vmax", args.vmax, f"above the model's v_phot {state.v_phot_c[i]:.3f} c at "
+    if args.vmax is not None and args.vphot is None and (args.vmax <= state.v_line_c).any():
+        i = int((args.vmax <= state.v_line_c).argmax())  # features form at the line-forming velocity
+        raise OptionError("--vmax", args.vmax, f"above the model's v_phot {state.v_line_c[i]:.3f} c at "
                           f"{state.phase_d[i]:g} d (or give --vphot too)")
 
 
