@@ -26,13 +26,11 @@ The estimate, evaluated at the photosphere of each epoch:
    the last factor being the LTE stimulated-emission correction
    1 - g_l n_u / (g_u n_l).
 
-Partition functions (stated approximation): U of each ion is the statistical
-weight of its ground term, (2S+1)(2L+1) -- all fine-structure levels of the
-ground term counted as if they sat at zero energy, all excited terms
-neglected.  A lower bound on the true U that is adequate for an order-of-
-magnitude tau at 2500-6000 K for ions with a simple ground term (Sr II,
-Ca II, Ba II) and low by factors of a few for open d- and f-shell ions
-(Zr, Y, Ce) (common practice for quick estimates).
+Partition functions U(T) of every ion come from :mod:`kncast.forecast.partition`:
+sums over the lowest NIST ASD levels (He, Ca, Sr, Ba), the published table of
+Gray 2005 (Y, Zr, Ce, Te, Cs I), or the ground-term weight (2S+1)(2L+1) from the
+atomic data file (stage IV and any ion in neither source).  They enter the Saha
+ratios and the Boltzmann populations at each epoch's temperature.
 
 Every kernel is plain numpy, vectorized over epochs (first axis), elements
 and lines.  Units: cgs inside; temperatures in K, energies in eV, times in d or s
@@ -49,6 +47,7 @@ from astropy import constants as const
 
 from kncast.forecast.datafiles import field, read_toml, table
 from kncast.forecast.errors import DataFileError, ForecastInputError, check_range
+from kncast.forecast.partition import PartitionData, PartitionFunctions
 
 __all__ = [
     "SOBOLEV_PREFACTOR_CM2_S", "SAHA_CONSTANT", "Composition", "LTEState",
@@ -95,7 +94,8 @@ class Composition:
 
     Arrays over the k elements: ``mass_fraction`` (sums to 1), ``mass_u``,
     ``chi_eV`` (k, 3; inf where a stage does not exist), ``partition`` (k, 4;
-    ground-term weights, see the module docstring).
+    ground-term weights, the fallback where no level list or table exists).
+    ``partition_functions(T)`` gives U(T), shape (n, k, 4).
     """
 
     elements: tuple[str, ...]
@@ -109,8 +109,12 @@ class Composition:
     path: str
 
     @classmethod
-    def load(cls, abundances_path=None, atoms_path=None) -> "Composition":
-        """Read an abundance table (default: the bundled illustrative mixture) and the atomic data."""
+    def load(cls, abundances_path=None, atoms_path=None, partition_data: PartitionData | None = None) -> "Composition":
+        """Read an abundance table (default: the bundled illustrative mixture) and the atomic data.
+
+        ``partition_data``: level lists and table for U(T) (default: the bundled files).
+        """
+    partition_model: PartitionFunctions | None = None
         ab_path = Path(abundances_path) if abundances_path is not None else ABUNDANCES_PATH
         at_path = Path(atoms_path) if atoms_path is not None else ATOMS_PATH
         atoms = _load_atoms(at_path)
@@ -137,7 +141,9 @@ class Composition:
         return cls(tuple(names), np.array(x) / total,
                    np.array([atoms[e][0] for e in names]),
                    np.array([atoms[e][1] for e in names]),
-                   np.array([atoms[e][2] for e in names]), float(n), float(v_in), str(source), str(ab_path))
+                   ground, float(n), float(v_in), str(source), str(ab_path),
+                   PartitionFunctions.for_elements(tuple(names), ground, partition_data))
+        ground = np.array([atoms[e][2] for e in names])
 
     def index(self, element: str) -> int:
         return self.elements.index(element)
@@ -146,6 +152,13 @@ class Composition:
 def _load_atoms(path: Path) -> dict:
     doc = read_toml(path)
     elements = table(doc, "element", path)
+    def partition_functions(self, temperature_K) -> np.ndarray:
+        """U(T) of stages I-IV of every element, shape (n, k, 4), at temperatures (n,) in K."""
+        t = np.atleast_1d(np.asarray(temperature_K, dtype=float))
+        if self.partition_model is None:
+            return np.broadcast_to(self.partition, t.shape + self.partition.shape)
+        return self.partition_model(t)
+
     out = {}
     for el, tab in elements.items():
         pre = f"element.{el}"
@@ -187,11 +200,13 @@ def saha_log_ratio(temperature_K, n_e_cm3, chi_eV, U_lower, U_upper):
 def ionization_fractions(temperature_K, n_e_cm3, chi_eV, partition):
     """Fractions in stages I-IV, shape (n_epochs, k_elements, 4); they sum to 1 per element.
 
-    ``temperature_K`` and ``n_e_cm3``: (n,); ``chi_eV``: (k, 3); ``partition``: (k, 4).
+    ``temperature_K`` and ``n_e_cm3``: (n,); ``chi_eV``: (k, 3); ``partition``: (k, 4), or
+    (n, k, 4) for U evaluated at each epoch's temperature.
     """
     t = np.asarray(temperature_K, dtype=float)[:, None, None]
     ne = np.asarray(n_e_cm3, dtype=float)[:, None, None]
-    u = np.asarray(partition, dtype=float)[None]
+    u = np.asarray(partition, dtype=float)
+    u = u[None] if u.ndim == 2 else u
     log_r = saha_log_ratio(t, ne, np.asarray(chi_eV, float)[None], u[..., :-1], u[..., 1:])
     log_n = np.concatenate([np.zeros(log_r.shape[:-1] + (1,)), np.cumsum(log_r, axis=-1)], axis=-1)
     log_n -= log_n.max(axis=-1, keepdims=True)
@@ -205,7 +220,8 @@ def solve_electron_density(temperature_K, n_atoms_cm3, chi_eV, partition, iterat
     ``n_atoms_cm3``: (n, k) number density of nuclei per element.  The electron
     supply sum_k n_k sum_j j f_kj(n_e) falls as n_e rises, so the root of
     supply(n_e) - n_e is unique; it lies between 1e-40 and 3 times the nuclei
-    density (at most three electrons per nucleus in stages I-IV).
+    density (at most three electrons per nucleus in stages I-IV).  ``partition``:
+    (k, 4) or (n, k, 4), as in :func:`ionization_fractions`.
     """
     t = np.asarray(temperature_K, dtype=float)
     n_k = np.asarray(n_atoms_cm3, dtype=float)
@@ -277,6 +293,7 @@ class LTEState:
     def fractions_of(self, element: str) -> np.ndarray:
         """(n, 4) ionization fractions of one element."""
         return self.fractions[:, self.composition.index(element), :]
+    partition: np.ndarray          # (n, k, 4): U(T) of stages I-IV
 
 
 def lte_state(temperature_K, age_d, v_phot_c, v_max_c, ejecta_mass_msun, composition: Composition) -> LTEState:
@@ -289,9 +306,10 @@ def lte_state(temperature_K, age_d, v_phot_c, v_max_c, ejecta_mass_msun, composi
         raise ForecastInputError("LTE estimate: need 0 < v_phot_c <= v_max_c at every epoch")
     rho = photospheric_density(mass_g, vp, vm, age_s, composition.density_index, composition.inner_velocity_c)
     n_atoms = rho[:, None] * composition.mass_fraction[None, :] / (composition.mass_u[None, :] * _M_U)
-    ne = solve_electron_density(t, n_atoms, composition.chi_eV, composition.partition)
-    frac = ionization_fractions(t, ne, composition.chi_eV, composition.partition)
-    return LTEState(t, age_s, rho, n_atoms, ne, frac, composition)
+    u = composition.partition_functions(t)
+    ne = solve_electron_density(t, n_atoms, composition.chi_eV, u)
+    frac = ionization_fractions(t, ne, composition.chi_eV, u)
+    return LTEState(t, age_s, rho, n_atoms, ne, frac, composition, u)
 
 
 def line_optical_depths(state: LTEState, element, ion_stage, gf, wavelength_A, E_low_eV) -> np.ndarray:
@@ -307,5 +325,5 @@ def line_optical_depths(state: LTEState, element, ion_stage, gf, wavelength_A, E
     k = np.array([comp.index(e) for e in element], dtype=int)
     j = np.asarray(ion_stage, dtype=int) - 1
     n_ion = state.n_atoms_cm3[:, k] * state.fractions[:, k, j]
-    u_ion = comp.partition[k, j][None, :]
+    u_ion = state.partition[:, k, j]
     return sobolev_tau(gf, wavelength_A, E_low_eV, n_ion, u_ion, state.temperature_K, state.age_s)
