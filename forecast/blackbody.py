@@ -77,5 +77,22 @@ def wien_peak_A(temperature_K):
     return const.b_wien.to_value("Angstrom K") / np.asarray(temperature_K, float)
 
 
-__all__ = ["planck_flam", "planck_sum_flam", "blackbody_luminosity_density", "stefan_boltzmann_luminosity", "wien_peak_A",
+def blackbody_intensity(wavelength, temperature):
+    """B_lambda(T) as a Quantity in erg s^-1 cm^-2 A^-1 sr^-1, for Quantity ``wavelength`` and ``temperature``.
+
+    The two broadcast against each other (e.g. ``temperature[:, None]`` against a wavelength grid).
+    """
+    import astropy.units as u
+
+    from kncast.forecast.errors import check_range
+    from kncast.forecast.units import FLAM, value_in
+
+    lam_A = value_in(wavelength, u.AA, "wavelength")
+    temp_K = value_in(temperature, u.K, "temperature")
+    check_range("wavelength", lam_A, 0.0, None, low_open=True, unit=" A")
+    check_range("temperature", temp_K, 0.0, None, low_open=True, unit=" K")
+    return planck_flam(lam_A, temp_K) * FLAM / u.sr
+
+
+__all__ = ["blackbody_intensity", "planck_flam", "planck_sum_flam", "blackbody_luminosity_density", "stefan_boltzmann_luminosity", "wien_peak_A",
            "SIGMA_SB_CGS", "C_CGS", "C_A_PER_S"]

@@ -20,7 +20,7 @@ import numpy as np
 from kncast.forecast.datafiles import field
 from kncast.forecast.errors import DataFileError
 
-__all__ = ["Telescope", "Spectrograph", "Arm", "Setup", "parse_telescopes", "DEFAULT_SETUP",
+__all__ = ["Telescope", "Spectrograph", "Arm", "Setup", "parse_telescopes", "load_telescopes", "DEFAULT_SETUP",
            "MIN_WAVELENGTH_A", "MAX_WAVELENGTH_A"]
 
 DEFAULT_SETUP = "default"  # id of the setup with every arm at its full range
@@ -181,6 +181,16 @@ def parse_telescopes(rows, path) -> tuple:
     out = [_telescope(row, f"telescope[{i}]", path) for i, row in enumerate(rows)]
     _unique([t.id for t in out], "telescope", "id", path)
     return tuple(out)
+
+
+def load_telescopes(path) -> tuple:
+    """The Telescope objects of a TOML file's ``[[telescope]]`` tables (a site file, or telescopes alone)."""
+    from kncast.forecast.datafiles import read_toml
+
+    doc = read_toml(path)
+    if "telescope" not in doc:
+        raise DataFileError(path, "telescope", "required key missing", "one or more [[telescope]] tables")
+    return parse_telescopes(doc["telescope"], path)
 
 
 def _telescope(row: dict, where: str, path) -> Telescope:

@@ -16,14 +16,16 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import astropy.units as u
 import numpy as np
 from astropy.cosmology import Planck18
 
-from kncast.forecast.blackbody import SIGMA_SB_CGS, planck_sum_flam
+from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, planck_sum_flam
 from kncast.forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
 from kncast.forecast.errors import ForecastInputError, check_range
 from kncast.forecast.extinction import transmission
 from kncast.forecast.photometry import ab_minus_vega, band_set
+from kncast.forecast.units import FLAM, value_in
 
 
 @dataclass(frozen=True)
@@ -64,10 +66,15 @@ class Transient:
     Give ``distance_mpc`` (luminosity distance) or ``redshift`` (or both,
     used as given); the other follows from ``cosmology`` (Planck18 by
     default).  ``ebv_mw``/``ebv_host`` are colour excesses E(B-V) in mag.
+    From Python, give the distance as a Quantity with ``distance=`` (e.g. ``40 * u.Mpc``).
     """
 
     def __init__(self, photosphere, distance_mpc=None, redshift=None, ebv_mw=0.0, ebv_host=0.0,
-                 cosmology=Planck18):
+                 cosmology=Planck18, *, distance=None):
+        if distance is not None:
+            if distance_mpc is not None:
+                raise ForecastInputError("distance and distance_mpc: give one of them, not both")
+            distance_mpc = value_in(distance, u.Mpc, "distance")
         if distance_mpc is None and redshift is None:
             raise ForecastInputError("distance needed: give --distance-mpc or distance_mpc in the event file")
         if redshift is None:
@@ -152,6 +159,48 @@ class Transient:
         bands = (bands,) if isinstance(bands, str) else tuple(bands)
         offsets = {b: ab_minus_vega(b) for b in bands}  # validate before computing
         return {b: m - offsets[b] for b, m in self.mag_ab(phase_d, bands).items()}
+
+    # ---------------------------------------------------------------- Quantity entry points
+
+    def spectrum(self, phase, wavelength) -> u.Quantity:
+        """Observed F_lambda at ``phase`` (time since t0, observer frame) and observed vacuum ``wavelength``.
+
+        Both are Quantities (any time / length unit), scalars or arrays; the result, in
+        erg s^-1 cm^-2 A^-1, has shape ``phase.shape + wavelength.shape`` (same numbers as
+        :meth:`flux_flam`).
+        """
+        phase_d, lam_A = value_in(phase, u.day, "phase"), value_in(wavelength, u.AA, "wavelength")
+        flux = self.flux_flam(phase_d, lam_A)
+        return (flux.reshape(np.shape(phase_d) + np.shape(lam_A))) * FLAM
+
+    def magnitudes(self, phase, bands, system: str = "AB") -> dict[str, u.Quantity]:
+        """Synthetic magnitudes per band (speclite names) at ``phase`` (Quantity): {band: Quantity}.
+
+        ``system`` "AB" gives ``u.ABmag``; "Vega" gives ``u.mag`` in the Vega system
+        (tabulated zero points).  Each value has the shape of ``phase``.
+        """
+        phase_d = value_in(phase, u.day, "phase")
+        key = str(system).strip().lower()
+        if key not in ("ab", "vega"):
+            raise ForecastInputError(f"system = {system!r}: allowed AB | Vega")
+        mags = (self.mag_ab if key == "ab" else self.mag_vega)(phase_d, bands)
+        unit = u.ABmag if key == "ab" else u.mag
+        return {b: m.reshape(np.shape(phase_d)) * unit for b, m in mags.items()}
+
+    def photosphere_at(self, phase) -> dict[str, u.Quantity]:
+        """The photosphere at ``phase`` (Quantity, observer frame) as Quantities of the shape of ``phase``.
+
+        Keys: ``phase``, ``age`` (rest frame) in d; ``temperature`` in K; ``radius`` in cm;
+        ``luminosity`` in erg/s; ``v_phot``, ``v_max`` in km/s (totals as in :meth:`state`).
+        """
+        phase_d = value_in(phase, u.day, "phase")
+        st = self.state(phase_d)
+        c_kms = C_CGS / 1e5
+        shape = np.shape(phase_d)
+        values = {"phase": (st.phase_d, u.day), "age": (st.age_d, u.day), "temperature": (st.temperature_K, u.K),
+                  "radius": (st.radius_cm, u.cm), "luminosity": (st.luminosity_erg_s, u.erg / u.s),
+                  "v_phot": (st.v_phot_c * c_kms, u.km / u.s), "v_max": (st.v_max_c * c_kms, u.km / u.s)}
+        return {k: np.asarray(v, float).reshape(shape) * unit for k, (v, unit) in values.items()}
 
 
 __all__ = ["Transient", "PhotosphereState"]

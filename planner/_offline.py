@@ -8,6 +8,9 @@ for the network:
   than astropy's default age are accepted.  Times beyond the end of the
   bundled predictions trigger *one* short warning line (see
   :func:`warn_if_beyond_iers`), never astropy's multi-line messages.
+  The settings are written into astropy's configuration for
+  ``astropy.utils.iers`` without importing that module (it pulls in
+  ``astropy.table``), so ``import kncast.planner`` stays light.
 * skyfield loads its ephemeris (DE421) from ``skyfield-data`` and builds its
   timescale from the *same* ``finals2000A.all`` file astropy uses, so UT1
   agrees between the two libraries.
@@ -19,13 +22,15 @@ import os
 import sys
 import warnings
 
-from astropy.utils import iers
+from astropy.config.configuration import get_config
 from astropy.utils.exceptions import AstropyWarning
 from erfa import ErfaWarning
 
-iers.conf.auto_download = False
-iers.conf.auto_max_age = None
-iers.conf.iers_degraded_accuracy = "ignore"
+# The same section ``iers.conf.<item> = value`` writes to; read by astropy.utils.iers whenever it looks.
+_IERS_CONF = get_config("astropy.utils.iers.iers")
+_IERS_CONF["auto_download"] = False
+_IERS_CONF["auto_max_age"] = None
+_IERS_CONF["iers_degraded_accuracy"] = "ignore"
 # The polar-motion fallback costs < 1 arcsec; our own one-line notice replaces it.
 warnings.filterwarnings("ignore", message=r".*(polar motions|IERS data is valid|IERS).*", category=AstropyWarning)
 
@@ -48,6 +53,8 @@ def iers_data_dir() -> str:
 @functools.lru_cache(maxsize=1)
 def iers_prediction_end_mjd() -> float:
     """Last MJD covered by the bundled IERS-A table (observed + predicted)."""
+    from astropy.utils import iers
+
     table = iers.IERS_Auto.open()
     return float(table["MJD"][-1].value)
 

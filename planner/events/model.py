@@ -46,6 +46,38 @@ class Event:
     candidates: tuple[Candidate, ...] = ()
     source: str = "command line"
 
+    @classmethod
+    def from_coord(cls, id: str, coord: SkyCoord, t0: Time, distance=None, *, redshift: float | None = None,
+                   ebv_mw: float = 0.0, ebv_host: float = 0.0, model: dict | None = None) -> "Event":
+        """An event from Python values: ``coord`` a SkyCoord (any frame), ``t0`` a Time (any scale),
+        ``distance`` a length Quantity (luminosity distance) and/or ``redshift``; ``model`` a
+        ``[model]``-style dict (docs/formats.md).  A bad value raises ParameterError naming it."""
+        from kncast.planner.errors import ParameterError
+
+        if not isinstance(coord, SkyCoord) or not coord.isscalar:
+            raise ParameterError("coord", coord, "one position as an astropy SkyCoord")
+        if not isinstance(t0, Time) or not t0.isscalar:
+            raise ParameterError("t0", t0, "one moment as an astropy Time")
+        t = Time(t0.utc, format="isot")
+        if not Time(T0_MIN) <= t <= Time(T0_MAX):
+            raise ParameterError("t0", t.isot, f"{T0_MIN} to {T0_MAX} (the ephemeris span)")
+        distance_mpc = None
+        if distance is not None:
+            try:
+                distance_mpc = float(u.Quantity(distance).to_value(u.Mpc))
+            except (u.UnitConversionError, TypeError, ValueError):
+                raise ParameterError("distance", distance, "a length Quantity, e.g. 40 * u.Mpc") from None
+        if distance_mpc is None and redshift is None:
+            raise ParameterError("distance", None, "a length Quantity, e.g. 40 * u.Mpc (or give redshift)")
+        check_distance(distance_mpc, redshift, "distance" if distance_mpc is not None else "redshift")
+        for name, value in (("ebv_mw", ebv_mw), ("ebv_host", ebv_host)):
+            if not 0.0 <= float(value) <= 10.0:
+                raise ParameterError(name, value, "0 to 10 mag")
+        icrs = coord.icrs
+        return cls(str(id), float(icrs.ra.deg), float(icrs.dec.deg), t, distance_mpc=distance_mpc,
+                   redshift=None if redshift is None else float(redshift), ebv_mw=float(ebv_mw),
+                   ebv_host=float(ebv_host), model=dict(model or {}), source="Python")
+
     @property
     def coord(self) -> SkyCoord:
         """ICRS position of the (primary) target."""
