@@ -107,6 +107,7 @@ class Composition:
     inner_velocity_c: float
     source: str
     path: str
+    partition_model: PartitionFunctions | None = None
 
     @classmethod
     def load(cls, abundances_path=None, atoms_path=None, partition_data: PartitionData | None = None) -> "Composition":
@@ -114,7 +115,6 @@ class Composition:
 
         ``partition_data``: level lists and table for U(T) (default: the bundled files).
         """
-    partition_model: PartitionFunctions | None = None
         ab_path = Path(abundances_path) if abundances_path is not None else ABUNDANCES_PATH
         at_path = Path(atoms_path) if atoms_path is not None else ATOMS_PATH
         atoms = _load_atoms(at_path)
@@ -138,20 +138,16 @@ class Composition:
         total = sum(x)
         if total <= 0:
             raise DataFileError(ab_path, "abundances.mass_fraction", "mass fractions sum to zero", "a positive sum")
+        ground = np.array([atoms[e][2] for e in names])
         return cls(tuple(names), np.array(x) / total,
                    np.array([atoms[e][0] for e in names]),
                    np.array([atoms[e][1] for e in names]),
                    ground, float(n), float(v_in), str(source), str(ab_path),
                    PartitionFunctions.for_elements(tuple(names), ground, partition_data))
-        ground = np.array([atoms[e][2] for e in names])
 
     def index(self, element: str) -> int:
         return self.elements.index(element)
 
-
-def _load_atoms(path: Path) -> dict:
-    doc = read_toml(path)
-    elements = table(doc, "element", path)
     def partition_functions(self, temperature_K) -> np.ndarray:
         """U(T) of stages I-IV of every element, shape (n, k, 4), at temperatures (n,) in K."""
         t = np.atleast_1d(np.asarray(temperature_K, dtype=float))
@@ -159,6 +155,10 @@ def _load_atoms(path: Path) -> dict:
             return np.broadcast_to(self.partition, t.shape + self.partition.shape)
         return self.partition_model(t)
 
+
+def _load_atoms(path: Path) -> dict:
+    doc = read_toml(path)
+    elements = table(doc, "element", path)
     out = {}
     for el, tab in elements.items():
         pre = f"element.{el}"
@@ -289,11 +289,11 @@ class LTEState:
     n_e_cm3: np.ndarray            # (n,)
     fractions: np.ndarray          # (n, k, 4): stages I-IV
     composition: Composition
+    partition: np.ndarray          # (n, k, 4): U(T) of stages I-IV
 
     def fractions_of(self, element: str) -> np.ndarray:
         """(n, 4) ionization fractions of one element."""
         return self.fractions[:, self.composition.index(element), :]
-    partition: np.ndarray          # (n, k, 4): U(T) of stages I-IV
 
 
 def lte_state(temperature_K, age_d, v_phot_c, v_max_c, ejecta_mass_msun, composition: Composition) -> LTEState:
