@@ -9,6 +9,11 @@ epoch by expected strength.
 Coverage and losses are evaluated over the whole P Cygni profile of a
 feature, absorption blue edge to emission red edge:
 [lambda_blue D(v_max), lambda_red / D(v_max)] x (1 + z).
+
+Non-LTE lines (``lte`` false in the line list: lower level above
+``NON_LTE_E_LOW_EV``, e.g. He I 10830) get no LTE estimate: their tau is nan, a
+feature with such a member reports ``lte`` = false and no tau, and ranks with the
+features of unknown strength (last), not as a weak one.
 """
 from __future__ import annotations
 
@@ -24,9 +29,11 @@ from kncast.forecast.linelist import Feature, LineList
 from kncast.forecast.lte import Composition, LTEState, line_optical_depths, lte_state
 
 __all__ = ["Epochs", "FeatureForecast", "epochs_from", "forecast_features", "strong_mask", "STAGE_NAMES",
-           "STRONG_TAU"]
+           "STRONG_TAU", "NON_LTE_NOTE"]
 
 STAGE_NAMES = ("I", "II", "III", "IV")
+#: What reports show instead of a tau for a non-LTE feature.
+NON_LTE_NOTE = "non-LTE: no LTE estimate"
 
 
 def strong_mask(tau) -> np.ndarray:
@@ -92,7 +99,7 @@ class FeatureForecast:
     epochs: Epochs
     features: list[Feature]
     windows: FeatureWindows                 # (n, F)
-    tau: np.ndarray                         # (n, F): strongest member; nan = no estimate
+    tau: np.ndarray                         # (n, F): strongest member; nan = no estimate (or non-LTE)
     tau_lines: np.ndarray                   # (n, m): every line
     trough_member: np.ndarray               # (n, F): line index setting the trough
     lte: LTEState
@@ -103,6 +110,11 @@ class FeatureForecast:
     verdict: np.ndarray                     # (n, F, S) str
     rank: np.ndarray                        # (n, F): feature indices, strongest first
     elements: tuple[str, ...] = field(default=())
+
+    @property
+    def lte_valid(self) -> np.ndarray:
+        """(F,) bool: False for non-LTE features (no LTE estimate; tau is nan)."""
+        return np.array([f.lte for f in self.features], dtype=bool)
 
     def epoch_rows(self) -> list[dict]:
         """JSON-ready rows, one per epoch, features ranked by tau (unknown strengths last)."""
@@ -123,6 +135,7 @@ class FeatureForecast:
                 "absorption_obs_A": [round(float(w.absorption_lo_A[i, f]), 1), round(float(w.absorption_hi_A[i, f]), 1)],
                 "emission_obs_A": [round(float(w.emission_lo_A[i, f]), 1), round(float(w.emission_hi_A[i, f]), 1)],
                 "tau_sobolev": _sig(self.tau[i, f]),
+                "lte": feat.lte,
                 "rank": r + 1,
                 "uncertain": feat.uncertain,
                 "members_tau_sobolev": [_sig(self.tau_lines[i, j]) for j in members],
@@ -196,6 +209,7 @@ def forecast_features(source, phases_d, linelist: LineList | None = None, setups
     lte = lte_state(ep.temperature_K, ep.age_d, ep.v_phot_c, ep.v_max_c, ep.ejecta_mass_msun, composition)
     tau_lines = line_optical_depths(lte, linelist.element, linelist.ion_stage, linelist.gf,
                                     linelist.wavelength_A, linelist.E_low_eV)
+    tau_lines = np.where(np.asarray(linelist.lte, dtype=bool)[None, :], tau_lines, np.nan)  # non-LTE: no estimate
 
     features = linelist.features()
     members = _member_matrix(features)                       # (F, M)
@@ -211,7 +225,8 @@ def forecast_features(source, phases_d, linelist: LineList | None = None, setups
     fallback = np.argmax(gf_score, axis=1)                    # strongest by gf, else the first listed
     best = np.where(known.any(axis=-1), np.argmax(score, axis=-1), fallback[None, :])
     trough_member = np.take_along_axis(np.broadcast_to(safe, tau_m.shape), best[..., None], axis=-1)[..., 0]
-    tau = np.where(known.any(axis=-1), score.max(axis=-1), np.nan)
+    feature_lte = np.array([f.lte for f in features], dtype=bool)
+    tau = np.where(known.any(axis=-1) & feature_lte[None, :], score.max(axis=-1), np.nan)
 
     windows = feature_windows(blue, red, linelist.wavelength_A[trough_member], ep.v_phot_c, ep.v_max_c, ep.redshift)
 

@@ -1,6 +1,6 @@
 """The diagnostic line list: loading, validation and grouping into blended features.
 
-The bundled list is ``forecast/data/lines.ecsv`` (schema in docs/formats.md, section "Line list");
+The bundled list is ``forecast/data/lines.ecsv`` (schema in README.md, section "Spectral features");
 users may pass their own ECSV file with the same columns.  Wavelengths are
 vacuum Angstrom.  Rows sharing a ``feature`` id are members of one blended
 feature (a multiplet, or lines close enough to merge at kilonova velocities).
@@ -24,14 +24,27 @@ _MEDIA = ("air", "vacuum", "unconfirmed")
 _CONFIDENCE = ("checked", "memory")
 _ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.+-]*$")
 
+#: Lines whose lower level lies above this excitation energy get no LTE estimate (``lte`` = false).
+#: At kilonova photospheres after the first day (T <= 6000 K, kT <= 0.52 eV) such a level holds an
+#: LTE population below exp(-5 / 0.52) = 7e-5 of its ion's ground level, so non-thermal channels
+#: (fast electrons from radioactive decay, recombination) set it instead; the classic case is He I
+#: from the 19.8 eV metastable 2s 3S level in radioactive ejecta (Lucy 1991, ApJ 383, 308; from
+#: memory).  Every lower level of the bundled metal lines lies below 2 eV.
+NON_LTE_E_LOW_EV = 5.0
+
 # name: (kind, required)
 _COLUMNS = {
     "feature": (str, True), "species": (str, True), "element": (str, True), "ion_stage": (int, True),
     "wavelength_A": (float, True), "E_low_eV": (float, True), "log_gf": (float, True),
     "source": (str, True), "published_A": (float, False), "published_medium": (str, False),
     "A_ul_s": (float, False), "g_low": (int, False), "g_up": (int, False), "multiplet": (str, False),
-    "uncertain": (bool, False), "confidence": (str, False), "note": (str, False),
+    "uncertain": (bool, False), "confidence": (str, False), "note": (str, False), "lte": (bool, False),
 }
+
+
+def lte_applies(E_low_eV) -> np.ndarray:
+    """The rule behind the ``lte`` column: True where E_low <= :data:`NON_LTE_E_LOW_EV` (eV)."""
+    return np.asarray(E_low_eV, dtype=float) <= NON_LTE_E_LOW_EV
 
 
 def gf_from_einstein_a(a_ul_s, g_up, wavelength_A):
@@ -56,6 +69,7 @@ class Feature:
     members: tuple[int, ...]
     rest_vac_A: tuple[float, ...]
     uncertain: bool
+    lte: bool = True        # False: a member line is non-LTE (no LTE strength estimate)
 
 
 class LineList:
@@ -63,7 +77,9 @@ class LineList:
 
     Attributes (numpy arrays of length n_lines): ``feature``, ``species``,
     ``element``, ``ion_stage``, ``wavelength_A`` (vacuum), ``E_low_eV``,
-    ``gf`` (g_low * f; nan where unknown), ``uncertain``, ``source``, ``note``.
+    ``gf`` (g_low * f; nan where unknown), ``uncertain``, ``source``, ``note``,
+    ``lte`` (False: non-LTE line, no LTE estimate; from the file's ``lte`` column, else
+    from :func:`lte_applies`).
     """
 
     def __init__(self, columns: dict, path):
@@ -71,6 +87,8 @@ class LineList:
         for name, values in columns.items():
             setattr(self, name, values)
         self.gf = columns["gf"]
+        if "lte" not in columns:
+            self.lte = lte_applies(columns["E_low_eV"])
 
     def __len__(self) -> int:
         return len(self.wavelength_A)
@@ -93,6 +111,7 @@ class LineList:
             raise DataFileError(path, "", "no lines in the file")
         cols.setdefault("uncertain", np.zeros(n, bool))
         cols.setdefault("note", np.array([""] * n, dtype=object))
+        cols.setdefault("lte", lte_applies(cols["E_low_eV"]))
         _check_rows(cols, path)
         cols["gf"] = _gf(cols, path)
         return cls(cols, path)
@@ -111,7 +130,7 @@ class LineList:
                                         "feature ids unique across line lists")
                 seen[fid] = ll.path
         names = ("feature", "species", "element", "ion_stage", "wavelength_A", "E_low_eV", "log_gf", "gf",
-                 "source", "uncertain", "note")
+                 "source", "uncertain", "note", "lte")
         cols = {n: np.concatenate([np.asarray(getattr(ll, n)) for ll in lists]) for n in names}
         for n in ("feature", "species", "element", "source", "note"):
             cols[n] = cols[n].astype(object)
@@ -124,7 +143,7 @@ class LineList:
             idx = tuple(int(i) for i in np.flatnonzero(self.feature == fid))
             species = " + ".join(dict.fromkeys(self.species[list(idx)]))
             out.append(Feature(fid, species, idx, tuple(float(self.wavelength_A[i]) for i in idx),
-                               bool(np.any(self.uncertain[list(idx)]))))
+                               bool(np.any(self.uncertain[list(idx)])), bool(np.all(self.lte[list(idx)]))))
         return out
 
 

@@ -6,8 +6,10 @@ is an air or a vacuum wavelength (``published_medium``: air | vacuum |
 unconfirmed).  This script recomputes ``wavelength_A`` (vacuum, the column
 kncast uses) with the IAU standard air-to-vacuum conversion (Morton 2000,
 ApJS 130, 403; ``kncast.forecast.airvac.air_to_vac``), rounded to 0.001 A; vacuum
-and unconfirmed values are copied unchanged.  It also rewrites the column
-descriptions and the file's provenance notes.
+and unconfirmed values are copied unchanged.  It sets the ``lte`` flag of every
+row from the rule ``kncast.forecast.linelist.lte_applies`` (lower level at most
+``NON_LTE_E_LOW_EV`` = 5 eV above the ground: LTE estimate; higher: non-LTE, no
+estimate), and rewrites the column descriptions and the file's provenance notes.
 
     python forecast/data/make_lines.py [path/to/lines.ecsv]
 """
@@ -20,6 +22,7 @@ import numpy as np
 from astropy.table import Table
 
 from kncast.forecast.airvac import air_to_vac
+from kncast.forecast.linelist import NON_LTE_E_LOW_EV, lte_applies
 
 HERE = Path(__file__).resolve().parent
 
@@ -38,6 +41,7 @@ DESCRIPTIONS = {
     "g_up": "statistical weight of the upper level (0 = not needed/not given)",
     "multiplet": "transition array label (configurations and terms; from memory, descriptive only)",
     "uncertain": "true when the wavelength or identification is not checked in a published source",
+    "lte": f"false = non-LTE line, no LTE strength estimate (set by make_lines.py: E_low_eV > {NON_LTE_E_LOW_EV:g})",
     "confidence": "checked | memory (see REFERENCES notes in the README section Spectral features)",
     "source": "where the wavelength and strength come from",
     "note": "remarks",
@@ -52,6 +56,8 @@ COMMENTS = [
     "Lanthanide lines (e.g. Ce III near 1.6 micron) are left out: no individual wavelength could be",
     "checked in a published source.",
     "Never edit wavelength_A by hand: edit published_A / published_medium and rerun make_lines.py.",
+    f"lte = false marks lines from levels more than {NON_LTE_E_LOW_EV:g} eV above the ground (He I 10830, 19.8 eV):",
+    "LTE does not apply there, so kncast reports 'non-LTE: no LTE estimate' instead of a Sobolev tau.",
 ]
 
 
@@ -61,6 +67,11 @@ def regenerate(path: Path) -> Table:
     air = np.asarray(table["published_medium"]) == "air"
     vacuum = np.where(air, air_to_vac(published), published)
     table["wavelength_A"] = np.round(vacuum, 3)
+    flag = lte_applies(table["E_low_eV"])
+    if "lte" in table.colnames:
+        table["lte"] = flag
+    else:
+        table.add_column(flag, name="lte", index=table.colnames.index("uncertain") + 1)
     for name, text in DESCRIPTIONS.items():
         table[name].description = text
     table["wavelength_A"].unit = table["published_A"].unit = "Angstrom"

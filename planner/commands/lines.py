@@ -38,7 +38,7 @@ def add_arguments(p) -> None:
                    help=f"outer ejecta velocity, fraction of c, in (0, {MAX_VELOCITY_C:g}), above --vphot")
     d = p.add_argument_group("line data")
     d.add_argument("--lines", action="append", metavar="FILE",
-                   help="your own line list (ECSV, schema in docs/formats.md, Line list), added to the bundled list (repeatable)")
+                   help="your own line list (ECSV, schema in the README section Spectral features), added to the bundled list (repeatable)")
     d.add_argument("--only-lines", action="store_true", help="use only the --lines files, not the bundled list")
     d.add_argument("--abundances", metavar="FILE",
                    help="element mass fractions (TOML like forecast/data/abundances.toml; default: the bundled "
@@ -125,7 +125,7 @@ def compute(args):
 
 
 def lines_document(event, transient, result, args, linelist) -> dict:
-    """The ``--json`` document (schema in docs/json.md, section "lines")."""
+    """The ``--json`` document (schema in README.md, section "Spectral features")."""
     from kncast.planner.output import document
 
     comp = result.lte.composition
@@ -138,9 +138,18 @@ def lines_document(event, transient, result, args, linelist) -> dict:
         "density_index": comp.density_index, "inner_velocity_c": comp.inner_velocity_c,
         "wavelengths": "vacuum Angstrom; observed frame except rest_vac_A",
         "coverage_window": "whole P Cygni profile: absorption_obs_A[0] .. emission_obs_A[1]",
+        "non_lte_rule": _non_lte_rule(),
     }
     return document("lines", event=event.summary(), model={"name": transient.photosphere.name},
                     settings=settings, setups=result.setup_ids, epochs=result.epoch_rows(), caution=CAUTION)
+
+
+def _non_lte_rule() -> str:
+    from kncast.forecast.features import NON_LTE_NOTE
+    from kncast.forecast.linelist import NON_LTE_E_LOW_EV
+
+    return (f"'{NON_LTE_NOTE}' (lte = false, tau null) for lines from levels more than {NON_LTE_E_LOW_EV:g} eV "
+            "above the ground, where LTE does not apply; ranked with the unknown strengths")
 
 
 def run(args) -> int:
@@ -167,8 +176,13 @@ _STYLE = {"clear": "green", "partly hidden": "yellow", "hidden by atmosphere": "
           "in detector gap": "red", "outside coverage": "dim"}
 
 
-def _tau(t) -> str:
-    return "n/a" if t is None else f"{t:.3g}"
+def _tau(f) -> str:
+    """The tau cell of a feature record: its tau, the non-LTE note, or n/a (no estimate)."""
+    from kncast.forecast.features import NON_LTE_NOTE
+
+    if not f.get("lte", True):
+        return NON_LTE_NOTE
+    return "n/a" if f["tau_sobolev"] is None else f"{f['tau_sobolev']:.3g}"
 
 
 def _span(lo_hi) -> str:
@@ -212,7 +226,7 @@ def print_tables(event, doc, n_setups: int) -> None:
             table.add_column("best setup (usable %)", justify="left")
         for f in ep["features"]:
             name = f["feature"] + (" [dim](uncertain)[/dim]" if f["uncertain"] else "")
-            cells = [str(f["rank"]), name, escape(f["species"]), _tau(f["tau_sobolev"]), f"{f['trough_obs_A']:.0f}",
+            cells = [str(f["rank"]), name, escape(f["species"]), _tau(f), f"{f['trough_obs_A']:.0f}",
                      _span(f["absorption_obs_A"]), _span(f["emission_obs_A"])]
             if detailed:
                 cells += [_detail(s) for s in f["setups"]]
@@ -224,7 +238,8 @@ def print_tables(event, doc, n_setups: int) -> None:
         out.print(table)
         if not detailed:
             _print_matrix(out, ep)
-    out.print("[dim]tau: Sobolev optical depth of the strongest member (LTE estimate). Per setup: verdict, then "
+    out.print("[dim]tau: Sobolev optical depth of the strongest member (LTE estimate); "
+              f"{_non_lte_rule()}. Per setup: verdict, then "
               "% of the whole P Cygni profile on the detector / % lost to telluric bands.[/dim]")
     out.print(f"[dim]{CAUTION}[/dim]")
 

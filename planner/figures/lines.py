@@ -6,7 +6,8 @@ peak in the plotted range) over grey telluric bands whose darkness is their
 absorbed fraction at the chosen airmass and water vapour.  Under it, one lane
 per feature (strongest first): a blue bar for the absorption window with a
 tick at the expected trough, an orange bar for the emission window with a
-tick at the rest-frame peak, and the Sobolev tau at the left.  A last panel
+tick at the rest-frame peak, and the Sobolev tau at the left (or the non-LTE
+note for lines where LTE does not apply).  A last panel
 draws each setup's detector coverage (arms as bars, gaps left blank), so a
 window can be followed straight down to the setups that record it.
 """
@@ -35,6 +36,8 @@ def _telluric_spans(ax, tellurics, airmass, pwv_mm, ymin, ymax):
 
 
 def _epoch_panel(ax, result, i, lam, flux, tellurics, airmass, pwv_mm):
+    from kncast.forecast.features import NON_LTE_NOTE
+
     order = result.rank[i][:MAX_FEATURES_DRAWN]
     n_lanes = len(order)
     bottom = -LANE * (n_lanes + 0.6)
@@ -54,7 +57,8 @@ def _epoch_panel(ax, result, i, lam, flux, tellurics, airmass, pwv_mm):
                 alpha=alpha)
         ax.plot([w.trough_A[i, f]] * 2, [y - 0.06, y + 0.06], color="k", lw=1.2, zorder=5)
         ax.plot([w.emission_peak_A[i, f]] * 2, [y - 0.08, y + 0.01], color="#7a3d00", lw=1.0, zorder=5)
-        label = f"{result.features[f].id}  " + (f"τ = {tau:.2g}" if np.isfinite(tau) else "τ n/a")
+        label = f"{result.features[f].id}  " + (f"τ = {tau:.2g}" if np.isfinite(tau) else
+                                                 "τ n/a" if result.features[f].lte else NON_LTE_NOTE)
         if e1 < right_limit:
             ax.text(e1 * 1.01, y - 0.015, label, ha="left", va="center", fontsize=7, zorder=6)
         else:

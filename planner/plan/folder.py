@@ -4,7 +4,7 @@ Tables are written with astropy's ECSV writer (units in the column
 metadata) so ``astropy.table.Table.read(path)`` gives them back; figures
 are PNG files under ``figures/`` drawn by the plot functions of the
 visibility, photosphere, line and exposure modules.  Column lists are in
-docs/commands/plan.md, section "ECSV columns".
+README.md, section "The campaign plan".
 """
 from __future__ import annotations
 

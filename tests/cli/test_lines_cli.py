@@ -11,7 +11,7 @@ SETUP = "maunakea/t10m/nir-xd"
 TOP_KEYS = {"kncast", "kind", "event", "epochs"}
 EPOCH_KEYS = {"phase_d", "temperature_K", "v_phot_c", "v_max_c", "features"}
 FEATURE_KEYS = {"feature", "species", "rest_vac_A", "trough_obs_A", "absorption_obs_A", "emission_obs_A",
-                "tau_sobolev", "setups"}
+                "tau_sobolev", "lte", "setups"}
 SETUP_KEYS = {"setup", "coverage", "gap_loss", "telluric_loss", "verdict"}
 VERDICTS = {"clear", "partly hidden", "hidden by atmosphere", "in detector gap", "outside coverage"}
 
@@ -62,6 +62,19 @@ def test_terminal_tables(run_cli):
     status, out, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP)
     assert status == 0, err
     assert "sr2-nir" in out and SETUP in out and "day 2" in out
+    he = next(line for line in out.splitlines() if "he1-10830" in line)
+    assert "non-LTE: no LTE estimate" in he     # in the tau column, instead of a number
+
+
+def test_non_lte_line_has_no_tau(doc):
+    # He I 10830: lower level 19.8 eV, LTE does not apply (forecast.linelist.NON_LTE_E_LOW_EV)
+    for ep in doc["epochs"]:
+        he = next(f for f in ep["features"] if f["feature"] == "he1-10830")
+        assert he["lte"] is False and he["tau_sobolev"] is None
+        assert all(isinstance(f["lte"], bool) for f in ep["features"])
+        n_known = sum(f["tau_sobolev"] is not None for f in ep["features"])
+        assert he["rank"] > n_known            # ranked with the unknown strengths, not as a weak line
+    assert "non-LTE" in doc["settings"]["non_lte_rule"]
 
 
 def test_all_setups_by_default_and_plot(run_cli, tmp_path):

@@ -113,3 +113,23 @@ def test_model_photosphere_at_the_outer_edge_is_allowed():
 def test_rounding_overshoot_of_the_model_photosphere_is_clipped():
     ep = epochs_from(_epochs(2, 0.35 * (1 + 1e-12), 0.35))
     assert np.all(ep.v_phot_c <= ep.v_max_c)
+
+
+def test_non_lte_feature_has_no_tau_and_ranks_with_the_unknowns():
+    # He I 10830 (lower level 19.8 eV, lte = false): no LTE estimate, not a "weak" line
+    from kncast.forecast.features import NON_LTE_NOTE
+
+    fc = forecast_features(_epochs(3), None, None, [])
+    ids = [f.id for f in fc.features]
+    he = ids.index("he1-10830")
+    assert not fc.lte_valid[he] and fc.lte_valid[ids.index("sr2-nir")]
+    assert np.all(np.isnan(fc.tau[:, he])) and np.all(np.isnan(fc.tau_lines[:, list(fc.features[he].members)]))
+    for i in range(3):
+        order = list(fc.rank[i])
+        n_known = int(np.isfinite(fc.tau[i]).sum())
+        assert order.index(he) >= n_known
+    rows = fc.epoch_rows()
+    rec = next(f for f in rows[0]["features"] if f["feature"] == "he1-10830")
+    assert rec["lte"] is False and rec["tau_sobolev"] is None and rec["members_tau_sobolev"] == [None] * 3
+    assert all(f["lte"] for f in rows[0]["features"] if f["feature"] != "he1-10830")
+    assert NON_LTE_NOTE == "non-LTE: no LTE estimate"

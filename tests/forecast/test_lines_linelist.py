@@ -97,3 +97,36 @@ def test_blend_members_too_far_apart(tmp_path, text):
     content, _ = _replace_row(text, "te3-21050", "te3-21050", "sr2-uv")
     with pytest.raises(DataFileError, match=r"blend 'sr2-uv' spans members too far apart"):
         LineList.load(_write(tmp_path, content))
+
+
+def test_lte_flag_follows_the_rule_and_marks_he_i():
+    # The bundled lte column is what make_lines.py writes: lte_applies(E_low_eV) (lower level <= 5 eV).
+    # He I 10830 arises from the 19.82 eV 2s 3S level (NIST ASD), populated non-thermally in radioactive
+    # ejecta (Lucy 1991, ApJ 383, 308; from memory): no LTE estimate.
+    from kncast.forecast.linelist import NON_LTE_E_LOW_EV, lte_applies
+
+    ll = LineList.load()
+    assert np.array_equal(ll.lte, lte_applies(ll.E_low_eV))
+    assert set(ll.feature[~ll.lte]) == {"he1-10830"}
+    assert np.all(ll.E_low_eV[ll.lte] <= NON_LTE_E_LOW_EV)
+    feats = {f.id: f for f in ll.features()}
+    assert not feats["he1-10830"].lte and feats["sr2-nir"].lte and feats["cs1-d"].lte
+
+
+def test_lte_flag_from_the_file_or_the_rule(tmp_path):
+    # without an lte column the rule applies; with one, the file's flag is used as given
+    from astropy.table import Table
+
+    t = Table.read(DEFAULT_PATH, format="ascii.ecsv")
+    t.remove_column("lte")
+    t.write(tmp_path / "no_lte.ecsv", format="ascii.ecsv")
+    ll = LineList.load(tmp_path / "no_lte.ecsv")
+    assert len(ll) == len(LineList.load()) and set(ll.feature[~ll.lte]) == {"he1-10830"}
+    one = Table.read(DEFAULT_PATH, format="ascii.ecsv")[:1]
+    one["feature"] = ["my-sr2"]
+    one["lte"] = [False]
+    one.write(tmp_path / "mine.ecsv", format="ascii.ecsv")
+    mine = LineList.load(tmp_path / "mine.ecsv")
+    assert not mine.lte[0] and not mine.features()[0].lte
+    merged = LineList.merge([LineList.load(), mine])
+    assert merged.lte.size == len(merged) and not merged.lte[-1] and merged.lte[0]
