@@ -85,10 +85,45 @@ def test_transmission_monotonic_in_airmass_and_pwv(model):
 
 
 def test_reference_state_reproduces_tabulated_depths(model):
-    mid = 0.5 * (np.asarray(model.bands["min_A"]) + np.asarray(model.bands["max_A"]))
+    lo, hi = np.asarray(model.bands["min_A"]), np.asarray(model.bands["max_A"])
+    mid = 0.5 * (lo + hi)
     t = model.transmission(mid)
-    # rows do not overlap in the bundled table, so each band's centre shows its own depth
-    assert np.allclose(1 - t, model.bands["depth"])
+    # each band's centre shows the product of the transmissions 1 - depth of every row covering it
+    # (the file's rule: overlapping rows multiply); only the CO2 2.01 micron band overlaps a water row
+    inside = (mid[:, None] >= lo[None, :]) & (mid[:, None] < hi[None, :])
+    expected = np.prod(np.where(inside, 1 - np.asarray(model.bands["depth"])[None, :], 1.0), axis=1)
+    assert np.allclose(t, expected)
+    overlapping = {model.bands["id"][i] for i in np.flatnonzero(inside.sum(axis=1) > 1)}
+    assert overlapping == {"co2-2010"}
+
+
+# CO2 Fermi-triad combination bands near 2 micron, band origins in cm^-1 (HITRAN line list,
+# Gordon et al. 2022, JQSRT 277, 107949; from memory): (20012) 4977.8 -> 2.0089 micron,
+# (20013) 4853.6 -> 2.0603 micron (vacuum: 1e8 / wavenumber).  At atmospheric temperatures the
+# P and R branches of a CO2 band reach about +-(30-45) cm^-1 from the origin (B = 0.39 cm^-1,
+# J up to ~50; common practice, from memory).
+@pytest.mark.parametrize("band_id,origin_cm1", [("co2-2010", 4977.8), ("co2-2060", 4853.6)])
+def test_co2_bands_near_2_micron(model, band_id, origin_cm1):
+    lo, hi = _band(model, band_id)
+    row = model.bands[list(model.bands["id"]).index(band_id)]
+    assert row["species"] == "CO2" and row["scaling"] == "airmass"   # well mixed: no water-vapour scaling
+    assert lo < 1e8 / origin_cm1 < hi
+    half_widths = (1e8 / lo - origin_cm1, origin_cm1 - 1e8 / hi)   # R and P branch extents, cm^-1
+    assert all(30.0 <= w <= 45.0 for w in half_widths)
+    centre = np.array([1e8 / origin_cm1])
+    # absorbs at every airmass, more with airmass, independent of precipitable water
+    t = model.transmission(centre, airmass=np.array([[1.0], [2.0]]), pwv_mm=np.array([[0.5], [10.0]]))
+    if band_id == "co2-2060":   # outside every water row: water vapour changes nothing
+        assert model.transmission(centre, pwv_mm=0.5) == pytest.approx(model.transmission(centre, pwv_mm=10.0))
+    assert np.all(t < 1.0) and t[1, 0] < model.transmission(centre, airmass=1.0, pwv_mm=10.0)[0]
+
+
+def test_co2_2060_band_sits_inside_the_k_window(model):
+    # MKO K half-power window 2.03-2.37 micron (Tokunaga, Simons & Vacca 2002, PASP 114, 180; from memory):
+    # the 2.06 micron CO2 band is a dip inside the window, not part of the H-K water gap
+    lo, hi = _band(model, "co2-2060")
+    assert 20300.0 < lo < hi < 23700.0
+    assert model.transmission([20350.0, 20900.0]) == pytest.approx([1.0, 1.0])
 
 
 def test_loss_fraction_is_mean_absorption(model):
