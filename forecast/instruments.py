@@ -3,7 +3,7 @@
 A site file may hold ``[[telescope]]`` tables, each with one or more
 ``[[telescope.instrument]]`` (a spectrograph) made of
 ``[[telescope.instrument.arm]]`` tables and optional named
-``[[telescope.instrument.setup]]`` choices (schema in README.md, section "Instruments, telluric bands and coverage").
+``[[telescope.instrument.setup]]`` choices (schema in docs/formats.md, section "Telescopes, instruments, arms and setups").
 
 Wavelengths are vacuum Angstrom.  Throughput tables are the total
 telescope + instrument + detector efficiency (no atmosphere: that is

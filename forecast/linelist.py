@@ -1,6 +1,6 @@
 """The diagnostic line list: loading, validation and grouping into blended features.
 
-The bundled list is ``forecast/data/lines.ecsv`` (schema in README.md, section "Spectral features");
+The bundled list is ``forecast/data/lines.ecsv`` (schema in docs/formats.md, section "Line list");
 users may pass their own ECSV file with the same columns.  Wavelengths are
 vacuum Angstrom.  Rows sharing a ``feature`` id are members of one blended
 feature (a multiplet, or lines close enough to merge at kilonova velocities).

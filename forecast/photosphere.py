@@ -240,7 +240,7 @@ class HeatingPhotosphere:
 
 
 def build_model(config: dict | None = None, where: str = "[model]"):
-    """A photosphere model from a ``[model]``-style dict (see README.md, section "Photosphere and light-curve forecast" for the schema).
+    """A photosphere model from a ``[model]``-style dict (see docs/formats.md, section "The [model] table" for the schema).
 
     ``config["name"]`` selects ``powerlaw`` (default) or ``heating``; other
     keys are that model's parameters.  ``where`` prefixes error messages

@@ -1,7 +1,7 @@
 """Telluric absorption bands: transmission and band-weighted losses.
 
 The bands live in ``forecast/data/telluric_bands.ecsv`` (vacuum Angstrom,
-provenance per row; schema in README.md, section "Instruments, telluric bands and coverage").  Each band is a box:
+provenance per row; schema in docs/formats.md, section "Telluric bands").  Each band is a box:
 transmission ``T = exp(-tau)`` inside [min_A, max_A] and 1 outside;
 overlapping bands multiply (optical depths add).  A band of depth ``d`` at
 airmass 1 and 2.5 mm of precipitable water has ``tau0 = -ln(1 - d)`` and

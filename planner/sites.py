@@ -1,6 +1,6 @@
 """Observing sites: location, pointing limits, horizon profile, telescopes.
 
-One TOML file per site (schema in README.md, section "Site files").  The
+One TOML file per site (schema in docs/formats.md, section "Site files").  The
 bundled sites live in the top-level ``sites/`` folder (installed as the
 ``kncast.planner._sites`` package data); users add folders with ``--sites-dir``.
 A site id in a user folder replaces a bundled site of the same id.

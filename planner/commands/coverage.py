@@ -74,7 +74,7 @@ def _load(path):
 
 
 def coverage_document(result, t0) -> dict:
-    """The ``--json`` document (schema in README.md, section "Alerts")."""
+    """The ``--json`` document (schema in docs/json.md, section "coverage")."""
     from kncast.planner.output import document, iso_utc
 
     return document("coverage", map=result.skymap.summary(), t0_utc=iso_utc(t0), settings=result.settings,

@@ -150,7 +150,7 @@ def run(args) -> int:
 # ------------------------------------------------------------------ outputs
 
 def exposure_document(res: dict) -> dict:
-    """The ``--json`` document (schema in README.md, section "Exposure times and S/N")."""
+    """The ``--json`` document (schema in docs/json.md, section "exposure")."""
     from kncast.planner.output import document
 
     cond = res["conditions"]

@@ -59,7 +59,7 @@ def compute(args):
 
 
 def document_for(event, transient, state, bands, mags, vega) -> dict:
-    """The ``lightcurve`` JSON document (schema in README.md, section "Photosphere and light-curve forecast")."""
+    """The ``lightcurve`` JSON document (schema in docs/json.md, section "lightcurve")."""
     from kncast.planner.output import document
 
     multi = len(state.component_names) > 1

@@ -38,7 +38,7 @@ def add_arguments(p) -> None:
                    help=f"outer ejecta velocity, fraction of c, in (0, {MAX_VELOCITY_C:g}), above --vphot")
     d = p.add_argument_group("line data")
     d.add_argument("--lines", action="append", metavar="FILE",
-                   help="your own line list (ECSV, schema in the README section Spectral features), added to the bundled list (repeatable)")
+                   help="your own line list (ECSV, schema in docs/formats.md, Line list), added to the bundled list (repeatable)")
     d.add_argument("--only-lines", action="store_true", help="use only the --lines files, not the bundled list")
     d.add_argument("--abundances", metavar="FILE",
                    help="element mass fractions (TOML like forecast/data/abundances.toml; default: the bundled "
@@ -125,7 +125,7 @@ def compute(args):
 
 
 def lines_document(event, transient, result, args, linelist) -> dict:
-    """The ``--json`` document (schema in README.md, section "Spectral features")."""
+    """The ``--json`` document (schema in docs/json.md, section "lines")."""
     from kncast.planner.output import document
 
     comp = result.lte.composition

@@ -3,7 +3,7 @@
 Writes one output folder (default ``./kncast-out/<event id>/``), atomically:
 ``plan.json``, ``windows.ecsv``, ``features.ecsv``, ``exposures.ecsv``,
 ``figures/*.png``, ``report.md`` and a self-contained ``report.html``
-(layout and schema in README.md, section "The campaign plan").
+(layout in docs/commands/plan.md, schema in docs/json.md, section "plan").
 """
 from __future__ import annotations
 

@@ -27,7 +27,7 @@ def run(args) -> int:
 
 
 def setup_summary(ref) -> dict:
-    """JSON record of one setup (schema in README.md, section "Instruments, telluric bands and coverage")."""
+    """JSON record of one setup (schema in docs/json.md, section "setups")."""
     return {
         "setup": ref.id,
         "site": ref.site.id,

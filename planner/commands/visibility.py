@@ -56,7 +56,7 @@ def run(args) -> int:
 
 
 def visibility_document(result) -> dict:
-    """The ``--json`` document (schema in README.md, section "Visibility")."""
+    """The ``--json`` document (schema in docs/json.md, section "visibility")."""
     from kncast.planner.output import document
 
     return document("visibility", event=result.event.summary(), settings=result.settings(),

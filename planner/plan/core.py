@@ -25,7 +25,7 @@ can be measured; what limits the measurement is the signal at the trough.
 Usable time = min(window hours, ``max_hours``) minus the acquisition and
 readout overhead.
 
-The score (documented in README.md, section "The campaign plan")::
+The score (documented in docs/commands/plan.md, section "The score")::
 
     score = N_clear_strong x S/N_window
 
@@ -562,7 +562,7 @@ def iso(t):
 
 
 def plan_document(plan: Plan, files: dict | None = None, references=None, assumptions=None) -> dict:
-    """The ``plan.json`` document (schema in ``kncast.planner.plan.schema`` and README.md, section "The campaign plan")."""
+    """The ``plan.json`` document (schema in ``kncast.planner.plan.schema`` and docs/json.md, section "plan")."""
     from kncast.planner.output import document
     from kncast.planner.plan.report import CAUTIONS
 

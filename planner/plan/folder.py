@@ -4,7 +4,7 @@ Tables are written with astropy's ECSV writer (units in the column
 metadata) so ``astropy.table.Table.read(path)`` gives them back; figures
 are PNG files under ``figures/`` drawn by the plot functions of the
 visibility, photosphere, line and exposure modules.  Column lists are in
-README.md, section "The campaign plan".
+docs/commands/plan.md, section "ECSV columns".
 """
 from __future__ import annotations
 

@@ -1,7 +1,7 @@
 """The campaign report: ``report.md`` and a self-contained ``report.html``.
 
 Both files are rendered from the same list of blocks built from the
-``plan.json`` document (see README.md, section "The campaign plan"), so they always say the same
+``plan.json`` document (see docs/commands/plan.md, section "The report"), so they always say the same
 thing.  The HTML embeds every figure as a base64 ``data:image/png`` URI and
 carries its own small style sheet: it opens anywhere, offline, as one file.
 """

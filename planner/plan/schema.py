@@ -1,7 +1,7 @@
 """JSON Schema (draft 2020-12) of ``plan.json``, the document ``kncast plan`` writes.
 
 Kept as a Python dict (package data is limited to TOML/ECSV/... files).
-README.md, section "The campaign plan" describes every member in words.
+docs/json.md, section "plan" describes every member in words.
 """
 from __future__ import annotations
 

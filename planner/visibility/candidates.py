@@ -1,6 +1,6 @@
 """Several candidate positions: which to observe first, per site and night.
 
-An event file may list ``[[candidate]]`` positions (see README.md, section "Alerts").  For
+An event file may list ``[[candidate]]`` positions (see docs/formats.md, section "Candidates").  For
 every site and night, :func:`rank_candidates` orders them by observable hours
 in that night (sum of the window lengths from
 :func:`kncast.planner.visibility.core.compute_visibility`, all its rules applied, compared

@@ -1,6 +1,6 @@
 """The plan's own logic on hand-built cases: observing block, score, choice, reasons, campaign summary.
 
-These are kncast's definitions (README.md, section "The campaign plan", "How each night is planned" and "The score"),
+These are kncast's definitions (docs/commands/plan.md, sections "How each night is planned" and "The score"),
 checked on inputs small enough to work out by hand; no physics is involved.
 """
 from __future__ import annotations
