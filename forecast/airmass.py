@@ -12,6 +12,11 @@ import functools
 
 import numpy as np
 
+from kncast.forecast.references import KASTEN_YOUNG_1989
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (KASTEN_YOUNG_1989,)
+
 _A, _B, _C = 0.50572, 96.07995, 1.6364
 
 

@@ -17,6 +17,10 @@ from __future__ import annotations
 import numpy as np
 
 from kncast.forecast.errors import check_range
+from kncast.forecast.references import BIRCH_DOWNS_1994, MORTON_2000
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (MORTON_2000, BIRCH_DOWNS_1994)
 
 __all__ = ["air_to_vac", "vac_to_air", "refractive_index_air"]
 

@@ -18,6 +18,10 @@ from __future__ import annotations
 import numpy as np
 
 from kncast.forecast.errors import check_range
+from kncast.forecast.references import MERLINE_HOWELL_1995
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (MERLINE_HOWELL_1995,)
 
 SIGMA_F_ADU = 0.289  # 1/sqrt(12): rounding to whole ADU (Merline & Howell 1995)
 

@@ -1,10 +1,15 @@
-"""Luminosity distance <-> redshift with ``astropy.cosmology`` (Planck 2018 by default)."""
+"""Luminosity distance <-> redshift with ``astropy.cosmology`` (Planck 2018 by default:
+Planck Collaboration 2020, A&A 641, A6, as astropy's ``Planck18``)."""
 from __future__ import annotations
 
 import astropy.units as u
 from astropy.cosmology import Planck18, z_at_value
 
 from kncast.forecast.errors import ForecastInputError
+from kncast.forecast.references import PLANCK_2018
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (PLANCK_2018,)
 
 MPC_CM = (1 * u.Mpc).to_value(u.cm)
 DISTANCE_RANGE_MPC = (0.0, 1e5)

@@ -2,9 +2,10 @@
 
 For matter moving straight toward the observer at speed beta c the observed
 wavelength is lambda_0 D(beta) with D(beta) = sqrt((1 - beta) / (1 + beta))
-(the line-of-sight relativistic Doppler factor; e.g. Rybicki & Lightman 1979,
-eq. 4.11, from memory).  In homologous expansion the P Cygni absorption comes
-from matter in front of the photosphere moving toward us at v_ph .. v_max, so
+(the line-of-sight relativistic Doppler factor: Einstein 1905, Annalen der Physik
+17, 891, sect. 7; e.g. Rybicki & Lightman 1979, eq. 4.11; both from memory).  In
+homologous expansion the P Cygni absorption comes from matter in front of the
+photosphere moving toward us at v_ph .. v_max, so
 it spans lambda_0 D(v_max) .. lambda_0 with its minimum near lambda_0 D(v_ph);
 the emission comes from the whole envelope and spans lambda_0 .. lambda_0 /
 D(v_max) with its peak near lambda_0 (common practice).  Observed wavelengths
@@ -19,6 +20,10 @@ from dataclasses import dataclass
 import numpy as np
 
 from kncast.forecast.errors import ForecastInputError, check_range
+from kncast.forecast.references import EINSTEIN_1905
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (EINSTEIN_1905,)
 
 __all__ = ["doppler_factor", "FeatureWindows", "feature_windows", "MAX_BETA"]
 

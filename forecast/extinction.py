@@ -20,6 +20,10 @@ import functools
 import numpy as np
 
 from kncast.forecast.errors import check_range
+from kncast.forecast.references import FITZPATRICK_1999, FITZPATRICK_MASSA_2009
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (FITZPATRICK_1999, FITZPATRICK_MASSA_2009)
 
 R_V = 3.1
 X_MIN_PER_MICRON, X_MAX_PER_MICRON = 0.3, 10.0  # F99 validity in dust_extinction

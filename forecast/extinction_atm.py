@@ -29,6 +29,10 @@ import numpy as np
 
 from kncast.forecast.datafiles import field
 from kncast.forecast.errors import DataFileError, check_range
+from kncast.forecast.references import BURROWS_1999, HANSEN_TRAVIS_1974
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (HANSEN_TRAVIS_1974, BURROWS_1999)
 
 P0_HPA = 1013.25          # standard sea-level pressure (ISO 2533)
 SCALE_HEIGHT_M = 8000.0   # barometric scale height (common practice)

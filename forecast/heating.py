@@ -27,6 +27,11 @@ from __future__ import annotations
 import numpy as np
 from astropy import constants as const
 
+from kncast.forecast.references import ARNETT_1982, BARNES_2016, KOROBKIN_2012
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (KOROBKIN_2012, BARNES_2016, ARNETT_1982)
+
 DAY_S = 86400.0
 MSUN_G = const.M_sun.cgs.value
 C_CGS = const.c.cgs.value

@@ -14,8 +14,25 @@ from pathlib import Path
 import numpy as np
 
 from kncast.forecast.errors import DataFileError
+from kncast.forecast.references import (BIEMONT_2011, GALLAGHER_1967, HILBORN_1982, HOTOKEZAKA_2023, LJUNG_2006,
+                                        NIST_ASD, SAFRONOVA_SAFRONOVA_2011, STECK_CS)
 
-__all__ = ["LineList", "Feature", "DEFAULT_PATH", "gf_from_einstein_a"]
+# Published sources cited below (gf from an Einstein A), as data (records in kncast.forecast.references).
+REFERENCES = (HILBORN_1982,)
+# The works behind each ``source`` string of the bundled list (forecast/data/lines.ecsv).  A user's
+# list may name other sources: those are kept in its rows but have no citation record here.
+SOURCE_REFERENCES = {
+    "NIST ASD (via a published compilation)": (NIST_ASD,),
+    "NIST ASD (secondary)": (NIST_ASD,),
+    "Safronova et al. 2011": (SAFRONOVA_SAFRONOVA_2011,),
+    "Gallagher 1967": (GALLAGHER_1967,),
+    "Biemont et al. 2011": (BIEMONT_2011,),
+    "Ljung et al. 2006": (LJUNG_2006,),
+    "Steck, Cesium D line data": (STECK_CS,),
+    "recent kilonova literature (secondary)": (HOTOKEZAKA_2023,),
+}
+
+__all__ = ["LineList", "Feature", "DEFAULT_PATH", "gf_from_einstein_a", "REFERENCES", "SOURCE_REFERENCES"]
 
 DEFAULT_PATH = Path(__file__).resolve().parent / "data" / "lines.ecsv"
 
@@ -51,7 +68,8 @@ def gf_from_einstein_a(a_ul_s, g_up, wavelength_A):
     """g_low * f_lu from the Einstein A (s^-1) of a line at vacuum ``wavelength_A``.
 
     g_l f_lu = g_u A_ul m_e c lambda^2 / (8 pi^2 e^2) in Gaussian units
-    (e.g. Rybicki & Lightman 1979, Radiative Processes in Astrophysics, eq. 10.87; from memory).
+    (e.g. Rybicki & Lightman 1979, Radiative Processes in Astrophysics, eq. 10.87; Hilborn 1982,
+    American Journal of Physics 50, 982; from memory).
     """
     from astropy import constants as const
 
@@ -92,6 +110,11 @@ class LineList:
 
     def __len__(self) -> int:
         return len(self.wavelength_A)
+
+    def references(self) -> tuple:
+        """Citation records of the sources named in this list's rows (:data:`SOURCE_REFERENCES`), each once."""
+        cited = (c for src in dict.fromkeys(self.source) for c in SOURCE_REFERENCES.get(str(src), ()))
+        return tuple(dict.fromkeys(cited))
 
     @classmethod
     def load(cls, path=None) -> "LineList":

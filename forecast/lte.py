@@ -20,8 +20,8 @@ The estimate, evaluated at the photosphere of each epoch:
    n_e = sum_k n_k sum_j (j - 1) f_kj(n_e, T).
 3. Excitation.  Boltzmann population of the lower level:
    n_l = n_ion (g_l / U) exp(-E_l / k T).
-4. Line opacity.  Sobolev optical depth in homologous flow (Sobolev 1960; e.g.
-   Castor 1970, MNRAS 149, 111; Jeffery & Branch 1990; from memory):
+4. Line opacity.  Sobolev optical depth in homologous flow (Sobolev 1957, Soviet Astronomy
+   1, 678, and his 1960 book; e.g. Castor 1970, MNRAS 149, 111; Jeffery & Branch 1990; from memory):
    tau = (pi e^2 / m_e c) f lambda t n_l (1 - exp(-h c / lambda k T)),
    the last factor being the LTE stimulated-emission correction
    1 - g_l n_u / (g_u n_l).
@@ -48,6 +48,10 @@ from astropy import constants as const
 from kncast.forecast.datafiles import field, read_toml, table
 from kncast.forecast.errors import DataFileError, ForecastInputError, check_range
 from kncast.forecast.partition import PartitionData, PartitionFunctions
+from kncast.forecast.references import CASTOR_1970, JEFFERY_BRANCH_1990, SAHA_1920, SOBOLEV_1957
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (SAHA_1920, SOBOLEV_1957, CASTOR_1970, JEFFERY_BRANCH_1990)
 
 __all__ = [
     "SOBOLEV_PREFACTOR_CM2_S", "SAHA_CONSTANT", "Composition", "LTEState",

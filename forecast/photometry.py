@@ -27,6 +27,12 @@ import numpy as np
 from kncast.forecast.blackbody import C_A_PER_S
 from kncast.forecast.defaults import DEFAULT_BANDS
 from kncast.forecast.errors import ForecastInputError
+from kncast.forecast.references import BESSELL_CASTELLI_PLEZ_1998, COHEN_WHEATON_MEGEATH_2003, OKE_GUNN_1983
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (OKE_GUNN_1983,)
+# Provenance of the Vega zero points (forecast/data/vega_zero_points.toml, its 'source' per band).
+VEGA_REFERENCES = (BESSELL_CASTELLI_PLEZ_1998, COHEN_WHEATON_MEGEATH_2003)
 
 AB_ZERO_POINT_JY = 3631.0
 _JY_CGS = 1e-23  # erg s^-1 cm^-2 Hz^-1

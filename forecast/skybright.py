@@ -1,7 +1,7 @@
 """Night-sky surface brightness: dark sky by band plus scattered moonlight.
 
 Dark sky (mag/arcsec^2, Vega system, zenith, solar minimum): Benn & Ellison
-(1998, La Palma Technical Note 115) U 22.0, B 22.7, V 21.9, R 21.0, I 20.0;
+(1998, La Palma Technical Note 115; in short in New Astronomy Reviews 42, 503) U 22.0, B 22.7, V 21.9, R 21.0, I 20.0;
 near-IR J 16.0, H 14.0, K 13.0 (common practice; OH lines and, in K, thermal
 emission).  Each band value is converted to AB with the offsets of Blanton &
 Roweis (2007, AJ 133, 734; U..I) and near-IR offsets J +0.91, H +1.39, K +1.85
@@ -31,6 +31,10 @@ from pathlib import Path
 import numpy as np
 
 from kncast.forecast.errors import DataFileError, ForecastInputError, check_range
+from kncast.forecast.references import BENN_ELLISON_1998, BLANTON_ROWEIS_2007, KRISCIUNAS_SCHAEFER_1991, OKE_GUNN_1983
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (BENN_ELLISON_1998, BLANTON_ROWEIS_2007, KRISCIUNAS_SCHAEFER_1991, OKE_GUNN_1983)
 
 # band: (effective wavelength A, dark-sky Vega mag/arcsec^2, AB - Vega)
 DARK_SKY_BANDS = {

@@ -27,6 +27,10 @@ import numpy as np
 from scipy.special import erf
 
 from kncast.forecast.errors import check_range
+from kncast.forecast.references import MOFFAT_1969, TRUJILLO_2001
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (MOFFAT_1969, TRUJILLO_2001)
 
 SEEING_REFERENCE_A = 5000.0
 MOFFAT_BETA = 4.765

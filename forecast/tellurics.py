@@ -22,6 +22,10 @@ from pathlib import Path
 import numpy as np
 
 from kncast.forecast.errors import DataFileError, check_range
+from kncast.forecast.references import BESSELL_1999, GORDON_2022, MORTON_2000, TOKUNAGA_SIMONS_VACCA_2002
+
+# Provenance of the bundled bands (the 'source' column of telluric_bands.ecsv), as data.
+REFERENCES = (BESSELL_1999, TOKUNAGA_SIMONS_VACCA_2002, MORTON_2000, GORDON_2022)
 
 __all__ = ["TelluricModel", "default_bands_path", "REFERENCE_PWV_MM"]
 

@@ -31,6 +31,10 @@ from pathlib import Path
 import numpy as np
 
 from kncast.forecast.errors import DataFileError
+from kncast.forecast.references import GORSKI_2005, SINGER_2016
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (GORSKI_2005, SINGER_2016)
 
 NORM_QUIET = 1e-4  # |sum - 1| below this: float rounding, renormalised silently
 NORM_TOLERANCE = 0.01  # |sum - 1| up to this: renormalised with a warning; beyond: refused

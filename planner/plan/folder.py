@@ -368,10 +368,8 @@ def assumptions(plan) -> list[str]:
 
 
 def document(plan, files: dict) -> dict:
-    """The plan.json document with references collected from the modules used."""
-    from kncast.forecast.linelist import LineList
+    """The plan.json document with the references of the models this plan used."""
+    from kncast.planner.plan.citations import plan_references
     from kncast.planner.plan.core import plan_document
-    from kncast.planner.plan.report import collect_references, data_references, fullest_references
 
-    refs = fullest_references(collect_references() + data_references(plan.tellurics, LineList.load()))
-    return plan_document(plan, files=files, references=refs, assumptions=assumptions(plan))
+    return plan_document(plan, files=files, references=plan_references(plan), assumptions=assumptions(plan))

@@ -9,7 +9,6 @@ from __future__ import annotations
 
 import base64
 import html
-import importlib
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -25,44 +24,6 @@ CAUTIONS = (
 CAUTION_LINE = ("Cautions: forecasts are model estimates; check Sun-avoidance limits; the observatory's "
                 "own exposure-time tools and rules take precedence.")
 
-# Modules whose models feed a plan; their docstrings (or a REFERENCES tuple) name the sources.
-MODEL_MODULES = (
-    ("Sky geometry (Sun, Moon, target)", "kncast.planner.visibility.sky"),
-    ("Nights, twilight and observing windows", "kncast.planner.visibility.core"),
-    ("Airmass", "kncast.forecast.airmass"),
-    ("Photosphere", "kncast.forecast.photosphere"),
-    ("Photosphere (radioactive heating)", "kncast.forecast.heating"),
-    ("Blackbody", "kncast.forecast.blackbody"),
-    ("Transient (distance, redshift, dust)", "kncast.forecast.source"),
-    ("Distance and redshift", "kncast.forecast.distance"),
-    ("Dust extinction", "kncast.forecast.extinction"),
-    ("Synthetic magnitudes", "kncast.forecast.photometry"),
-    ("Air/vacuum wavelengths", "kncast.forecast.airvac"),
-    ("Line list", "kncast.forecast.linelist"),
-    ("Feature windows (Doppler)", "kncast.forecast.doppler"),
-    ("LTE ionization, excitation and Sobolev optical depth", "kncast.forecast.lte"),
-    ("Line features", "kncast.forecast.features"),
-    ("Coverage and verdicts", "kncast.forecast.coverage"),
-    ("Telluric bands", "kncast.forecast.tellurics"),
-    ("Atmospheric extinction", "kncast.forecast.extinction_atm"),
-    ("Sky background and moonlight", "kncast.forecast.skybright"),
-    ("Slit losses and seeing", "kncast.forecast.slit"),
-    ("Detector noise (CCD equation)", "kncast.forecast.ccd"),
-    ("Signal-to-noise and exposure time", "kncast.forecast.exposure"),
-)
-
-# An author-year citation: "Kasten & Young 1989", "Korobkin et al. (2012)", "Benn & Ellison 1998, ...".
-
-_CITATION = re.compile(
-    r"\b((?:[A-Z][A-Za-z'\-]+)(?:, [A-Z][A-Za-z'\-]+)*(?:,? (?:&|and) [A-Z][A-Za-z'\-]+| et al\.)?,? "
-    r"\(?(?:19|20)\d{2}[a-z]?\)?"
-    r"(?:,? (?:[A-Z][A-Za-z&.]+ ?)+\d+(?:(?:, ?| )\d+)?)?)"
-)
-_NOT_AUTHORS = {"January", "February", "March", "April", "May", "June", "July", "August", "September",
-                "October", "November", "December", "The", "In", "See", "Since", "From", "Until", "Before",
-                "After", "Version", "Table", "Figure", "Eq", "Equation", "Schema", "Python", "IAU",
-                "DE", "WGS", "CODATA", "UTC", "TT", "MJD", "JD", "AB", "Vega", "IERS"}
-
 
 @dataclass
 class Block:
@@ -74,79 +35,6 @@ class Block:
     header: list = field(default_factory=list)
     path: str = ""
     row_classes: list = field(default_factory=list)  # HTML class per table row ("" for none)
-
-
-# ----------------------------------------------------------------------------------- references
-def collect_references(modules=MODEL_MODULES) -> list[dict]:
-    """Citations found in the documentation of every model module kncast used.
-
-    A module may define ``REFERENCES`` (a sequence of strings); otherwise the
-    author-year citations in its docstring are taken.  Modules that are not
-    installed are skipped.  Returns ``[{"model", "module", "reference"}]``.
-    """
-    out, seen = [], set()
-    for model, name in modules:
-        try:
-            mod = importlib.import_module(name)
-        except ImportError:
-            continue
-        refs = getattr(mod, "REFERENCES", None)
-        found = [str(r) for r in refs] if refs else citations_in(mod.__doc__ or "")
-        for ref in _longest(found):
-            key = (model, _norm(ref))
-            if key not in seen:
-                seen.add(key)
-                out.append({"model": model, "module": name, "reference": ref})
-    return out
-
-
-def data_references(tellurics=None, linelist=None) -> list[dict]:
-    """Sources named in the provenance columns of the data files used (telluric bands, line list)."""
-    out = []
-    if tellurics is not None:
-        text = " ; ".join(sorted(set(str(x) for x in tellurics.bands["source"])))
-        out += [{"model": "Telluric bands", "module": "forecast/data/telluric_bands.ecsv", "reference": r}
-                for r in _longest(citations_in(text))]
-    if linelist is not None:
-        out += [{"model": "Line list", "module": "forecast/data/lines.ecsv", "reference": r}
-                for r in sorted(set(str(x) for x in linelist.source))]
-    return out
-
-
-def fullest_references(rows: list[dict]) -> list[dict]:
-    """Each work once across all models: the fullest citation of it, first model that names it."""
-    keep = set(_longest([r["reference"] for r in rows]))
-    out, seen = [], set()
-    for r in rows:
-        key = _norm(r["reference"])
-        if r["reference"] in keep and key not in seen:
-            seen.add(key)
-            out.append(r)
-    return out
-
-
-def _longest(refs: list[str]) -> list[str]:
-    """Drop a citation that is the start of a fuller one ("Morton 2000" beside "Morton 2000, ApJS 130, 403")."""
-    keys = [_norm(r) for r in refs]
-    return [r for r, k in zip(refs, keys) if not any(o != k and o.startswith(k) for o in keys)]
-
-
-def citations_in(text: str) -> list[str]:
-    """Author-year citations in ``text`` (order kept, duplicates removed)."""
-    text = " ".join(text.split())
-    out, seen = [], set()
-    for m in _CITATION.finditer(text):
-        ref = m.group(1).strip(" ,;()").replace("(", "").replace(")", "")
-        if ref.split()[0].rstrip(",") in _NOT_AUTHORS:
-            continue
-        if _norm(ref) not in seen:
-            seen.add(_norm(ref))
-            out.append(ref)
-    return out
-
-
-def _norm(ref: str) -> str:
-    return re.sub(r"[^a-z0-9]", "", ref.lower())
 
 
 # ----------------------------------------------------------------------------------- content

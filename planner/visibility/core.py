@@ -15,11 +15,15 @@ import numpy as np
 from astropy.time import Time
 
 from kncast.forecast.airmass import airmass_from_altitude
+from kncast.forecast.references import KASTEN_YOUNG_1989
 from kncast.planner.visibility import sky
 from kncast.planner.errors import ParameterError
 from kncast.planner.visibility.nights import dusk_dawn, night_bounds_mjd, twilight_altitude_deg
 from kncast.planner.visibility.rootfind import positive_intervals
 from kncast.planner.visibility.windows import Rules, Sky, combined_margin, margins, night_notes, split_at_bounds, window_margin_fn
+
+# Published sources cited below (the ``max_airmass`` rule), as data (records in kncast.forecast.references).
+REFERENCES = (KASTEN_YOUNG_1989,)
 
 GRID_STEP_MIN = 5.0  # sampling step before root finding; windows shorter than this may be missed
 BEST_SAMPLES = 97  # samples per window to locate the best airmass (refined by a parabola)

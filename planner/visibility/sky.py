@@ -11,12 +11,21 @@ edges can be refined by root finding without calling astropy again.
 Altitudes are geometric (no refraction), as astropy's ``AltAz`` with zero
 pressure; the Moon is made topocentric with the site's geocentric vector.
 Angles in degrees, times as MJD (UTC) floats in the kernels.
+
+Positions and sidereal time come from astropy (Astropy Collaboration 2022, ApJ 935,
+167); its apparent sidereal time is the IAU 2006/2000A one of Wallace & Capitaine
+(2006, A&A 459, 981), evaluated by ERFA.
 """
 from __future__ import annotations
 
 from dataclasses import dataclass
 
 import numpy as np
+
+from kncast.forecast.references import ASTROPY_2022, WALLACE_CAPITAINE_2006
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (ASTROPY_2022, WALLACE_CAPITAINE_2006)
 
 EARTH_EQUATORIAL_RADIUS_KM = 6378.137  # WGS84
 EARTH_FLATTENING = 1 / 298.257223563  # WGS84

@@ -19,9 +19,9 @@ The kernel is one matrix product per chunk of pixels: sin(altitude) is the dot
 product of the pixel's unit vector with the local zenith, and cos(Moon
 separation) its dot product with the Moon's direction.  The pixels stay in
 ICRS; the zenith and Moon vectors of date are rotated back to ICRS by the
-precession-nutation matrix (IAU 2006/2000A, ``erfa.pnm06a``) evaluated once
-per night, which is the same as precessing every pixel to the true equator of
-that night.  Annual aberration (< 21 arcsec) and refraction are neglected, as
+precession-nutation matrix (IAU 2006/2000A, ``erfa.pnm06a``; Capitaine & Wallace
+2006, A&A 450, 855) evaluated once per night, which is the same as precessing
+every pixel to the true equator of that night.  Annual aberration (< 21 arcsec) and refraction are neglected, as
 in :mod:`kncast.planner.visibility.sky`.
 """
 from __future__ import annotations
@@ -33,9 +33,13 @@ from dataclasses import dataclass
 import numpy as np
 from astropy.time import Time
 
+from kncast.forecast.references import CAPITAINE_WALLACE_2006
 from kncast.planner.visibility import sky
 from kncast.planner.errors import ParameterError
 from kncast.planner.events.skymap import SR_TO_DEG2, SkyMap
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (CAPITAINE_WALLACE_2006,)
 
 DEFAULT_STEP_MIN = 10.0
 CHUNK_ELEMENTS = 4_000_000  # pixels x samples per block: bounds memory to a few tens of MB

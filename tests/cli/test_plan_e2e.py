@@ -346,21 +346,15 @@ def test_a_failure_while_writing_leaves_no_folder(tmp_path, run_cli, monkeypatch
 
 
 # ------------------------------------------------------------------ references and cautions
-def test_citations_are_read_from_module_docs():
-    from kncast.planner.plan.report import citations_in
-
-    text = ("Airmass from Kasten & Young 1989, Applied Optics 28, 4735; heating after Korobkin et al. (2012); "
-            "windows of Tokunaga, Simons & Vacca 2002 PASP 114 180.  Since 2019 nothing.")
-    assert citations_in(text) == ["Kasten & Young 1989, Applied Optics 28, 4735", "Korobkin et al. 2012",
-                                  "Tokunaga, Simons & Vacca 2002 PASP 114 180"]
-
-
 def test_report_names_the_models_and_the_cautions(demo):
+    from kncast.forecast import references as cite
+
     out, doc = demo
-    refs = " ; ".join(r["reference"] for r in doc["references"])
-    for cited in ("Kasten & Young 1989", "Krisciunas & Schaefer 1991", "Merline & Howell 1995", "Sobolev 1960",
-                  "Bessell 1999"):
-        assert cited in refs, cited
+    refs = [r["reference"] for r in doc["references"]]  # collection rules: tests/planner/test_references.py
+    for cited in (cite.KASTEN_YOUNG_1989, cite.KRISCIUNAS_SCHAEFER_1991, cite.MERLINE_HOWELL_1995,
+                  cite.SOBOLEV_1957, cite.BESSELL_1999):
+        assert cited.text in refs, cited
+        assert cited.text in (out / "report.md").read_text()
     html = (out / "report.html").read_text()
     for words in ("Sun-avoidance", "model estimates", "take precedence"):
         assert words in html and words in (out / "report.md").read_text()
