@@ -10,4 +10,11 @@ SNR_BASIS = "per resolution element"
 DEFAULT_BANDS = ("bessell-U", "bessell-B", "bessell-V", "bessell-R", "bessell-I",
                  "twomass-J", "twomass-H", "twomass-Ks")  # speclite filter names
 
-__all__ = ["STRONG_TAU", "DEFAULT_MAX_EXPOSURE_S", "SNR_BASIS", "DEFAULT_BANDS"]
+# per-feature detectability (kncast.forecast.detect)
+DEFAULT_BIN_KMS = 1500.0   # velocity bin for the S/N across a trough, km/s (common practice for 0.1-0.3 c features)
+DEFAULT_SIGMA = 5.0        # detection significance a feature must reach (common practice: 5 sigma)
+DEFAULT_MIN_DEPTH = 0.1    # expected depth from which a feature is a diagnostic target by default
+UV_CUTOFF_MAG_PER_AIRMASS = 1.0  # troughs where the atmosphere extinguishes more than this do not count
+
+__all__ = ["STRONG_TAU", "DEFAULT_MAX_EXPOSURE_S", "SNR_BASIS", "DEFAULT_BANDS", "DEFAULT_BIN_KMS", "DEFAULT_SIGMA",
+           "DEFAULT_MIN_DEPTH", "UV_CUTOFF_MAG_PER_AIRMASS"]

@@ -27,10 +27,11 @@ from kncast.forecast.references import BESSELL_1999, GORDON_2022, MORTON_2000, T
 # Provenance of the bundled bands (the 'source' column of telluric_bands.ecsv), as data.
 REFERENCES = (BESSELL_1999, TOKUNAGA_SIMONS_VACCA_2002, MORTON_2000, GORDON_2022)
 
-__all__ = ["TelluricModel", "default_bands_path", "REFERENCE_PWV_MM"]
+__all__ = ["TelluricModel", "default_bands_path", "REFERENCE_PWV_MM", "CORRECTABLE_TRANSMISSION"]
 
 REFERENCE_PWV_MM = 2.5  # precipitable water of the tabulated depths, mm
 POINT_WIDTH_A = 1e-3    # a zero-width window is evaluated over this width, A
+CORRECTABLE_TRANSMISSION = 0.3  # bands transmitting at least this much are divided out, not lost (common practice)
 _COLUMNS = ("id", "species", "min_A", "max_A", "depth", "scaling", "power", "source")
 _SCALINGS = ("airmass", "airmass_pwv")
 
@@ -80,6 +81,32 @@ class TelluricModel:
         inside them count (e.g. a setup's detector coverage).  Vectorized over any
         broadcastable shapes of lo_A, hi_A, airmass and pwv_mm.
         """
+        return self._integral_A(lo_A, hi_A, airmass, pwv_mm, covered_A, lambda t: 1.0 - t)
+
+    def loss_fraction(self, lo_A, hi_A, airmass=1.0, pwv_mm=REFERENCE_PWV_MM) -> np.ndarray:
+        """Transmission-weighted fraction of [lo_A, hi_A] lost: mean of (1 - T) over the window.
+
+        A zero-width window (lo == hi) gives 1 - T at that wavelength.
+        """
+        lo, hi = _window(lo_A, hi_A)
+        return self.absorbed_A(lo, hi, airmass, pwv_mm) / (hi - lo)
+
+    def opaque_and_correctable(self, lo_A, hi_A, airmass=1.0, pwv_mm=REFERENCE_PWV_MM, covered_A=None,
+                               threshold=CORRECTABLE_TRANSMISSION):
+        """(opaque, correctable) fractions of each window [lo_A, hi_A]: the parts (on ``covered_A``, if
+        given) where the transmission T is below ``threshold`` (lost: too little light to divide out),
+        and where a band absorbs but T >= ``threshold`` (divided out with a telluric standard; common
+        practice).  The rest of the window is clear of bands or off the detector."""
+        lo, hi = _window(lo_A, hi_A)
+        check_range("telluric threshold", threshold, 0.0, 1.0)
+        width = hi - lo
+        opaque = self._integral_A(lo, hi, airmass, pwv_mm, covered_A, lambda t: (t < threshold).astype(float))
+        banded = self._integral_A(lo, hi, airmass, pwv_mm, covered_A, lambda t: (t < 1.0).astype(float))
+        return opaque / width, np.clip(banded - opaque, 0.0, None) / width
+
+    def _integral_A(self, lo_A, hi_A, airmass, pwv_mm, covered_A, weight) -> np.ndarray:
+        """Integral over [lo_A, hi_A] (on ``covered_A``) of ``weight(T)``, T piecewise constant between
+        band edges, in Angstrom."""
         lo, hi = np.asarray(lo_A, dtype=float), np.asarray(hi_A, dtype=float)
         edges = [self._lo, self._hi]
         if covered_A is not None:
@@ -91,19 +118,11 @@ class TelluricModel:
         mid = 0.5 * (x[:-1] + x[1:])
         member = ((mid[:, None] >= self._lo) & (mid[:, None] < self._hi)).astype(float)  # (segments, bands)
         tau = self.band_tau(airmass, pwv_mm) @ member.T                                     # S + (segments,)
-        slope = -np.expm1(-tau)
+        slope = weight(np.exp(-tau))
         if covered_A is not None:
             slope = slope * _inside_any(mid, covered_A)
         cum = np.concatenate([np.zeros(slope.shape[:-1] + (1,)), np.cumsum(slope * np.diff(x), axis=-1)], axis=-1)
         return _piecewise(x, cum, slope, hi) - _piecewise(x, cum, slope, lo)
-
-    def loss_fraction(self, lo_A, hi_A, airmass=1.0, pwv_mm=REFERENCE_PWV_MM) -> np.ndarray:
-        """Transmission-weighted fraction of [lo_A, hi_A] lost: mean of (1 - T) over the window.
-
-        A zero-width window (lo == hi) gives 1 - T at that wavelength.
-        """
-        lo, hi = _window(lo_A, hi_A)
-        return self.absorbed_A(lo, hi, airmass, pwv_mm) / (hi - lo)
 
 
 # ---------------------------------------------------------------- helpers

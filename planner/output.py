@@ -17,7 +17,7 @@ from pathlib import Path
 import numpy as np
 from astropy.time import Time
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2  # 2: per-feature detectability (plan and lines)
 
 
 def _umask() -> int:

@@ -23,9 +23,22 @@ def add_arguments(p) -> None:
     g = p.add_argument_group("plan")
     g.add_argument("--nights", type=_common.positive_int("--nights", 60), default=7, metavar="N",
                    help="local nights after t0 to plan (default 7)")
+    from kncast.forecast.defaults import DEFAULT_BIN_KMS, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA
+
+    g.add_argument("--sigma", type=_common.finite_float("--sigma", 0, 100, low_open=True), default=DEFAULT_SIGMA,
+                   metavar="N", help="detection significance a diagnostic feature must reach in the usable time "
+                                     f"for the night to be useful (default {DEFAULT_SIGMA:g})")
+    g.add_argument("--features", action="append", metavar="ID,...",
+                   help="diagnostic features to judge by (feature ids as in kncast lines; default: every feature "
+                        f"whose expected depth 1 - exp(-tau) is at least {DEFAULT_MIN_DEPTH:g} at that epoch)")
+    g.add_argument("--bin-kms", type=_common.finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS,
+                   metavar="KMS", help=f"velocity bin of the continuum S/N across a trough, km/s "
+                                       f"(default {DEFAULT_BIN_KMS:g})")
+    g.add_argument("--snr-at", type=_common.finite_float("--snr-at", 1000, 60000), metavar="WAVELENGTH_A",
+                   help="also report a plain continuum S/N per resolution element at this vacuum wavelength, A")
     g.add_argument("--snr", type=_common.finite_float("--snr", 0, 1000, low_open=True), default=10.0,
-                   metavar="TARGET", help="target S/N per resolution element at the reference feature: the "
-                                          "clear strong feature with the best S/N (default 10)")
+                   metavar="TARGET", help="with --snr-at: the continuum S/N per resolution element quoted as the "
+                                          "target there (default 10)")
     g.add_argument("--max-hours", type=_common.finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
                    metavar="H", help="at most this many hours per night on the target (default 4)")
     g.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
@@ -65,13 +78,29 @@ def run(args) -> int:
 
         plan = build_plan(event, sites, nights=args.nights, snr_target=args.snr, max_hours=args.max_hours,
                           overhead_s=args.overhead_min * 60.0, twilight=args.twilight, registry=registry,
-                          overrides=overrides, progress=say)
+                          overrides=overrides, progress=say, sigma=args.sigma, bin_kms=args.bin_kms,
+                          features=feature_ids(args), snr_at_A=args.snr_at)
         doc = write_folder(plan, out, say)
     if args.json:
         _common.emit_json(args.json, doc)
     if args.json != "-":
         print_summary(plan, out, quiet=quiet)
     return 0
+
+
+def feature_ids(args) -> list[str] | None:
+    """The --features ids, checked against the line list (unknown ids suggest the closest)."""
+    ids = _common.split_list(args.features)
+    if not ids:
+        return None
+    from kncast.forecast.linelist import LineList
+    from kncast.planner.errors import UnknownNameError
+
+    known = {f.id for f in LineList.load().features()}
+    for i in ids:
+        if i not in known:
+            raise UnknownNameError("feature (--features)", i, known)
+    return list(dict.fromkeys(ids))
 
 
 def safe_name(text: str) -> str:
@@ -137,14 +166,16 @@ def print_summary(plan, out: Path, quiet: bool = False) -> None:
     if not quiet:
         useful = sorted(plan.useful(), key=lambda p: p.phase_d)
         if useful:
-            t = Table(title=f"Recommended spectra of {plan.event.id} (S/N per resolution element)")
+            sigma = plan.settings["sigma"]
+            t = Table(title=f"Recommended spectra of {plan.event.id} (exposure for {sigma:g} sigma on the best "
+                            f"diagnostic trough; sigma reached in the usable time)")
             for col, kw in (("day", {"justify": "right"}), ("site", {}), ("night", {}), ("setup", {}),
-                            ("exposure", {}), ("S/N", {"justify": "right"}), ("why", {"ratio": 1})):
+                            ("exposure", {}), ("sigma", {"justify": "right"}), ("why", {"ratio": 1})):
                 t.add_column(col, overflow="fold", **kw)
             for p in useful:
                 c = p.choice
                 t.add_row(f"{p.phase_d:.2f}", p.site.id, p.record.night.isoformat(), c.setup,
-                          f"{c.nexp} x {c.exposure_s:.0f} s" if c.nexp else "-", f"{c.snr:.1f}", p.reason)
+                          f"{c.nexp} x {c.exposure_s:.0f} s" if c.nexp else "-", f"{c.significance:.1f}", p.reason)
             con.print(t)
         rest = Table(title="Nights without a useful spectrum")
         for col in ("site", "nights", "why"):

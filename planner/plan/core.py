@@ -10,31 +10,22 @@ its own:
    days since t0);
 2. the photosphere at every epoch, in one array call
    (:func:`kncast.planner.source.transient_for_event`, ``Transient.state``);
-3. per epoch and setup: which strong features are clear (the feature
-   forecast of :mod:`kncast.forecast.features`), all epochs x all setups in one call;
-4. per epoch and setup: the S/N reachable at the reference feature in the
-   usable time, and the exposure time for the target S/N there
-   (:mod:`kncast.forecast.exposure`), one batched call per site for all its epochs
-   and setups.
+3. the feature forecast (windows, Sobolev tau, coverage) of every epoch in
+   every setup, in one call (:mod:`kncast.forecast.features`);
+4. per epoch, setup and feature: what the observer will measure in the usable
+   time (:mod:`kncast.planner.measure`, :mod:`kncast.forecast.detect`): the
+   trough's arm, the continuum S/N per velocity bin, the expected depth, the
+   detection significance and the time to reach the target significance, one
+   batched evaluation per site.
 
-The reference feature of a setup is the clear strong feature whose trough
-gets the highest S/N.  Every strong feature (Sobolev tau >= ``STRONG_TAU``)
-is optically thick, so ranking them further by tau says little about what
-can be measured; what limits the measurement is the signal at the trough.
-
-Usable time = min(window hours, ``max_hours``) minus the acquisition and
-readout overhead.
-
-The score (documented in docs/commands/plan.md, section "The score")::
-
-    score = N_clear_strong x S/N_window
-
-where ``N_clear_strong`` is the number of strong features (Sobolev optical
-depth >= ``STRONG_TAU``) that the setup sees clear (verdict "clear") and
-``S/N_window`` the S/N per resolution element reachable in the usable time at
-the reference feature's absorption trough.  Only setups that reach the
-target S/N there are eligible; the highest score wins (ties: the shorter
-exposure).  A night where no setup is eligible says why in words.
+Decisions rest on what is measured (the rule in words: :func:`choice_rule`):
+a night and setup are useful when at least one diagnostic feature (the
+chosen ``features``, or every feature whose expected depth is at least
+``min_depth`` at that epoch) reaches ``sigma`` in the usable time; the chosen
+setup detects the most diagnostic features, ties going to the one whose best
+feature reaches ``sigma`` soonest.  The reason names the feature, its trough,
+arm and significance.  Usable time = min(window hours, ``max_hours``) minus
+the acquisition and readout overhead.
 """
 from __future__ import annotations
 
@@ -45,8 +36,9 @@ import numpy as np
 
 from kncast.planner.errors import ParameterError
 
-from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S, SNR_BASIS, STRONG_TAU
-from kncast.forecast.features import strong_mask
+from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA,
+                                      SNR_BASIS)
+from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
 from kncast.planner.observation import batched_conditions, forecast_airmass
 
 __all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
@@ -63,35 +55,39 @@ STATUS_WORDS = {
     "no-spectrograph": "no spectrograph at this site",
     "too-short": "window too short",
     "hidden": "only hidden features",
-    "no-strong": "no strong features",
+    "no-targets": "no diagnostic features",
     "too-faint": "too faint",
 }
 
 
 @dataclass
 class SetupOutcome:
-    """What one setup can do at one epoch.  S/N per resolution element; times in seconds."""
+    """What one setup measures at one epoch: its best diagnostic trough and the features it detects.
+
+    Significances in sigma; S/N per velocity bin; times in seconds.
+    """
 
     setup: str
     aperture_m: float
-    n_strong: int = 0
-    strong: list = field(default_factory=list)  # strong feature ids, strongest first
-    clear: list = field(default_factory=list)   # strong ids the setup sees clear, strongest first
-    feature: str | None = None                   # reference feature: the clear strong one with the best S/N
+    targets: list = field(default_factory=list)    # diagnostic feature ids, best measured first
+    detected: list = field(default_factory=list)   # targets at or above the target significance
+    features: list = field(default_factory=list)   # per-feature records (kncast.planner.measure.feature_record)
+    feature: str | None = None                     # reference: the best-measured diagnostic trough
     species: str | None = None
+    words: str = ""                                # e.g. "Sr II 10039 A"
     trough_obs_A: float | None = None
+    arm: str | None = None
     tau_sobolev: float | None = None
-    snr: float | None = None                     # reachable in the usable time
-    time_for_target_s: float | None = None
+    depth: float | None = None
+    snr_bin: float | None = None                   # continuum S/N per velocity bin at the trough, usable time
+    significance: float | None = None              # in the usable time
+    time_to_sigma_s: float | None = None
     nexp: int | None = None
-    exposure_s: float | None = None              # length of each exposure
-    reaches_target: bool = False
+    exposure_s: float | None = None                # length of each exposure
+    detects: bool = False
+    snr_at: float | None = None                    # plain continuum S/N per resolution element at snr_at_A
     score: float = 0.0
     verdict: str = ""
-
-    @property
-    def n_clear(self) -> int:
-        return len(self.clear)
 
 
 @dataclass
@@ -105,6 +101,7 @@ class NightPlan:
     photosphere: dict = field(default_factory=dict)
     outcomes: list = field(default_factory=list)
     choice: SetupOutcome | None = None
+    detected: list = field(default_factory=list)   # feature ids the chosen setup detects
     status: str = "no-window"
     reason: str = ""
 
@@ -151,13 +148,30 @@ def check_settings(snr_target, max_hours, overhead_s, nights) -> None:
         raise ParameterError("nights", nights, "a whole number from 1 to 60")
 
 
+def check_detection(sigma, bin_kms, min_depth, snr_at_A) -> None:
+    """Ranges of the detection settings (ParameterError naming the parameter)."""
+    if not (math.isfinite(sigma) and 0.0 < sigma <= 100.0):
+        raise ParameterError("sigma", sigma, "a significance in (0, 100]")
+    if not (math.isfinite(bin_kms) and 10.0 <= bin_kms <= 30000.0):
+        raise ParameterError("bin_kms", bin_kms, "km/s in [10, 30000]")
+    if not (math.isfinite(min_depth) and 0.0 <= min_depth < 1.0):
+        raise ParameterError("min_depth", min_depth, "a depth in [0, 1)")
+    if snr_at_A is not None and not (math.isfinite(snr_at_A) and 1000.0 <= snr_at_A <= 60000.0):
+        raise ParameterError("snr_at_A", snr_at_A, "a vacuum wavelength in [1000, 60000] A")
+
+
 def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                max_hours: float = DEFAULT_MAX_HOURS, overhead_s: float = DEFAULT_OVERHEAD_S,
                twilight: str = "nautical", registry=None, model=None, overrides=None,
-               progress=None) -> Plan:
+               progress=None, sigma: float = DEFAULT_SIGMA, bin_kms: float = DEFAULT_BIN_KMS,
+               features=None, min_depth: float = DEFAULT_MIN_DEPTH, snr_at_A: float | None = None) -> Plan:
     """Plan spectroscopy of ``event`` from ``sites`` over ``nights`` local nights after t0.
 
-    ``snr_target`` is per resolution element; ``max_hours`` caps the time per
+    A night is useful when a diagnostic feature reaches ``sigma`` (detection significance of its
+    trough, continuum S/N per ``bin_kms`` km/s bin); ``features`` (feature ids) picks the
+    diagnostic features, by default every one whose expected depth is at least ``min_depth``.
+    ``snr_at_A`` (vacuum A) adds a plain continuum S/N per resolution element there, reported
+    beside the verdict; ``snr_target`` is the continuum S/N quoted with it.  ``max_hours`` caps the time per
     night (h); ``overhead_s`` is the acquisition + readout overhead per night
     (s).  ``registry`` (a SiteRegistry) supplies the setups; by default the
     registry of the given sites.  ``model``/``overrides`` choose the
@@ -168,6 +182,7 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     from kncast.planner.visibility.core import compute_visibility
 
     check_settings(snr_target, max_hours, overhead_s, nights)
+    check_detection(sigma, bin_kms, min_depth, snr_at_A)
     say = progress or (lambda text: None)
     sites = list({s.id: s for s in sites}.values())  # each site once, in the order given
     say("visibility windows")
@@ -179,8 +194,12 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
             if r.site.id in site_ids]
     settings = {"nights": int(nights), "twilight": twilight, "snr_target": float(snr_target),
                 "snr_per": SNR_BASIS.removeprefix("per "), "max_hours": float(max_hours), "overhead_s": float(overhead_s),
-                "strong_tau": STRONG_TAU, "sites": [s.id for s in sites], "setups": [r.id for r in refs],
-                "target": event.targets()[0].id, "mag_bands": list(MAG_BANDS)}
+                "sites": [s.id for s in sites], "setups": [r.id for r in refs],
+                "target": event.targets()[0].id, "mag_bands": list(MAG_BANDS), "sigma": float(sigma),
+                "bin_kms": float(bin_kms), "min_depth": float(min_depth),
+                "features": list(features) if features else None,
+                "snr_at_A": None if snr_at_A is None else float(snr_at_A),
+                "telluric_threshold": CORRECTABLE_TRANSMISSION}
     t0_mjd = float(event.t0.utc.mjd)
     plans = [_night_plan(rec, t0_mjd, max_hours, overhead_s) for rec in vis.nights]
     epochs = [p for p in plans if p.window is not None]
@@ -197,9 +216,9 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     by_site = {}
     for r in refs:
         by_site.setdefault(r.site.id, []).append(r)
-    evaluate_setups(plan, epochs, by_site, snr_target, say)
+    evaluate_setups(plan, epochs, by_site, say)
     for p in plans:
-        choose(p, snr_target, overhead_s)
+        choose(p, settings, overhead_s)
     plan.campaign = campaign_summary(plan)
     if event.candidates:
         from kncast.planner.visibility.candidates import rank_candidates
@@ -255,41 +274,51 @@ def _model_summary(transient) -> dict:
 
 
 # ---------------------------------------------------------------------------- per setup
-def evaluate_setups(plan: Plan, epochs: list, by_site: dict, snr_target: float, say) -> None:
+def evaluate_setups(plan: Plan, epochs: list, by_site: dict, say) -> None:
     """Fill ``NightPlan.outcomes`` for every epoch and every setup at its site.
 
-    Features: one :func:`kncast.forecast.features.forecast_features` call for all
-    epochs x all setups (airmass and water vapour per epoch).  Exposures: per
-    site, one batched :mod:`kncast.forecast.exposure` evaluation for all its epochs and
-    setups at once (:func:`site_exposures`), sampled at the troughs of each
-    epoch's strong features.
+    Features: one :func:`kncast.forecast.features.forecast_features` call for all epochs x all
+    setups (airmass and water vapour per epoch).  Measurements: per site, one batched
+    :func:`kncast.planner.measure.measure` for all its epochs and setups (the usable time of each
+    epoch, its airmass and Moon), at the trough of every feature.
     """
+    from kncast.planner.measure import measure
+
     refs = [r for site_refs in by_site.values() for r in site_refs]
     if not epochs or not refs:
         return
     fc = feature_forecast(plan, epochs, refs)
     say("exposure times")
-    # observed continuum at every feature trough of every epoch, in one call: (n_epochs, n_features)
-    n, nf = fc.windows.trough_A.shape
-    every = plan.transient.flux_flam(fc.epochs.phase_d, fc.windows.trough_A.ravel()).reshape(n, n, nf)
-    fc.trough_flux_flam = every[np.arange(n), np.arange(n)]
+    st = plan.settings
     column = {r.id: k for k, r in enumerate(refs)}
     site_of = np.array([p.site.id for p in epochs])
-    batches = {}
-    for site_id, site_refs in by_site.items():  # one batched exposure evaluation per site (a handful of sites)
+    for site_id, site_refs in by_site.items():  # one batched evaluation per site (a handful of sites)
         rows = np.flatnonzero(site_of == site_id)
-        if site_refs and rows.size:
-            cols = [column[r.id] for r in site_refs]
-            batches[site_id] = (cols, site_exposures(plan, epochs, rows, fc, site_refs, cols, snr_target))
-    for i, p in enumerate(epochs):  # bookkeeping only: SetupOutcome objects from the batched arrays
-        if p.site.id in batches:
-            cols, (needed, snr, t_need, n_need) = batches[p.site.id]
-            ex = (snr[:, i], t_need[:, i], n_need[:, i]) if needed[i] else None
-            p.outcomes = _outcomes_for_epoch(plan, p, i, fc, by_site[p.site.id], cols, ex, snr_target)
+        if not (site_refs and rows.size):
+            continue
+        windows = [epochs[i].window for i in rows]
+        atm = plan.atmospheres[site_id]
+        seconds = np.array([max(epochs[i].hours_available, 0.0) * 3600.0 for i in rows])
+        m = measure(plan.transient, fc, rows, [column[r.id] for r in site_refs], refs,
+                    batched_conditions(windows, atm), np.array([forecast_airmass(w) for w in windows]),
+                    atm.pwv_mm, np.maximum(seconds, 1.0), plan.tellurics, atm,
+                    sigma=st["sigma"], bin_kms=st["bin_kms"])
+        targets = _targets(m, fc, st)
+        for k, i in enumerate(rows):
+            p = epochs[i]
+            p.outcomes = [_outcome(plan, p, fc, m, targets, k, j, ref) for j, ref in enumerate(site_refs)]
+            if st.get("snr_at_A") is not None:
+                _continuum_at(plan, p, site_refs, atm)
+
+
+def _targets(m, fc, st) -> np.ndarray:
+    from kncast.planner.measure import diagnostic_mask
+
+    return diagnostic_mask(m, st.get("features"), [f.id for f in fc.features], st["min_depth"])
 
 
 def site_conditions(site):
-    """(Atmosphere, TelluricModel) of a site: its ``[atmosphere]`` table or the defaults."""
+    """The Atmosphere of a site: its ``[atmosphere]`` table or the defaults."""
     from kncast.forecast.extinction_atm import atmosphere_for_site
 
     return atmosphere_for_site(site)
@@ -310,116 +339,88 @@ def feature_forecast(plan: Plan, epochs: list, refs: list):
                              airmass=airmass, pwv_mm=pwv, setup_ids=[r.id for r in refs])
 
 
-def _outcomes_for_epoch(plan: Plan, p: NightPlan, i: int, fc, refs: list, cols: list, ex, snr_target: float):
-    """SetupOutcome per setup of the site at epoch ``i`` (features from ``fc``).
+def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> SetupOutcome:
+    """What setup ``ref`` (column ``j`` of ``m``) measures at the epoch of row ``k``."""
+    from kncast.planner.measure import feature_record
 
-    ``ex`` is None (no clear strong feature or no usable time) or this epoch's (S/N, time, n_exp) arrays
-    (n_setups, n_features) from :func:`site_exposures`.
-    """
-    tau = fc.tau[i]
-    strong = strong_mask(fc.tau)[i]
-    strong_idx = [int(f) for f in fc.rank[i] if strong[f]]
-    clear = np.array([[fc.verdict[i, f, k] == "clear" for f in strong_idx] for k in cols], dtype=bool)
-    clear = clear.reshape(len(cols), len(strong_idx))
-    snr = t_need = n_need = None
-    if ex is not None:
-        snr, t_need, n_need = (np.asarray(a)[:, strong_idx] for a in ex)
-    outcomes = []
-    for j, (k, ref) in enumerate(zip(cols, refs)):
-        o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m, n_strong=len(strong_idx),
-                         strong=[fc.features[f].id for f in strong_idx],
-                         clear=[fc.features[f].id for f, c in zip(strong_idx, clear[j]) if c])
-        if clear[j].any():
-            # reference feature: the clear strong feature with the highest S/N (all strong ones are optically
-            # thick; without usable time, the first by optical depth)
-            m = int(np.argmax(np.where(clear[j], snr[j], -np.inf))) if snr is not None else int(np.argmax(clear[j]))
-            f = strong_idx[m]
-            o.feature, o.species = fc.features[f].id, fc.features[f].species
-            o.trough_obs_A, o.tau_sobolev = float(fc.windows.trough_A[i, f]), float(tau[f])
-            if snr is not None:
-                o.snr = float(snr[j, m])
-                o.reaches_target = bool(o.snr >= snr_target)
-                if np.isfinite(t_need[j, m]):
-                    o.time_for_target_s, o.nexp = float(t_need[j, m]), int(n_need[j, m])
-                    o.exposure_s = o.time_for_target_s / o.nexp
+    sigma = plan.settings["sigma"]
+    o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m)
+    o.features = [feature_record(m, k, f, j, fc.features[f]) for f in range(len(fc.features))]
+    plan.features.extend(_feature_rows(p, ref.id, rec, targets[k, f]) for f, rec in enumerate(o.features))
+    idx = [f for f in np.argsort(-m.significance[k, :, j], kind="stable") if targets[k, f]]
+    o.targets = [fc.features[f].id for f in idx]
+    if p.hours_available <= 0:
         o.verdict = _verdict(o)
-        outcomes.append(o)
-        plan.features.extend(_feature_rows(p, fc, i, k, ref.id, strong_idx))
-    return outcomes
+        return o
+    o.detected = [fc.features[f].id for f in idx if m.significance[k, f, j] >= sigma]
+    seen = [f for f in idx if m.usable_trough[k, f, j] > 0]
+    if seen:
+        f = seen[0]
+        rec = o.features[f]
+        o.feature, o.species, o.words = rec["id"], rec["species"], _feature_label(fc.features[f])
+        o.trough_obs_A, o.arm, o.depth = rec["trough_A"], rec["arm"], rec["depth"]
+        o.snr_bin, o.significance = rec["snr_bin"], rec["significance"]
+        o.tau_sobolev = float(fc.tau[m.rows[k], f])
+        t = float(m.time_to_sigma_s[k, f, j])
+        if np.isfinite(t):
+            o.time_to_sigma_s, o.nexp = t, int(m.nexp_to_sigma[k, f, j])
+            o.exposure_s = t / o.nexp
+    o.detects = bool(o.detected)
+    o.verdict = _verdict(o)
+    return o
 
 
-def _feature_rows(p: NightPlan, fc, i: int, k: int, setup_id: str, strong_idx: list) -> list[dict]:
-    strong = set(strong_idx)
-    rows = []
-    for f in fc.rank[i]:
-        feat, t = fc.features[f], fc.tau[i, f]
-        rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
-                     "setup": setup_id, "feature": feat.id, "species": feat.species,
-                     "trough_obs_A": float(fc.windows.trough_A[i, f]),
-                     "tau_sobolev": float(t) if np.isfinite(t) else None, "strong": f in strong,
-                     "coverage": float(fc.coverage[i, f, k]), "gap_loss": float(fc.gap_loss[i, f, k]),
-                     "telluric_loss": float(fc.telluric_loss[i, f, k]), "verdict": str(fc.verdict[i, f, k]),
-                     "clear": f in strong and fc.verdict[i, f, k] == "clear"})
-    return rows
+def _feature_label(feature) -> str:
+    from kncast.planner.measure import feature_words
+
+    return feature_words(feature)
 
 
-def site_exposures(plan: Plan, epochs: list, rows, fc, refs: list, cols: list, snr_target: float):
-    """Exposures of one site, all its epochs (``rows``: indices into ``epochs``) and setups in one batched call.
+def _feature_rows(p: NightPlan, setup_id: str, rec: dict, target: bool) -> dict:
+    """One row of features.ecsv: the feature record of one setup at one epoch."""
+    return {"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d, "setup": setup_id,
+            **rec, "target": bool(target)}
 
-    Sampled at the trough of every strong feature of every epoch that has usable time and a strong
-    feature seen clear by one of the setups (observed continuum ``fc.trough_flux_flam`` there), with
-    that epoch's airmass, Moon and time: S/N per resolution element in the usable time, and
-    (time, n_exp) for the target.  Returns (needed (n_epochs,) bool, snr, time s, n_exp), the last
-    three arrays (n_setups, n_epochs, n_features): NaN / 0 where not evaluated.
-    """
+
+def _continuum_at(plan: Plan, p: NightPlan, refs: list, atm) -> None:
+    """The plain continuum S/N per resolution element at ``snr_at_A`` in the usable time, per setup."""
     from kncast.forecast import exposure
 
-    n, nf = fc.tau.shape
-    strong = strong_mask(fc.tau)[rows]                                                   # (n_rows, nf)
-    hours = np.array([epochs[i].hours_available for i in rows])
-    clear = (fc.verdict[rows][:, :, cols] == "clear") & strong[:, :, None]
-    needed = np.zeros(n, dtype=bool)
-    needed[rows] = clear.any(axis=(1, 2)) & (hours > 0)
-    snr_all = np.full((len(refs), n, nf), np.nan)
-    t_all, n_all = snr_all.copy(), np.zeros((len(refs), n, nf), dtype=int)
-    e, f = np.nonzero(needed[rows][:, None] & strong)                             # samples: (epoch, feature)
-    if not e.size:
-        return needed, snr_all, t_all, n_all
-    ep = rows[e]
-    lam = fc.windows.trough_A[ep, f]
-    cond = batched_conditions([epochs[i].window for i in rows], plan.atmospheres[epochs[rows[0]].site.id], e)
-    grid = exposure.stack_grids([exposure.setup_grid(r.telescope, r.instrument, r.setup, wavelength_A=lam)
-                                 for r in refs])                                    # (n_setups, n_samples)
-    flux = fc.trough_flux_flam[ep, f][None, :]                                      # (1, n_samples)
-    telluric = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
-    r = exposure.rates(flux, grid, cond, telluric)
-    available = hours[e] * 3600.0
-    n_exp = np.maximum(1, np.ceil(available / DEFAULT_MAX_EXPOSURE_S - 1e-9)).astype(int)
-    snr_all[:, ep, f] = exposure.expose(r, available, n_exp).snr_per_resel
-    t_all[:, ep, f], n_all[:, ep, f] = exposure.time_for_snr(r, snr_target, DEFAULT_MAX_EXPOSURE_S)
-    return needed, snr_all, t_all, n_all
+    lam = np.array([plan.settings["snr_at_A"]])
+    cond = batched_conditions([p.window], atm)
+    seconds = max(p.hours_available, 0.0) * 3600.0
+    if seconds <= 0:
+        return
+    flux = plan.transient.flux_flam(np.array([p.phase_d]), lam)
+    tell = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
+    for o, ref in zip(p.outcomes, refs):
+        grid = exposure.setup_grid(ref.telescope, ref.instrument, ref.setup, wavelength_A=lam)
+        r = exposure.rates(flux, grid, cond, tell)
+        nexp = max(1, int(np.ceil(seconds / DEFAULT_MAX_EXPOSURE_S - 1e-9)))
+        res = exposure.expose(r, seconds, nexp)
+        o.snr_at = float(res.snr_per_resel.ravel()[0]) if bool(r.on_detector.ravel()[0]) else None
 
 
 def _verdict(o: SetupOutcome) -> str:
-    if o.n_strong == 0:
-        return "no strong features"
-    if not o.clear:
-        return "only hidden features"
-    if o.snr is None:
-        return "no usable time"
-    return "reaches target" if o.reaches_target else "too faint"
+    if not o.targets:
+        return "no diagnostic features"
+    if o.feature is None:
+        return "no usable time" if not o.features or o.detected is None else "only hidden features"
+    return "detects" if o.detected else "too faint"
 
 
 # ---------------------------------------------------------------------------- choice
 def score(outcome: SetupOutcome) -> float:
-    """N_clear_strong x S/N reachable in the usable window (0 when the target is not reached)."""
-    if not outcome.reaches_target or outcome.snr is None:
-        return 0.0
-    return outcome.n_clear * float(outcome.snr)
+    """The number of diagnostic features the setup detects at the target significance in the usable time."""
+    return float(len(outcome.detected or ()))
 
 
-def choose(p: NightPlan, snr_target: float, overhead_s: float) -> None:
-    """Pick the best setup for the night and say why, in words."""
+def choose(p: NightPlan, settings: dict, overhead_s: float) -> None:
+    """Pick the setup that detects the most diagnostic features and say why, in words.
+
+    Among setups detecting as many, the one whose best feature reaches the target significance
+    soonest wins (then the higher significance).
+    """
     if p.window is None:
         return
     w = p.window
@@ -436,42 +437,44 @@ def choose(p: NightPlan, snr_target: float, overhead_s: float) -> None:
         o.score = score(o)
     eligible = [o for o in p.outcomes if o.score > 0]
     if eligible:
-        best = max(eligible, key=lambda o: (o.score, -(o.time_for_target_s or math.inf)))
+        best = max(eligible, key=lambda o: (o.score, -(o.time_to_sigma_s or math.inf), o.significance or 0.0))
         p.choice, p.status = best, "observe"
-        p.reason = choice_words(best, p.hours_available, snr_target)
+        p.detected = list(best.detected)
+        p.reason = choice_words(best, p.hours_available, settings["sigma"])
         return
-    p.reason = "nothing useful, " + failure_words(p, snr_target)
+    p.reason = "nothing useful, " + failure_words(p, settings["sigma"])
 
 
-def choice_words(o: SetupOutcome, hours: float, snr_target: float) -> str:
-    """'X covers 5 of 6 strong features clear of telluric bands and reaches S/N 23 at the Ca II trough ...'"""
-    words = (f"{o.setup} covers {o.n_clear} of {o.n_strong} strong features clear of telluric bands "
-             f"and reaches S/N {o.snr:.0f} at the {o.species} trough ({o.trough_obs_A:.0f} A) in {hours:.1f} h")
+def choice_words(o: SetupOutcome, hours: float, sigma: float) -> str:
+    """'X: Sr II 10039 A trough at 8430 A (red arm): 7.2 sigma in 1.9 h; 5 sigma needs 1 x 1200 s; 3 features detected'"""
+    arm = f" ({o.arm} arm)" if o.arm else ""
+    words = (f"{o.setup}: {o.words} trough at {o.trough_obs_A:.0f} A{arm}: {o.significance:.1f} sigma in "
+             f"{hours:.1f} h")
     if o.nexp and o.exposure_s:
-        words += f"; S/N {snr_target:g} needs {o.nexp} x {o.exposure_s:.0f} s"
-    return words
+        words += f"; {sigma:g} sigma needs {o.nexp} x {o.exposure_s:.0f} s"
+    n = len(o.detected)
+    return words + (f"; {n} of {len(o.targets)} diagnostic features at >= {sigma:g} sigma" if n > 1 else "")
 
 
-def failure_words(p: NightPlan, snr_target: float) -> str:
-    """Why no setup is useful: no strong features, only hidden ones, or too faint (with the best S/N)."""
-    if all(o.n_strong == 0 for o in p.outcomes):
-        p.status = "no-strong"
-        return "no feature is expected to be strong at this epoch"
-    seen = [o for o in p.outcomes if o.n_clear > 0]
+def failure_words(p: NightPlan, sigma: float) -> str:
+    """Why no setup is useful: no diagnostic feature, only hidden ones, or too faint (with the best figure)."""
+    if all(not o.targets for o in p.outcomes):
+        p.status = "no-targets"
+        return "no diagnostic feature is expected to be deep enough at this epoch"
+    seen = [o for o in p.outcomes if o.feature is not None]
     if not seen:
         p.status = "hidden"
-        return ("only hidden features: every strong feature falls outside coverage, in a detector gap "
-                "or in a telluric band for every setup here")
-    best = max(seen, key=lambda o: o.snr or 0.0)
+        return ("only hidden features: every diagnostic trough falls outside coverage, in a detector gap, "
+                "in an opaque telluric band or below the atmospheric cut-off for every setup here")
+    best = max(seen, key=lambda o: o.significance or 0.0)
     p.status = "too-faint"
-    return (f"too faint: at best S/N {best.snr or 0:.1f} (target {snr_target:g}) with {best.setup} at the "
-            f"{best.species} trough in the usable {p.hours_available:.1f} h")
+    return (f"too faint: at best {best.significance or 0:.1f} sigma (target {sigma:g}) with {best.setup} at the "
+            f"{best.words} trough ({best.trough_obs_A:.0f} A) in the usable {p.hours_available:.1f} h")
 
 
 # ---------------------------------------------------------------------------- campaign
 def campaign_summary(plan: Plan) -> dict:
-    """Per site the useful epochs and last useful night; per setup when it becomes too faint."""
-    target = plan.settings["snr_target"]
+    """Per site the useful epochs and last useful night; per setup when it stops detecting anything."""
     sites = []
     for site in plan.sites:
         useful = [p for p in plan.nights if p.site.id == site.id and p.choice is not None]
@@ -483,19 +486,19 @@ def campaign_summary(plan: Plan) -> dict:
     for sid in plan.settings["setups"]:
         rows = sorted(((p.phase_d, p.record.night, o) for p in plan.nights for o in p.outcomes if o.setup == sid),
                       key=lambda r: r[0])
-        reach = [r for r in rows if r[2].snr is not None and r[2].snr >= target]
+        reach = [r for r in rows if r[2].detected]
         last_ok = reach[-1][0] if reach else None
         later = [r for r in rows if last_ok is None or r[0] > last_ok]
-        faint = next((r for r in later if r[2].snr is not None), None) if later else None
-        measured = [r for r in rows if r[2].snr is not None]
+        faint = next((r for r in later if r[2].significance is not None), None) if later else None
+        measured = [r for r in rows if r[2].significance is not None]
         if not measured:
-            note = "never sees a clear strong feature with usable time"
+            note = "never measures a diagnostic trough with usable time"
         elif last_ok is None:
-            note = "never reaches the target"
+            note = "never detects a diagnostic feature at the target significance"
         elif faint is None:
-            note = "still reaches the target at its last epoch"
+            note = "still detects at its last epoch"
         else:
-            note = f"too faint from day {faint[0]:.2f} on"
+            note = f"detects nothing from day {faint[0]:.2f} on"
         setups.append({"setup": sid, "epochs_evaluated": len(rows), "note": note,
                        "last_reaches_target_phase_d": None if last_ok is None else round(last_ok, 4),
                        "too_faint_from_phase_d": None if faint is None else round(faint[0], 4),
@@ -515,26 +518,41 @@ def campaign_summary(plan: Plan) -> dict:
 
 
 # ---------------------------------------------------------------------------- documents and tables
-SCORE_DEFINITION = ("score = N_clear_strong x S/N_window: the number of strong features (tau_sobolev >= "
-                    f"{STRONG_TAU:g}) the setup sees clear, times the S/N per resolution element reachable in the "
-                    "usable time at the reference feature's trough (the clear strong feature with the best S/N); "
-                    "only setups reaching the target S/N are eligible; ties go to the shorter exposure")
+def choice_rule(sigma: float, min_depth: float, bin_kms: float) -> str:
+    """The setup-choice rule in words (plan.json settings.score; quoted by the report)."""
+    return (f"a night and setup are useful when at least one diagnostic feature (by default every feature whose "
+            f"expected depth 1 - exp(-tau) is at least {min_depth:g}) is detected at >= {sigma:g} sigma in the "
+            f"usable time, significance = depth x continuum S/N per {bin_kms:g} km/s bin at the trough x sqrt(bins "
+            f"across the usable trough); the chosen setup detects the most diagnostic features, ties going to the "
+            f"one whose best feature reaches {sigma:g} sigma soonest")
 
 
 def _r(value, digits: int = 4):
     return None if value is None else round(float(value), digits)
 
 
+def reference_summary(o: SetupOutcome | None, sigma: float) -> dict | None:
+    """What a verdict rests on: the best-measured diagnostic trough of the setup."""
+    if o is None or o.feature is None:
+        return None
+    return {"setup": o.setup, "feature": o.feature, "species": o.species, "trough_A": _r(o.trough_obs_A, 1),
+            "arm": o.arm or None, "depth": _r(o.depth, 4), "snr_bin": _r(o.snr_bin, 3),
+            "significance": _r(o.significance, 3), "sigma_target": sigma,
+            "basis": "detection significance of the absorption trough in the usable time"}
+
+
 def outcome_summary(o: SetupOutcome) -> dict:
-    return {"setup": o.setup, "aperture_m": o.aperture_m, "n_strong": o.n_strong, "n_clear_strong": o.n_clear,
-            "strong_features": list(o.strong), "clear_features": list(o.clear), "feature": o.feature,
-            "species": o.species, "trough_obs_A": _r(o.trough_obs_A, 2), "tau_sobolev": _r(o.tau_sobolev, 4),
-            "snr_window": _r(o.snr, 3), "time_for_target_s": _r(o.time_for_target_s, 1), "nexp": o.nexp,
-            "exposure_s": _r(o.exposure_s, 1), "reaches_target": bool(o.reaches_target),
-            "score": _r(o.score, 3), "verdict": o.verdict}
+    return {"setup": o.setup, "aperture_m": o.aperture_m, "n_targets": len(o.targets),
+            "n_detected": len(o.detected or ()), "targets": list(o.targets), "detected": list(o.detected or ()),
+            "feature": o.feature, "species": o.species, "trough_obs_A": _r(o.trough_obs_A, 2), "arm": o.arm or None,
+            "tau_sobolev": _r(o.tau_sobolev, 4), "depth": _r(o.depth, 4), "snr_bin": _r(o.snr_bin, 3),
+            "significance": _r(o.significance, 3), "time_to_sigma_s": _r(o.time_to_sigma_s, 1), "nexp": o.nexp,
+            "exposure_s": _r(o.exposure_s, 1), "detects": bool(o.detected), "snr_at": _r(o.snr_at, 3),
+            "score": _r(o.score, 3), "verdict": o.verdict,
+            "features": [f for f in o.features if f["id"] in o.targets or f["arm"]]}
 
 
-def night_summary(p: NightPlan) -> dict:
+def night_summary(p: NightPlan, sigma: float) -> dict:
     doc = p.record.summary()
     doc["status"], doc["reason"] = p.status, p.reason
     w = p.window
@@ -548,10 +566,16 @@ def night_summary(p: NightPlan) -> dict:
                         for k, v in p.photosphere.items()}}
     doc["setups"] = [outcome_summary(o) for o in p.outcomes]
     c = p.choice
+    seen = [o for o in p.outcomes if o.feature is not None]
+    doc["detected"] = list(c.detected) if c is not None else []
+    doc["reference"] = reference_summary(c if c is not None else
+                                         (max(seen, key=lambda o: o.significance or 0.0) if seen else None), sigma)
     doc["choice"] = None if c is None else {
         "setup": c.setup, "score": _r(c.score, 3), "feature": c.feature, "species": c.species,
-        "trough_obs_A": _r(c.trough_obs_A, 2), "snr": _r(c.snr, 3), "time_for_target_s": _r(c.time_for_target_s, 1),
-        "nexp": c.nexp, "exposure_s": _r(c.exposure_s, 1), "n_clear_strong": c.n_clear, "n_strong": c.n_strong}
+        "trough_obs_A": _r(c.trough_obs_A, 2), "arm": c.arm or None, "significance": _r(c.significance, 3),
+        "snr_bin": _r(c.snr_bin, 3), "time_to_sigma_s": _r(c.time_to_sigma_s, 1), "nexp": c.nexp,
+        "exposure_s": _r(c.exposure_s, 1), "n_detected": len(c.detected), "n_targets": len(c.targets),
+        "detected": list(c.detected)}
     return doc
 
 
@@ -569,7 +593,8 @@ def plan_document(plan: Plan, files: dict | None = None, references=None, assump
     sites = [{"id": s.id, "name": s.name, "latitude_deg": s.latitude_deg, "longitude_deg": s.longitude_deg,
               "elevation_m": s.elevation_m, "setups": [sid for sid in plan.settings["setups"]
                                                        if sid.split("/")[0] == s.id]} for s in plan.sites]
-    return document("plan", event=plan.event.summary(), settings=dict(plan.settings, score=SCORE_DEFINITION),
-                    model=plan.model, sites=sites, nights=[night_summary(p) for p in plan.nights],
+    return document("plan", event=plan.event.summary(), settings=dict(plan.settings, score=choice_rule(
+                        plan.settings["sigma"], plan.settings["min_depth"], plan.settings["bin_kms"])),
+                    model=plan.model, sites=sites, nights=[night_summary(p, plan.settings["sigma"]) for p in plan.nights],
                     campaign=plan.campaign, candidates=[c.summary() for c in plan.candidates], files=files or {}, assumptions=list(assumptions or []),
                     references=list(references or []), cautions=list(CAUTIONS))

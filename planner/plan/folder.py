@@ -54,17 +54,20 @@ WINDOW_COLUMNS = {  # name: (kind, unit)
 }
 FEATURE_COLUMNS = {
     "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
-    "feature": (str, None), "species": (str, None), "trough_obs_A": (float, "Angstrom"),
-    "tau_sobolev": (float, None), "strong": (bool, None), "coverage": (float, None), "gap_loss": (float, None),
-    "telluric_loss": (float, None), "verdict": (str, None), "clear": (bool, None),
+    "id": (str, None), "species": (str, None), "trough_A": (float, "Angstrom"), "arm": (str, None),
+    "depth": (float, None), "snr_bin": (float, None), "snr_resel": (float, None), "n_bins": (float, None),
+    "significance": (float, None), "time_to_sigma_s": (float, "s"), "usable_trough": (float, None),
+    "telluric_loss_trough": (float, None), "telluric_correctable_trough": (float, None),
+    "telluric_loss_emission": (float, None), "below_cutoff": (bool, None), "lte": (bool, None),
+    "target": (bool, None),
 }
 EXPOSURE_COLUMNS = {
     "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
     "airmass": (float, None), "moon_illumination": (float, None), "moon_sep_deg": (float, "deg"),
-    "available_s": (float, "s"), "n_strong": (int, None), "n_clear_strong": (int, None), "feature": (str, None),
-    "trough_obs_A": (float, "Angstrom"), "snr_window": (float, None), "time_for_target_s": (float, "s"),
-    "nexp": (int, None), "exposure_s": (float, "s"), "reaches_target": (bool, None), "score": (float, None),
-    "chosen": (bool, None),
+    "available_s": (float, "s"), "n_targets": (int, None), "n_detected": (int, None), "feature": (str, None),
+    "trough_obs_A": (float, "Angstrom"), "arm": (str, None), "significance": (float, None),
+    "snr_bin": (float, None), "time_to_sigma_s": (float, "s"), "nexp": (int, None), "exposure_s": (float, "s"),
+    "detects": (bool, None), "score": (float, None), "chosen": (bool, None),
 }
 
 
@@ -96,10 +99,11 @@ def exposure_rows(plan) -> list[dict]:
             rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
                          "setup": o.setup, "airmass": forecast_airmass(w), "moon_illumination": w.moon_illumination,
                          "moon_sep_deg": w.moon_sep_deg, "available_s": p.hours_available * 3600.0,
-                         "n_strong": o.n_strong, "n_clear_strong": o.n_clear, "feature": o.feature,
-                         "trough_obs_A": o.trough_obs_A, "snr_window": o.snr,
-                         "time_for_target_s": o.time_for_target_s, "nexp": o.nexp, "exposure_s": o.exposure_s,
-                         "reaches_target": o.reaches_target, "score": o.score, "chosen": o is p.choice})
+                         "n_targets": len(o.targets), "n_detected": len(o.detected), "feature": o.feature,
+                         "trough_obs_A": o.trough_obs_A, "arm": o.arm, "significance": o.significance,
+                         "snr_bin": o.snr_bin, "time_to_sigma_s": o.time_to_sigma_s, "nexp": o.nexp,
+                         "exposure_s": o.exposure_s, "detects": bool(o.detected), "score": o.score,
+                         "chosen": o is p.choice})
     return rows
 
 
@@ -108,12 +112,12 @@ def write_tables(plan, folder: Path) -> dict:
     _table(window_rows(plan), WINDOW_COLUMNS, folder / "windows.ecsv",
            "kncast plan: every observing window per site and night (used = the window the plan uses)")
     _table(plan.features, FEATURE_COLUMNS, folder / "features.ecsv",
-           "kncast plan: feature forecast per site-night epoch and setup (strong: tau_sobolev >= "
-           f"{plan.settings['strong_tau']:g}; clear: strong and verdict 'clear')")
+           "kncast plan: what each feature will show per site-night epoch and setup in the usable time "
+           f"(significance of the trough, continuum S/N per {plan.settings['bin_kms']:g} km/s bin; target: a "
+           "diagnostic feature of that epoch)")
     _table(exposure_rows(plan), EXPOSURE_COLUMNS, folder / "exposures.ecsv",
-           "kncast plan: S/N per resolution element reachable in the usable window and exposure for the "
-           "target S/N at the reference feature (the clear strong feature with the best S/N), per site-night "
-           "epoch and setup")
+           "kncast plan: per site-night epoch and setup, the best-measured diagnostic trough: its significance "
+           f"in the usable time and the exposure reaching {plan.settings['sigma']:g} sigma")
     return {"windows": "windows.ecsv", "features": "features.ecsv", "exposures": "exposures.ecsv"}
 
 
@@ -192,7 +196,7 @@ def figure_jobs(plan) -> list[tuple]:
     jobs += [("spectrum", day, 1 + len(epoch_groups([p for p in chosen if int(p.phase_d) == day])))
              for day in sorted({int(p.phase_d) for p in chosen})]
     jobs += [("snr", sid, 1) for sid in snr_figure_setups(plan)]
-    if any(o.snr is not None for p in plan.nights for o in p.outcomes):
+    if any(o.significance is not None for p in plan.nights for o in p.outcomes):
         jobs.append(("snr-campaign", None, 1))
     return jobs
 
@@ -278,16 +282,17 @@ def snr_spectrum(plan, folder, setup_id):
     ref = next(r for r in plan.setup_refs if r.id == setup_id)
     w = p.window
     cond = window_conditions(w, plan.atmospheres[p.site.id], f"night of {p.record.night.isoformat()} at {p.site.id}")
-    request = Request(phase_d=p.phase_d, snr_target=plan.settings["snr_target"], at=p.choice.feature,
-                      max_exposure_s=DEFAULT_MAX_EXPOSURE_S)
+    c, sigma = p.choice, plan.settings["sigma"]
+    seconds = c.time_to_sigma_s if c.time_to_sigma_s else p.hours_available * 3600.0
+    request = Request(phase_d=p.phase_d, time_s=seconds, max_exposure_s=DEFAULT_MAX_EXPOSURE_S)
     res = observe(plan.event, ref, plan.transient, cond, request, tellurics=plan.tellurics)
     fig = exposure_figure(res)
+    what = (f"the time for {sigma:g} sigma on the {c.words} trough" if c.time_to_sigma_s else "the usable time")
     return {"title": f"S/N spectrum, {setup_id}",
             "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
-            "caption": f"S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s (the "
-                       f"time for S/N {plan.settings['snr_target']:g} at {p.choice.feature}) on day {p.phase_d:.2f}, "
-                       f"night of {p.record.night.isoformat()} at airmass {forecast_airmass(w):.2f}: the last night "
-                       f"this setup is chosen."}
+            "caption": f"Continuum S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s "
+                       f"({what}) on day {p.phase_d:.2f}, night of {p.record.night.isoformat()} at airmass "
+                       f"{forecast_airmass(w):.2f}: the last night this setup is chosen."}
 
 
 def _file_part(text: str) -> str:
@@ -298,8 +303,8 @@ def _file_part(text: str) -> str:
 
 def snr_campaign(plan, folder, _arg):
     return {"title": "S/N across the campaign", "path": _save(snr_campaign_figure(plan), folder, "snr-campaign"),
-            "caption": "S/N per resolution element reachable in each night's usable time at each setup's "
-                       "reference feature, against days since t0; the dashed line is the target."}
+            "caption": "Detection significance of each setup's best-measured diagnostic trough in each night's "
+                       "usable time, against days since t0; the dashed line is the target significance."}
 
 
 FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": spectral_figure,
@@ -307,17 +312,17 @@ FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": sp
 
 
 def snr_campaign_figure(plan):
-    """S/N reachable in the usable window vs epoch, one line per setup (the plan's own numbers)."""
+    """Significance of the best-measured diagnostic trough in the usable window vs epoch, one line per setup."""
     import matplotlib.pyplot as plt
 
     fig, ax = plt.subplots(figsize=(9, 4.6))
     fig.subplots_adjust(left=0.09, right=0.98, bottom=0.12, top=0.92)
-    target = plan.settings["snr_target"]
+    target = plan.settings["sigma"]
     series = {}
     for p in plan.nights:
         for o in p.outcomes:
-            if o.snr is not None:
-                series.setdefault(o.setup, []).append((p.phase_d, max(o.snr, 1e-2), o is p.choice))
+            if o.significance is not None:
+                series.setdefault(o.setup, []).append((p.phase_d, max(o.significance, 1e-2), o is p.choice))
     colours = plt.cm.tab20(np.linspace(0, 1, max(len(series), 2)))
     for (sid, pts), colour in zip(sorted(series.items()), colours):
         pts.sort()
@@ -327,8 +332,9 @@ def snr_campaign_figure(plan):
     ax.axhline(target, color="0.2", ls="--", lw=1)
     ax.set_yscale("log")
     ax.set_xlabel("days since t0")
-    ax.set_ylabel("S/N per resolution element in the usable window")
-    ax.set_title("Reachable S/N per setup (circled: the setup chosen that night)", fontsize=10)
+    ax.set_ylabel("significance of the best trough (sigma)")
+    ax.set_title("Detection significance per setup in the usable time (circled: the setup chosen that night)",
+                 fontsize=10)
     ax.grid(alpha=0.3, which="both")
     if series:
         ax.legend(fontsize=6.5, ncol=2, loc="upper right", frameon=False)
@@ -354,15 +360,18 @@ def assumptions(plan) -> list[str]:
         "kept inside the window); airmass and Moon geometry are taken at the best-airmass time.",
         f"Usable time per night = min(window, {st['max_hours']:g} h) minus {st['overhead_s'] / 60:.0f} min of "
         "acquisition and readout overhead.",
-        f"S/N is per resolution element at the absorption trough of the reference feature (the clear strong "
-        f"feature with the best S/N; all strong features are optically thick), on the model continuum (line "
-        f"depths not applied); target S/N {st['snr_target']:g}.",
+        f"Each feature is judged where it is measured: its absorption trough from v_phot to v_max. Expected depth "
+        f"1 - exp(-tau) (Sobolev, LTE estimate); continuum S/N per {st['bin_kms']:g} km/s bin at the trough; "
+        f"significance = depth x S/N per bin x sqrt(usable bins across the trough); target {st['sigma']:g} sigma.",
         "Exposures are split into single exposures of at most 30 min; seeing, water vapour and extinction "
         "come from each site's [atmosphere] table (or the defaults).",
-        f"A feature is strong when its Sobolev optical depth is >= {st['strong_tau']:g} (LTE estimate) and "
-        "clear when the setup covers it outside detector gaps and telluric bands.",
-        "Score = number of clear strong features x S/N reachable in the usable time; only setups reaching the "
-        "target are eligible.",
+        f"Diagnostic features: " + (", ".join(st["features"]) if st.get("features") else
+                                    f"every feature with an LTE estimate whose expected depth is >= {st['min_depth']:g}")
+        + f". Trough bins on the detector count unless a telluric band transmits less than "
+        f"{st['telluric_threshold']:g} there (bands above that are divided out with a telluric standard); troughs "
+        "where the atmosphere extinguishes more than 1 mag per airmass do not count.",
+        "Choice: the setup detecting the most diagnostic features at the target significance in the usable time; "
+        "ties go to the one whose best feature reaches it soonest.",
         "Telescope Sun-avoidance limits, weather, seeing variations and scheduling constraints are not modelled.",
     ]
 

@@ -61,7 +61,11 @@ def _exposure_words(choice: dict) -> str:
     n, t = choice.get("nexp"), choice.get("exposure_s")
     if n and t:
         return f"{n} x {t:.0f} s"
-    return _fmt(choice.get("time_for_target_s"), ".0f") + " s"
+    return _fmt(choice.get("time_to_sigma_s"), ".0f") + " s"
+
+
+def _sigma_words(choice: dict | None) -> str:
+    return "-" if not choice else _fmt(choice.get("significance"), ".1f")
 
 
 def build_blocks(doc: dict, figures: list[dict]) -> list[Block]:
@@ -95,8 +99,10 @@ def _summary(doc: dict) -> list[Block]:
         f"Event {ev['id']} at RA {ev['ra_deg']:.4f} deg, Dec {ev['dec_deg']:+.4f} deg, t0 {ev['t0_utc']}, "
         f"distance {dist}, Milky Way E(B-V) {ev.get('ebv_mw', 0):.3f} mag.",
         f"Searched {len(doc['sites'])} site(s) over {st['nights']} night(s) after t0 ({st['twilight']} twilight), "
-        f"aiming for S/N {st['snr_target']:g} per resolution element with at most {st['max_hours']:g} h per night "
-        f"and {st['overhead_s'] / 60:.0f} min of acquisition and readout overhead.",
+        f"aiming to detect diagnostic features at {st['sigma']:g} sigma (continuum S/N per {st['bin_kms']:g} km/s "
+        f"bin at each trough) with at most {st['max_hours']:g} h per night and {st['overhead_s'] / 60:.0f} min of "
+        f"acquisition and readout overhead.",
+        f"Rule: {st['score']}.",
     ]
     last = camp.get("last_useful")
     n_useful = camp.get("useful_nights", 0)
@@ -124,28 +130,30 @@ def _window_words(ep: dict) -> str:
 def _night_table(doc: dict) -> list[Block]:
     useful = sorted((n for n in doc["nights"] if n.get("choice")), key=lambda n: n["epoch"]["phase_d"])
     out = [Block("h2", "Recommended observations"),
-           Block("p", "Every site and night where a setup reaches the target S/N, in order of epoch (days since t0 "
-                      "at the middle of the observing block). Exposure: the time for the target S/N at the "
-                      "reference feature's trough; S/N in window: what the whole usable window would give there.")]
+           Block("p", "Every site and night where a setup detects a diagnostic feature at the target significance, "
+                      "in order of epoch (days since t0 at the middle of the observing block). Exposure: the time "
+                      "for the target significance on the best-measured trough; sigma in window: what the whole "
+                      "usable window gives there.")]
     if useful:
         rows = [[f"{n['epoch']['phase_d']:.2f}", n["site"], n["night"], _window_words(n["epoch"]),
                  f"{n['epoch']['airmass']:.2f}", _moon_words(n["epoch"]), n["choice"]["setup"],
-                 f"{n['choice']['feature']} ({n['choice']['trough_obs_A']:.0f} A)", _exposure_words(n["choice"]),
-                 _fmt(n["choice"]["snr"], ".1f")] for n in useful]
+                 f"{n['choice']['feature']} ({n['choice']['trough_obs_A']:.0f} A, {n['choice']['arm'] or '-'})",
+                 _exposure_words(n["choice"]), _sigma_words(n["choice"]), ", ".join(n["detected"])] for n in useful]
         out.append(Block("table", header=["Day", "Site", "Night", "Window (UTC)", "Airmass", "Moon", "Setup",
-                                          "Feature (trough)", "Exposure", "S/N in window"], items=rows))
+                                          "Feature (trough, arm)", "Exposure", "Sigma in window", "Detected"],
+                         items=rows))
     else:
-        out.append(Block("p", "None: no site and night reaches the target S/N at a clear strong feature."))
+        out.append(Block("p", "None: no site and night detects a diagnostic feature at the target significance."))
     rows = []
     for n in doc["nights"]:
         ep, ch = n.get("epoch"), n.get("choice")
         rows.append([n["site"], n["night"], _fmt(ep and ep["phase_d"], ".2f"), _window_words(ep) if ep else "-",
                      _fmt(ep and ep["airmass"], ".2f"), ch["setup"] if ch else "-",
-                     _exposure_words(ch) if ch else "-", _fmt(ch and ch["snr"], ".1f"), n["reason"]])
+                     _exposure_words(ch) if ch else "-", _sigma_words(ch), n["reason"]])
     out += [Block("h2", "Night by night"),
             Block("p", "Every site and night with the choice and the reason in words."),
             Block("table", header=["Site", "Night", "Day", "Window (UTC)", "Airmass", "Setup", "Exposure",
-                                   "S/N in window", "Reason"], items=rows,
+                                   "Sigma in window", "Reason"], items=rows,
                   row_classes=["useful" if n.get("choice") else "" for n in doc["nights"]])]
     return out
 
@@ -159,9 +167,9 @@ def _campaign(doc: dict) -> list[Block]:
     rows = [[s["setup"], _fmt(s["last_reaches_target_phase_d"], ".2f"), _fmt(s["too_faint_from_phase_d"], ".2f"),
              s["note"]] for s in camp["setups"]]
     if rows:
-        out.append(Block("p", "When each setup stops reaching the target S/N even with the full usable window "
-                              "(the source is too faint for it from that epoch on):"))
-        out.append(Block("table", header=["Setup", "Last epoch reaching target (d)", "Too faint from (d)", "In words"],
+        out.append(Block("p", "When each setup stops detecting any diagnostic feature at the target significance "
+                              "even with the full usable window (the source is too faint for it from that epoch on):"))
+        out.append(Block("table", header=["Setup", "Last epoch detecting (d)", "Detects nothing from (d)", "In words"],
                          items=rows))
     return out
 
@@ -200,20 +208,20 @@ def _justification(doc: dict) -> list[Block]:
         rows.append([n["site"], n["night"], f"{ep['phase_d']:.2f}", ch["setup"], _fmt(ph.get("temperature_K"), ".0f"),
                      " / ".join(_fmt(mags.get(b), ".1f") for b in bands),
                      ch["feature"] or "-", _fmt(ch["trough_obs_A"], ".0f"), _exposure_words(ch),
-                     f"{st['snr_target']:g}", _fmt(ch["snr"], ".1f"), _fmt(ep["airmass"], ".2f")])
+                     f"{st['sigma']:g}", _sigma_words(ch), _fmt(ep["airmass"], ".2f")])
     if rows:
         out.append(Block("table", header=["Site", "Night", "Day", "Setup", "T (K)", "AB mag " + " / ".join(_band_label(b) for b in st.get("mag_bands") or ()), "Feature",
-                                          "Trough (A)", "Exposure", "Target S/N", "S/N in window", "Airmass"],
+                                          "Trough (A)", "Exposure", "Target sigma", "Sigma in window", "Airmass"],
                          items=rows))
         chosen = [n for n in doc["nights"] if n.get("choice")]
-        on_source = sum(n["choice"]["time_for_target_s"] or 0.0 for n in chosen) / 3600.0
+        on_source = sum(n["choice"]["time_to_sigma_s"] or 0.0 for n in chosen) / 3600.0
         total = on_source + len(chosen) * st["overhead_s"] / 3600.0
         out.append(Block("p", f"Time request if every recommended observation is taken: {len(chosen)} "
                               f"observation(s), {on_source:.1f} h on source plus {st['overhead_s'] / 60:.0f} min "
-                              f"overhead each, {total:.1f} h in all (S/N {st['snr_target']:g} per resolution "
-                              f"element at the reference feature)."))
+                              f"overhead each, {total:.1f} h in all ({st['sigma']:g} sigma on the best-measured "
+                              f"diagnostic trough)."))
     else:
-        out.append(Block("p", "No night reaches the target S/N at a clear strong feature."))
+        out.append(Block("p", "No night detects a diagnostic feature at the target significance."))
     out.append(Block("h3", "Assumptions"))
     out.append(Block("ul", items=list(doc.get("assumptions", []))))
     out.append(Block("h3", "References"))

@@ -29,14 +29,31 @@ WINDOW = _obj({
     "moon_sep_deg": _num, "phase_start_d": _num, "phase_end_d": _num,
 }, extra=True)
 
-SETUP_OUTCOME = _obj({
-    "setup": {"type": "string"}, "aperture_m": _num, "n_strong": {"type": "integer", "minimum": 0},
-    "n_clear_strong": {"type": "integer", "minimum": 0}, "strong_features": _strings, "clear_features": _strings,
-    "feature": _str_or_null, "species": _str_or_null, "trough_obs_A": _num_or_null, "tau_sobolev": _num_or_null,
-    "snr_window": _num_or_null, "time_for_target_s": _num_or_null, "nexp": _int_or_null,
-    "exposure_s": _num_or_null, "reaches_target": {"type": "boolean"}, "score": {"type": "number", "minimum": 0},
-    "verdict": {"type": "string"},
+_bool = {"type": "boolean"}
+_fraction = {"type": "number", "minimum": 0, "maximum": 1}
+
+FEATURE = _obj({
+    "id": {"type": "string"}, "species": {"type": "string"}, "trough_A": _num_or_null, "arm": _str_or_null,
+    "snr_bin": _num_or_null, "snr_resel": _num_or_null, "depth": _num_or_null, "n_bins": _num_or_null,
+    "significance": _num_or_null, "time_to_sigma_s": _num_or_null, "usable_trough": _fraction,
+    "telluric_loss_trough": _fraction, "telluric_correctable_trough": _fraction,
+    "telluric_loss_emission": _fraction, "below_cutoff": _bool, "lte": _bool,
 })
+
+SETUP_OUTCOME = _obj({
+    "setup": {"type": "string"}, "aperture_m": _num, "n_targets": {"type": "integer", "minimum": 0},
+    "n_detected": {"type": "integer", "minimum": 0}, "targets": _strings, "detected": _strings,
+    "feature": _str_or_null, "species": _str_or_null, "trough_obs_A": _num_or_null, "arm": _str_or_null,
+    "tau_sobolev": _num_or_null, "depth": _num_or_null, "snr_bin": _num_or_null, "significance": _num_or_null,
+    "time_to_sigma_s": _num_or_null, "nexp": _int_or_null, "exposure_s": _num_or_null, "detects": _bool,
+    "snr_at": _num_or_null, "score": {"type": "number", "minimum": 0}, "verdict": {"type": "string"},
+    "features": {"type": "array", "items": FEATURE},
+})
+
+REFERENCE = {"anyOf": [{"type": "null"}, _obj({
+    "setup": {"type": "string"}, "feature": {"type": "string"}, "species": {"type": "string"},
+    "trough_A": _num_or_null, "arm": _str_or_null, "depth": _num_or_null, "snr_bin": _num_or_null,
+    "significance": _num_or_null, "sigma_target": _num, "basis": {"type": "string"}})]}
 
 EPOCH = _obj({
     "phase_d": _num, "utc": _utc, "window_index": {"type": "integer", "minimum": 0},
@@ -49,17 +66,19 @@ EPOCH = _obj({
 
 CHOICE = _obj({
     "setup": {"type": "string"}, "score": _num, "feature": _str_or_null, "species": _str_or_null,
-    "trough_obs_A": _num_or_null, "snr": _num, "time_for_target_s": _num_or_null, "nexp": _int_or_null,
-    "exposure_s": _num_or_null, "n_clear_strong": {"type": "integer"}, "n_strong": {"type": "integer"},
+    "trough_obs_A": _num_or_null, "arm": _str_or_null, "significance": _num, "snr_bin": _num_or_null,
+    "time_to_sigma_s": _num_or_null, "nexp": _int_or_null, "exposure_s": _num_or_null,
+    "n_detected": {"type": "integer"}, "n_targets": {"type": "integer"}, "detected": _strings,
 })
 
-STATUS = {"enum": ["observe", "no-window", "no-spectrograph", "too-short", "hidden", "no-strong", "too-faint"]}
+STATUS = {"enum": ["observe", "no-window", "no-spectrograph", "too-short", "hidden", "no-targets", "too-faint"]}
 
 NIGHT = _obj({
     "site": {"type": "string"}, "night": _date, "dusk_utc": _utc_or_null, "dawn_utc": _utc_or_null,
     "note": {"type": "string"}, "windows": {"type": "array", "items": WINDOW}, "status": STATUS,
     "reason": {"type": "string", "minLength": 1}, "epoch": {"anyOf": [EPOCH, {"type": "null"}]},
     "setups": {"type": "array", "items": SETUP_OUTCOME}, "choice": {"anyOf": [CHOICE, {"type": "null"}]},
+    "detected": _strings, "reference": REFERENCE,
 }, {"dark_hours": _num})
 
 POINT = {"anyOf": [{"type": "null"}, _obj({"site": {"type": "string"}, "night": _date, "phase_d": _num,
@@ -89,7 +108,10 @@ PLAN_SCHEMA = {
             "nights": {"type": "integer", "minimum": 1}, "twilight": {"enum": list(TWILIGHT_DEG)},
             "snr_target": {"type": "number", "exclusiveMinimum": 0}, "snr_per": {"const": SNR_BASIS.removeprefix("per ")},
             "max_hours": {"type": "number", "exclusiveMinimum": 0}, "overhead_s": {"type": "number", "minimum": 0},
-            "strong_tau": _num, "sites": _strings, "setups": _strings, "target": {"type": "string"},
+            "sites": _strings, "sigma": {"type": "number", "exclusiveMinimum": 0},
+            "bin_kms": {"type": "number", "exclusiveMinimum": 0}, "min_depth": _num,
+            "features": {"anyOf": [_strings, {"type": "null"}]}, "snr_at_A": _num_or_null,
+            "telluric_threshold": _fraction, "setups": _strings, "target": {"type": "string"},
             "score": {"type": "string"}}, {"mag_bands": _strings}),
         "model": _obj({"name": {"type": "string"}, "parameters": {"type": "object"}}, extra=True),
         "sites": {"type": "array", "items": _obj({

@@ -120,40 +120,68 @@ def test_schema_rejects_a_broken_document(demo):
 
 
 # ------------------------------------------------------------------ the choice
-def test_the_choice_is_the_best_transparent_score(demo):
+def test_significance_is_depth_times_snr_per_bin_times_root_bins(demo):
+    # internal consistency of the document's own fields (docs/methods.md, "Per-feature detectability")
+    n_checked = 0
+    for n in demo[1]["nights"]:
+        for s in n["setups"]:
+            for f in s["features"]:
+                if f["depth"] is None or f["significance"] is None:
+                    continue
+                expected = f["depth"] * f["snr_bin"] * math.sqrt(f["n_bins"])
+                assert f["significance"] == pytest.approx(expected, rel=2e-3, abs=2e-3)
+                n_checked += 1
+    assert n_checked > 100
+
+
+def test_the_choice_detects_the_most_features_and_names_one(demo):
     doc = demo[1]
-    target = doc["settings"]["snr_target"]
+    sigma = doc["settings"]["sigma"]
     chosen = [n for n in doc["nights"] if n["choice"]]
     assert chosen, "the demo event must give at least one useful night"
     for n in doc["nights"]:
         for s in n["setups"]:
-            expected = s["n_clear_strong"] * s["snr_window"] if s["reaches_target"] else 0.0
-            assert s["score"] == pytest.approx(expected, rel=1e-3, abs=1e-3)
-            assert s["reaches_target"] == (s["snr_window"] is not None and s["snr_window"] >= target)
+            records = {f["id"]: f for f in s["features"]}
+            if n["epoch"]["hours_available"] > 0:
+                detected = [t for t in s["targets"] if (records[t]["significance"] or 0.0) >= sigma]
+                assert sorted(s["detected"]) == sorted(detected)
+            assert s["score"] == len(s["detected"]) and s["detects"] == bool(s["detected"])
         if n["choice"]:
             best = max(s["score"] for s in n["setups"])
-            assert n["choice"]["score"] == pytest.approx(best) and n["status"] == "observe"
             c = n["choice"]
-            assert f"{c['n_clear_strong']} of {c['n_strong']} strong features" in n["reason"]
-            assert c["setup"] in n["reason"] and "S/N" in n["reason"]
+            assert c["score"] == pytest.approx(best) and n["status"] == "observe"
+            assert n["detected"] == c["detected"] and c["detected"]
+            assert c["setup"] in n["reason"] and "sigma" in n["reason"]
+            assert f"{c['trough_obs_A']:.0f} A" in n["reason"]
+            assert n["reference"]["feature"] == c["feature"] and n["reference"]["setup"] == c["setup"]
         else:
             assert n["status"] != "observe" and n["reason"].startswith(("no window", "nothing useful"))
+            assert n["detected"] == []
+
+
+def test_late_useful_nights_at_large_southern_telescopes_rest_on_red_features(demo):
+    # issue 11: after day 3 the 8-10 m southern sites still give useful nights, judged by red or near-IR
+    # troughs (a 3000 K photosphere peaks near 9700 A: Wien's law, b = 2.898e-3 m K, CODATA)
+    large_south = {"paranal", "sutherland"}
+    late = [n for n in demo[1]["nights"] if n["choice"] and n["site"] in large_south and n["epoch"]["phase_d"] > 3.0]
+    assert late, "no useful night after day 3 at the 8-10 m southern sites"
+    for n in late:
+        assert n["reference"]["trough_A"] > 6500.0, n["reason"]
 
 
 def test_campaign_summary_follows_the_nights(demo):
     doc = demo[1]
-    target = doc["settings"]["snr_target"]
     chosen = [n for n in doc["nights"] if n["choice"]]
     last = max(chosen, key=lambda n: n["epoch"]["phase_d"])
     assert doc["campaign"]["last_useful"]["phase_d"] == pytest.approx(last["epoch"]["phase_d"], abs=1e-4)
     assert doc["campaign"]["useful_nights"] == len(chosen)
     for s in doc["campaign"]["setups"]:
-        rows = sorted((n["epoch"]["phase_d"], o["snr_window"]) for n in doc["nights"] for o in n["setups"]
-                      if o["setup"] == s["setup"] and o["snr_window"] is not None)
+        rows = sorted((n["epoch"]["phase_d"], o["detects"]) for n in doc["nights"] for o in n["setups"]
+                      if o["setup"] == s["setup"] and o["significance"] is not None)
         if s["too_faint_from_phase_d"] is not None:
-            assert all(snr < target for ph, snr in rows if ph >= s["too_faint_from_phase_d"] - 1e-4)
+            assert not any(d for ph, d in rows if ph >= s["too_faint_from_phase_d"] - 1e-4)
         if s["last_reaches_target_phase_d"] is not None:
-            assert any(snr >= target for ph, snr in rows if abs(ph - s["last_reaches_target_phase_d"]) < 1e-4)
+            assert any(d for ph, d in rows if abs(ph - s["last_reaches_target_phase_d"]) < 1e-4)
 
 
 def test_usable_time_is_capped_and_net_of_overhead(demo):
@@ -204,31 +232,33 @@ def test_features_agree_with_the_lines_command(demo, scratch):
         out = _json_of(scratch, f"lines{k}", "lines", "--event", SOUTH, "--phases", repr(ep["phase_d"]),
                        "--setup", c["setup"], "--airmass", ep["airmass"], "--pwv", "2.5")
         feats = out["epochs"][0]["features"]
-        clear = [f["feature"] for f in feats if f["tau_sobolev"] is not None and f["tau_sobolev"] >= 1.0
-                 and f["setups"][0]["verdict"] == "clear"]
         mine = next(s for s in n["setups"] if s["setup"] == c["setup"])
-        assert sorted(mine["clear_features"]) == sorted(clear)
         ref = next(f for f in feats if f["feature"] == c["feature"])
         assert c["trough_obs_A"] == pytest.approx(ref["trough_obs_A"], abs=0.2)
         assert mine["tau_sobolev"] == pytest.approx(ref["tau_sobolev"], rel=1e-3)
+        assert mine["depth"] == pytest.approx(1.0 - math.exp(-ref["tau_sobolev"]), rel=1e-3)
 
 
 def test_exposures_agree_with_the_exposure_command(demo, scratch):
-    target = demo[1]["settings"]["snr_target"]
-    for k, n in enumerate(_picked(demo[1])):
+    # the continuum S/N per resolution element at the reference trough in the usable time is what
+    # `kncast exposure --time` gives there under the same conditions: one exposure path
+    checked = 0
+    for k, n in enumerate(_picked(demo[1], k=6)):
         ep, c = n["epoch"], n["choice"]
+        mine = next(s for s in n["setups"] if s["setup"] == c["setup"])
+        if mine["tau_sobolev"] is None or mine["tau_sobolev"] < 1.0:
+            continue  # the exposure command lists the strong features (tau >= 1) only
+        record = next(f for f in mine["features"] if f["id"] == c["feature"])
         conditions = ("--airmass", ep["airmass"], "--moon-illumination", ep["moon_illumination"],
                       "--moon-sep", ep["moon_sep_deg"], "--moon-alt", ep["moon_altitude_deg"])
-        need = _json_of(scratch, f"exp{k}", "exposure", "--event", SOUTH, "--setup", c["setup"],
-                        "--phase", repr(ep["phase_d"]), "--snr", target, "--at", c["feature"], *conditions)
-        assert need["exposure"]["time_s"] == pytest.approx(c["time_for_target_s"], rel=2e-3)
-        assert need["exposure"]["nexp"] == c["nexp"]
         available = ep["hours_available"] * 3600.0
         nexp = max(1, math.ceil(available / 1800.0 - 1e-9))
         got = _json_of(scratch, f"exp{k}t", "exposure", "--event", SOUTH, "--setup", c["setup"],
                        "--phase", repr(ep["phase_d"]), "--time", repr(available), "--nexp", nexp, *conditions)
         at = next(f for f in got["features"] if f["feature"] == c["feature"])
-        assert at["snr_per_resel"] == pytest.approx(c["snr"], rel=2e-3)
+        assert at["snr_per_resel"] == pytest.approx(record["snr_resel"], rel=2e-3)
+        checked += 1
+    assert checked
 
 
 # ------------------------------------------------------------------ hard events

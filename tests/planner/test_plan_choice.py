@@ -29,14 +29,20 @@ def _night(site="s1", day=0, hours=3.0, outcomes=(), phase=1.0):
     return NightPlan(record=rec, window_index=0, phase_d=phase, hours_available=hours, outcomes=list(outcomes))
 
 
-def _outcome(setup, n_clear, snr, target=10.0, n_strong=6, t_need=1000.0, nexp=1):
-    o = SetupOutcome(setup=setup, aperture_m=4.0, n_strong=n_strong, strong=[f"f{i}" for i in range(n_strong)],
-                     clear=[f"f{i}" for i in range(n_clear)])
-    if n_clear:
-        o.feature, o.species, o.trough_obs_A, o.tau_sobolev = "f0", "Sr II", 9000.0, 5.0
-    if snr is not None:
-        o.snr, o.reaches_target = snr, snr >= target
-        o.time_for_target_s, o.nexp, o.exposure_s = t_need, nexp, t_need / nexp
+SIGMA = 5.0
+SETTINGS = {"sigma": SIGMA}
+
+
+def _outcome(setup, n_detected, significance, n_targets=6, t_need=1000.0, nexp=1, seen=True):
+    """A setup measuring ``n_targets`` diagnostic features, ``n_detected`` of them at >= SIGMA; its best
+    trough (the Sr II 10039 A one at 9000 A in the red arm) at ``significance``."""
+    o = SetupOutcome(setup=setup, aperture_m=4.0, targets=[f"f{i}" for i in range(n_targets)],
+                     detected=[f"f{i}" for i in range(n_detected)])
+    if seen and n_targets:
+        o.feature, o.species, o.words, o.trough_obs_A, o.arm = "f0", "Sr II", "Sr II 10039 A", 9000.0, "red"
+        o.significance, o.snr_bin, o.depth = significance, 3.0, 0.5
+        if t_need is not None:
+            o.time_to_sigma_s, o.nexp, o.exposure_s = t_need, nexp, t_need / nexp
     return o
 
 
@@ -51,49 +57,50 @@ def test_observing_block_centre(start, end, best, max_h, centre):
     assert got_h == pytest.approx(centre, abs=1e-6)
 
 
-def test_score_is_clear_features_times_snr_when_the_target_is_reached():
-    assert score(_outcome("a", 5, 23.0)) == pytest.approx(115.0)
-    assert score(_outcome("b", 5, 9.9)) == 0.0          # below the target: not eligible
-    assert score(_outcome("c", 0, None)) == 0.0
+def test_score_is_the_number_of_features_detected():
+    assert score(_outcome("a", 5, 23.0)) == 5.0
+    assert score(_outcome("b", 0, 4.9)) == 0.0          # below the target significance: not eligible
+    assert score(_outcome("c", 0, None, n_targets=0)) == 0.0
 
 
-def test_choice_takes_the_highest_score_and_says_why():
-    n = _night(outcomes=[_outcome("wide", 5, 23.0, t_need=2400, nexp=2), _outcome("deep", 2, 50.0),
-                         _outcome("faint", 6, 8.0)])
-    choose(n, 10.0, 900.0)
-    assert n.status == "observe" and n.choice.setup == "wide"  # 5 x 23 = 115 beats 2 x 50 = 100
-    assert n.reason == ("wide covers 5 of 6 strong features clear of telluric bands and reaches S/N 23 at the "
-                        "Sr II trough (9000 A) in 3.0 h; S/N 10 needs 2 x 1200 s")
+def test_choice_detects_the_most_features_and_names_the_feature():
+    n = _night(outcomes=[_outcome("wide", 3, 12.0, t_need=2400, nexp=2), _outcome("deep", 2, 50.0),
+                         _outcome("faint", 0, 4.0)])
+    choose(n, SETTINGS, 900.0)
+    assert n.status == "observe" and n.choice.setup == "wide"  # 3 features detected beat 2, however deep
+    assert n.detected == ["f0", "f1", "f2"]
+    assert n.reason == ("wide: Sr II 10039 A trough at 9000 A (red arm): 12.0 sigma in 3.0 h; 5 sigma needs "
+                        "2 x 1200 s; 3 of 6 diagnostic features at >= 5 sigma")
 
 
-def test_ties_go_to_the_shorter_exposure():
-    n = _night(outcomes=[_outcome("slow", 2, 30.0, t_need=3000), _outcome("fast", 3, 20.0, t_need=1000)])
-    choose(n, 10.0, 900.0)
+def test_ties_go_to_the_setup_reaching_sigma_soonest():
+    n = _night(outcomes=[_outcome("slow", 2, 30.0, t_need=3000), _outcome("fast", 2, 20.0, t_need=1000)])
+    choose(n, SETTINGS, 900.0)
     assert n.choice.setup == "fast"
 
 
 @pytest.mark.parametrize("outcomes, hours, status, words", [
-    ([_outcome("a", 0, None, n_strong=0)], 3.0, "no-strong", "no feature is expected to be strong"),
-    ([_outcome("a", 0, None), _outcome("b", 0, None)], 3.0, "hidden", "only hidden features"),
-    ([_outcome("a", 3, 4.2), _outcome("b", 1, 7.5)], 3.0, "too-faint", "at best S/N 7.5 (target 10) with b"),
+    ([_outcome("a", 0, None, n_targets=0)], 3.0, "no-targets", "no diagnostic feature is expected to be deep"),
+    ([_outcome("a", 0, None, seen=False), _outcome("b", 0, None, seen=False)], 3.0, "hidden",
+     "only hidden features"),
+    ([_outcome("a", 0, 4.2), _outcome("b", 0, 3.1)], 3.0, "too-faint", "at best 4.2 sigma (target 5) with a"),
     ([], 3.0, "no-spectrograph", "no spectrograph setup known"),
     ([_outcome("a", 3, None)], 0.0, "too-short", "shorter than the 15 min overhead"),
 ])
 def test_nights_without_a_useful_setup_say_why(outcomes, hours, status, words):
     n = _night(outcomes=outcomes, hours=hours)
-    choose(n, 10.0, 900.0)
+    choose(n, SETTINGS, 900.0)
     assert n.choice is None and n.status == status
     assert n.reason.startswith("nothing useful") and words in n.reason
 
 
 def test_campaign_summary_last_useful_and_too_faint():
-    target = 10.0
     nights = []
-    for day, snr in enumerate([30.0, 12.0, 8.0, 5.0]):  # one setup fading below the target on day 2
-        n = _night(day=day, phase=day + 0.5, outcomes=[_outcome("s1/t/i", 3, snr)])
-        choose(n, target, 900.0)
+    for day, sig in enumerate([30.0, 12.0, 4.0, 2.0]):  # one setup fading below the target on day 2
+        n = _night(day=day, phase=day + 0.5, outcomes=[_outcome("s1/t/i", 3 if sig >= SIGMA else 0, sig)])
+        choose(n, SETTINGS, 900.0)
         nights.append(n)
-    plan = Plan(event=None, sites=[SimpleNamespace(id="s1")], settings={"snr_target": target, "setups": ["s1/t/i"]},
+    plan = Plan(event=None, sites=[SimpleNamespace(id="s1")], settings={"sigma": SIGMA, "setups": ["s1/t/i"]},
                 visibility=None, transient=None, nights=nights)
     c = campaign_summary(plan)
     assert c["useful_nights"] == 2
@@ -101,4 +108,4 @@ def test_campaign_summary_last_useful_and_too_faint():
     assert c["sites"][0]["useful_phases_d"] == [0.5, 1.5]
     s = c["setups"][0]
     assert s["last_reaches_target_phase_d"] == 1.5 and s["too_faint_from_phase_d"] == 2.5
-    assert s["too_faint_from_night"] == "2027-03-16" and s["note"] == "too faint from day 2.50 on"
+    assert s["too_faint_from_night"] == "2027-03-16" and s["note"] == "detects nothing from day 2.50 on"

@@ -1,0 +1,204 @@
+"""What each feature will show: per-feature measurements for epochs x setups under one sky.
+
+:func:`measure` takes a feature forecast (:func:`kncast.forecast.features.forecast_features`),
+the rows (epochs) and columns (setups) to evaluate, the observing conditions of each row and
+the time spent, and returns, per epoch x feature x setup, the observed trough and its arm,
+the continuum S/N per velocity bin and per resolution element, the expected depth, the
+detection significance and the time reaching the target significance
+(:mod:`kncast.forecast.detect`), and the telluric losses over the trough (v_phot to v_max)
+and over the emission peak, bands transmitting at least
+:data:`kncast.forecast.tellurics.CORRECTABLE_TRANSMISSION` counting as correctable.  One
+batched exposure evaluation for all rows and columns: no loop over epochs.
+
+A trough counts only where it is measured: on the detector (arm coverage, detector and
+dichroic gaps as in :mod:`kncast.forecast.coverage`), outside opaque telluric bands, and
+above the atmospheric cut-off (extinction below
+:data:`kncast.forecast.defaults.UV_CUTOFF_MAG_PER_AIRMASS` mag per airmass).
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA,
+                                      UV_CUTOFF_MAG_PER_AIRMASS)
+
+__all__ = ["Measurements", "measure", "feature_record", "feature_words", "diagnostic_mask"]
+
+
+@dataclass
+class Measurements:
+    """Arrays (n_rows, n_features, n_cols) unless noted; ``rows``/``cols`` index the forecast's epochs/setups."""
+
+    rows: np.ndarray
+    cols: list
+    trough_A: np.ndarray                 # (n_rows, n_features), vacuum observed A
+    depth: np.ndarray                    # (n_rows, n_features); NaN: no LTE estimate
+    lte: np.ndarray                      # (n_features,) bool
+    arm: np.ndarray                      # str, '' off the detector
+    snr_bin: np.ndarray
+    snr_resel: np.ndarray
+    n_bins: np.ndarray
+    significance: np.ndarray
+    time_to_sigma_s: np.ndarray          # inf where unreachable
+    nexp_to_sigma: np.ndarray
+    usable_trough: np.ndarray            # fraction of the trough measured
+    telluric_loss_trough: np.ndarray     # fraction of the trough in opaque bands (on the detector)
+    telluric_correctable_trough: np.ndarray
+    telluric_loss_emission: np.ndarray   # fraction of the emission peak in opaque bands (on the detector)
+    below_cutoff: np.ndarray             # (n_rows, n_features) bool
+    settings: dict = field(default_factory=dict)
+
+
+def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s, tellurics, atmosphere,
+            sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS, max_exposure_s=DEFAULT_MAX_EXPOSURE_S) -> Measurements:
+    """Per-feature measurements of forecast epochs ``rows`` in setups ``cols`` (indices into ``refs``,
+    the forecast's setup order), all under one ``atmosphere``.
+
+    ``conditions``: kncast.forecast.exposure.Conditions whose arrays have one value per row (or scalars);
+    ``airmass``, ``pwv_mm``, ``time_s`` (total on the target, s): scalars or arrays (n_rows,).
+    """
+    from kncast.forecast import exposure as ex
+    from kncast.forecast.detect import absorption_depth, detect
+
+    rows = np.asarray(rows, dtype=int)
+    n_rows, n_feat = rows.size, fc.tau.shape[1]
+    w = fc.windows
+    lam = w.trough_A[rows]                                             # (R, F)
+    flat = lam.ravel()
+    per_row = lambda v: np.repeat(np.broadcast_to(np.asarray(v, float), (n_rows,)), n_feat)  # noqa: E731
+    x_flat, pwv_flat, t_flat = per_row(airmass), per_row(pwv_mm), per_row(time_s)
+    flux = _trough_flux(transient, fc.epochs.phase_d[rows], lam).ravel()
+    grids = [ex.setup_grid(refs[c].telescope, refs[c].instrument, refs[c].setup, wavelength_A=flat) for c in cols]
+    grid = ex.stack_grids(grids)                                       # (C, R*F)
+    tell = 1.0 if tellurics is None else tellurics.transmission(flat, x_flat, pwv_flat)
+    r = ex.rates(flux[None, :], grid, _flat_conditions(conditions, n_rows, n_feat), tell)
+    nexp = np.maximum(1, np.ceil(t_flat / max_exposure_s - 1e-9)).astype(int)
+    res = ex.expose(r, t_flat, nexp)
+    lte = _lte_flags(fc)
+    depth = absorption_depth(fc.tau[rows])
+    depth = np.where(lte[None, :], depth, np.nan)
+    cutoff = atmosphere.k_mag(lam) > UV_CUTOFF_MAG_PER_AIRMASS
+    lo, hi = w.absorption_lo_A[rows], w.absorption_hi_A[rows]
+    losses = _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm)
+    usable = np.where(cutoff[..., None], 0.0, losses["usable"])       # (R, F, C)
+    det = detect(r, res, depth.ravel()[None, :], lo.ravel()[None, :], hi.ravel()[None, :],
+                 np.moveaxis(usable, -1, 0).reshape(len(cols), -1), sigma=sigma, bin_kms=bin_kms,
+                 max_exposure_s=max_exposure_s)
+    back = lambda a: np.moveaxis(np.asarray(a).reshape(len(cols), n_rows, n_feat), 0, -1)  # noqa: E731
+    arms = np.stack([_arm_names(g) for g in grids])                    # (C, R*F)
+    return Measurements(
+        rows=rows, cols=list(cols), trough_A=lam, depth=depth, lte=lte, arm=back(arms),
+        snr_bin=back(det.snr_bin), snr_resel=back(det.snr_resel), n_bins=back(det.n_bins),
+        significance=back(det.significance), time_to_sigma_s=back(det.time_to_sigma_s),
+        nexp_to_sigma=back(det.nexp_to_sigma), usable_trough=usable,
+        telluric_loss_trough=losses["opaque_trough"], telluric_correctable_trough=losses["correctable_trough"],
+        telluric_loss_emission=losses["opaque_emission"], below_cutoff=cutoff,
+        settings={"sigma": float(sigma), "bin_kms": float(bin_kms)})
+
+
+def _trough_flux(transient, phase_d, lam):
+    """Observed continuum F_lambda at each row's own troughs (rows x features), one model call."""
+    n, nf = lam.shape
+    every = transient.flux_flam(np.asarray(phase_d, float), lam.ravel()).reshape(n, n, nf)
+    return every[np.arange(n), np.arange(n)]
+
+
+def _flat_conditions(cond, n_rows: int, n_feat: int):
+    """Conditions with per-row arrays repeated over the features (flat rows x features axis)."""
+    import dataclasses
+
+    def flat(v):
+        a = np.asarray(v, dtype=float)
+        return np.repeat(np.broadcast_to(a, (n_rows,)), n_feat) if a.ndim else v
+
+    moon = cond.moon
+    if moon is not None:
+        moon = dataclasses.replace(moon, **{f.name: flat(getattr(moon, f.name)) for f in dataclasses.fields(moon)})
+    return dataclasses.replace(cond, airmass=flat(cond.airmass), seeing_arcsec=flat(cond.seeing_arcsec),
+                               pwv_mm=flat(cond.pwv_mm), moon=moon)
+
+
+def _lte_flags(fc) -> np.ndarray:
+    """(n_features,) True where the line strengths have an LTE estimate (the forecast's flag, if it has one)."""
+    flag = getattr(fc, "lte_applies", None)
+    if flag is not None:
+        return np.asarray(flag, dtype=bool)
+    return np.ones(fc.tau.shape[1], dtype=bool)
+
+
+def _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm) -> dict:
+    """Trough and emission-peak fractions per setup: measured (on the detector and not opaque), opaque and
+    correctable (bands transmitting at least the threshold)."""
+    from kncast.forecast.coverage import window_fractions
+
+    w = fc.windows
+    lo, hi = w.absorption_lo_A[rows], w.absorption_hi_A[rows]
+    elo, ehi = w.emission_lo_A[rows], w.emission_hi_A[rows]
+    x = np.asarray(airmass, float).reshape(-1, 1) if np.ndim(airmass) else airmass
+    p = np.asarray(pwv_mm, float).reshape(-1, 1) if np.ndim(pwv_mm) else pwv_mm
+    shape = lo.shape + (len(cols),)
+    out = {k: np.zeros(shape) for k in ("usable", "opaque_trough", "correctable_trough", "opaque_emission")}
+    for j, c in enumerate(cols):  # a loop over setups only; each step is vectorized over all epochs and features
+        setup = refs[c].setup
+        covered = window_fractions(lo, hi, setup)["coverage"]
+        if tellurics is None:
+            opaque = correct = e_opaque = np.zeros(lo.shape)
+        else:
+            cov = setup.covered_intervals_A()
+            opaque, correct = tellurics.opaque_and_correctable(lo, hi, x, p, covered_A=cov)
+            e_opaque, _ = tellurics.opaque_and_correctable(elo, ehi, x, p, covered_A=cov)
+        out["usable"][..., j] = np.clip(covered - opaque, 0.0, 1.0)
+        out["opaque_trough"][..., j], out["correctable_trough"][..., j] = opaque, correct
+        out["opaque_emission"][..., j] = e_opaque
+    return out
+
+
+def _arm_names(grid) -> np.ndarray:
+    names = np.array(list(grid.arm_names) + [""], dtype=object)
+    idx = np.where(grid.on_detector, grid.arm_index, len(grid.arm_names))
+    return names[idx].astype(str)
+
+
+def diagnostic_mask(m: Measurements, chosen=None, feature_ids=None, min_depth=DEFAULT_MIN_DEPTH) -> np.ndarray:
+    """(n_rows, n_features) True for the diagnostic targets: the ``chosen`` feature ids, or by default
+    every feature with an LTE estimate whose expected depth is at least ``min_depth`` at that epoch."""
+    if chosen:
+        ids = np.array(list(feature_ids))
+        return np.broadcast_to(np.isin(ids, list(chosen))[None, :], m.depth.shape)
+    with np.errstate(invalid="ignore"):
+        return np.isfinite(m.depth) & (m.depth >= min_depth)
+
+
+def _r(v, nd):
+    if v is None:
+        return None
+    v = float(v)
+    return round(v, nd) if np.isfinite(v) else None
+
+
+def _sig(v, digits: int = 5):
+    """``v`` to ``digits`` significant figures (None when not finite)."""
+    v = float(v)
+    return float(f"{v:.{digits}g}") if np.isfinite(v) else None
+
+
+def feature_record(m: Measurements, i: int, f: int, j: int, feature) -> dict:
+    """The JSON record of feature ``f`` at row ``i`` in column ``j`` (keys documented in docs/json.md)."""
+    t = float(m.time_to_sigma_s[i, f, j])
+    return {"id": feature.id, "species": feature.species, "trough_A": _r(m.trough_A[i, f], 1),
+            "arm": str(m.arm[i, f, j]) or None, "snr_bin": _sig(m.snr_bin[i, f, j]),
+            "snr_resel": _sig(m.snr_resel[i, f, j]), "depth": _sig(m.depth[i, f]),
+            "n_bins": _sig(m.n_bins[i, f, j]), "significance": _sig(m.significance[i, f, j]),
+            "time_to_sigma_s": _r(t, 1) if np.isfinite(t) else None,
+            "usable_trough": _r(m.usable_trough[i, f, j], 4),
+            "telluric_loss_trough": _r(m.telluric_loss_trough[i, f, j], 4),
+            "telluric_correctable_trough": _r(m.telluric_correctable_trough[i, f, j], 4),
+            "telluric_loss_emission": _r(m.telluric_loss_emission[i, f, j], 4),
+            "below_cutoff": bool(m.below_cutoff[i, f]), "lte": bool(m.lte[f])}
+
+
+def feature_words(feature) -> str:
+    """'Sr II 10039 A' : the species and its first rest wavelength (vacuum)."""
+    return f"{feature.species} {feature.rest_vac_A[0]:.0f} A"
