@@ -15,10 +15,11 @@ import numpy as np
 
 from kncast.forecast.errors import DataFileError
 from kncast.forecast.references import (BIEMONT_2011, GALLAGHER_1967, HILBORN_1982, HOTOKEZAKA_2023, LJUNG_2006,
-                                        NIST_ASD, SAFRONOVA_SAFRONOVA_2011, STECK_CS)
+                                        LUCY_1991, NIST_ASD, SAFRONOVA_SAFRONOVA_2011, STECK_CS)
 
-# Published sources cited below (gf from an Einstein A), as data (records in kncast.forecast.references).
-REFERENCES = (HILBORN_1982,)
+# Published sources cited below (gf from an Einstein A; the non-LTE rule), as data (records in
+# kncast.forecast.references).
+REFERENCES = (HILBORN_1982, LUCY_1991)
 # The works behind each ``source`` string of the bundled list (forecast/data/lines.ecsv).  A user's
 # list may name other sources: those are kept in its rows but have no citation record here.
 SOURCE_REFERENCES = {

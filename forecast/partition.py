@@ -29,8 +29,12 @@ import numpy as np
 from astropy import constants as const
 
 from kncast.forecast.errors import DataFileError
+from kncast.forecast.references import NIST_ASD
 
-__all__ = ["LEVELS_PATH", "GRAY_PATH", "SOURCES", "C2_CM_K", "THETA_K", "PartitionData", "PartitionFunctions", "level_sum",
+# Published sources cited above, as data (Gray 2005 is a book: cited in the docstring only).
+REFERENCES = (NIST_ASD,)
+
+__all__ = ["REFERENCES", "LEVELS_PATH", "GRAY_PATH", "SOURCES", "C2_CM_K", "THETA_K", "PartitionData", "PartitionFunctions", "level_sum",
            "gray_table_log_u"]
 
 DATA = Path(__file__).resolve().parent / "data"

@@ -104,6 +104,9 @@ GALLAGHER_1967 = Citation("Gallagher", 1967, "Phys. Rev.", "157", "24", "Ba II o
 BIEMONT_2011 = Citation("Biemont et al.", 2011, "MNRAS", "414", "3350",
                         "Y II lifetimes and oscillator strengths; from memory")
 LJUNG_2006 = Citation("Ljung et al.", 2006, "A&A", "456", "1181", "Zr II oscillator strengths; from memory")
+LUCY_1991 = Citation("Lucy", 1991, "ApJ", "383", "308",
+                     "non-thermal excitation of He I in radioactive ejecta: why the He I 10830 lower level "
+                     "(19.8 eV) gets no LTE estimate; from memory")
 STECK_CS = Citation("Steck", 2010, "Cesium D Line Data", "rev. 2.1.4", "steck.us/alkalidata",
                     "Cs I D1/D2 wavelengths; online reference notes, not a journal article; the revision "
                     "used for the line list is not recorded")
