@@ -121,11 +121,8 @@ def _flat_conditions(cond, n_rows: int, n_feat: int):
 
 
 def _lte_flags(fc) -> np.ndarray:
-    """(n_features,) True where the line strengths have an LTE estimate (the forecast's flag, if it has one)."""
-    flag = getattr(fc, "lte_applies", None)
-    if flag is not None:
-        return np.asarray(flag, dtype=bool)
-    return np.ones(fc.tau.shape[1], dtype=bool)
+    """(n_features,) True where the line strengths have an LTE estimate (FeatureForecast.lte_valid)."""
+    return np.asarray(fc.lte_valid, dtype=bool)
 
 
 def _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm) -> dict:
@@ -202,3 +199,30 @@ def feature_record(m: Measurements, i: int, f: int, j: int, feature) -> dict:
 def feature_words(feature) -> str:
     """'Sr II 10039 A' : the species and its first rest wavelength (vacuum)."""
     return f"{feature.species} {feature.rest_vac_A[0]:.0f} A"
+
+
+def records_for_setups(transient, fc, refs, airmass: float, pwv_mm: float, time_s: float, tellurics,
+                       sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS) -> list:
+    """Feature records (:func:`feature_record`) for every epoch x feature x setup of ``fc`` (setups in
+    ``refs`` order), for ``time_s`` seconds at ``airmass`` and ``pwv_mm`` under a dark sky, each setup with
+    its site's seeing and extinction.  Returns nested lists [epoch][feature][setup]."""
+    from kncast.forecast.exposure import Conditions
+    from kncast.forecast.extinction_atm import atmosphere_for_site
+
+    n, nf = fc.tau.shape
+    out = [[[None] * len(refs) for _ in range(nf)] for _ in range(n)]
+    by_site: dict = {}
+    for k, r in enumerate(refs):
+        by_site.setdefault(r.site.id, []).append(k)
+    rows = np.arange(n)
+    for cols in by_site.values():  # one batched evaluation per site (a handful of sites)
+        atm = atmosphere_for_site(refs[cols[0]].site)
+        cond = Conditions(airmass=airmass, seeing_arcsec=atm.seeing_arcsec, moon=None, pwv_mm=pwv_mm,
+                          atmosphere=atm)
+        m = measure(transient, fc, rows, cols, refs, cond, airmass, pwv_mm, time_s, tellurics, atm,
+                    sigma=sigma, bin_kms=bin_kms)
+        for i in range(n):
+            for f in range(nf):
+                for j, k in enumerate(cols):
+                    out[i][f][k] = feature_record(m, i, f, j, fc.features[f])
+    return out

@@ -10,6 +10,7 @@ HELP = "forecast diagnostic line features per epoch: observed windows, LTE stren
 DEFAULT_PHASES = "1.5,2.5,3.5,4.5"
 DEFAULT_AIRMASS = 1.2
 DEFAULT_PWV_MM = 2.5
+DEFAULT_TIME_S = 3600.0
 MAX_VELOCITY_C = 0.8
 DETAIL_SETUPS = 4  # up to this many setups: one detailed column per setup in the feature table
 CAUTION = ("Model estimates: windows from a homologous P Cygni picture, strengths from an LTE/Sobolev estimate "
@@ -31,6 +32,15 @@ def add_arguments(p) -> None:
                    help=f"airmass for the telluric bands, 1-10 (default {DEFAULT_AIRMASS:g})")
     g.add_argument("--pwv", type=finite_float("--pwv", 0.0, 50.0), default=DEFAULT_PWV_MM, metavar="MM",
                    help=f"precipitable water vapour, mm, 0-50 (default {DEFAULT_PWV_MM:g})")
+    from kncast.forecast.defaults import DEFAULT_BIN_KMS, DEFAULT_SIGMA
+
+    m = p.add_argument_group("what each feature will show (dark sky, each setup's site seeing and extinction)")
+    m.add_argument("--time", type=finite_float("--time", 1.0, 1e6), default=DEFAULT_TIME_S, metavar="S",
+                   help=f"time on the target for the S/N and significance per feature, s (default {DEFAULT_TIME_S:g})")
+    m.add_argument("--sigma", type=finite_float("--sigma", 0, 100, low_open=True), default=DEFAULT_SIGMA,
+                   metavar="N", help=f"target significance for time_to_sigma_s (default {DEFAULT_SIGMA:g})")
+    m.add_argument("--bin-kms", type=finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS, metavar="KMS",
+                   help=f"velocity bin of the continuum S/N across a trough, km/s (default {DEFAULT_BIN_KMS:g})")
     v = p.add_argument_group("what-if velocities (replace the model's at every epoch)")
     v.add_argument("--vphot", type=finite_float("--vphot"), metavar="C",
                    help=f"photospheric velocity, fraction of c, in (0, {MAX_VELOCITY_C:g})")
@@ -124,7 +134,7 @@ def compute(args):
     return event, transient, result, refs, linelist
 
 
-def lines_document(event, transient, result, args, linelist) -> dict:
+def lines_document(event, transient, result, args, linelist, refs) -> dict:
     """The ``--json`` document (schema in docs/json.md, section "lines")."""
     from kncast.planner.output import document
 
@@ -140,8 +150,29 @@ def lines_document(event, transient, result, args, linelist) -> dict:
         "coverage_window": "whole P Cygni profile: absorption_obs_A[0] .. emission_obs_A[1]",
         "non_lte_rule": _non_lte_rule(),
     }
+    settings.update(time_s=args.time, sigma=args.sigma, bin_kms=args.bin_kms,
+                    measurement="dark sky at the given airmass and water vapour; each setup with its site's "
+                                "seeing and extinction")
+    epochs = result.epoch_rows()
+    _add_measurements(epochs, result, transient, args, refs)
     return document("lines", event=event.summary(), model={"name": transient.photosphere.name},
-                    settings=settings, setups=result.setup_ids, epochs=result.epoch_rows(), caution=CAUTION)
+                    settings=settings, setups=result.setup_ids, epochs=epochs, caution=CAUTION)
+
+
+def _add_measurements(epochs: list, result, transient, args, refs) -> None:
+    """Merge each feature's measurement record into its per-setup entries (keys in docs/json.md)."""
+    from kncast.forecast.tellurics import TelluricModel
+    from kncast.planner.measure import records_for_setups
+
+    records = records_for_setups(transient, result, refs, args.airmass, args.pwv, args.time, TelluricModel.load(),
+                                 sigma=args.sigma, bin_kms=args.bin_kms)
+    index = {f.id: k for k, f in enumerate(result.features)}
+    for i, ep in enumerate(epochs):
+        for feat in ep["features"]:
+            for k, entry in enumerate(feat["setups"]):
+                rec = dict(records[i][index[feat["feature"]]][k])
+                rec.pop("id"), rec.pop("species")
+                entry.update(rec)
 
 
 def _non_lte_rule() -> str:
@@ -154,7 +185,7 @@ def _non_lte_rule() -> str:
 
 def run(args) -> int:
     event, transient, result, refs, linelist = compute(args)
-    doc = lines_document(event, transient, result, args, linelist)
+    doc = lines_document(event, transient, result, args, linelist, refs)
     if args.plot:
         from kncast.planner.output import save_figure
         from kncast.planner.figures.lines import lines_figure
