@@ -61,6 +61,10 @@ import numpy as np
 from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, stefan_boltzmann_luminosity
 from kncast.forecast.errors import ForecastInputError
 from kncast.forecast.heating import DAY_S, arnett_luminosity, input_luminosity_erg_s
+from kncast.forecast.references import ARNETT_1982, BARNES_2016, KOROBKIN_2012, WAXMAN_2018
+
+# Published sources cited above, as data (records in kncast.forecast.references).
+REFERENCES = (KOROBKIN_2012, BARNES_2016, ARNETT_1982, WAXMAN_2018)
 
 MODEL_NAMES = ("powerlaw", "heating")
 V_LIMIT_C = 0.8  # ejecta velocities allowed in (0, 0.8) c

@@ -22,7 +22,7 @@ from astropy.cosmology import Planck18
 
 from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, planck_sum_flam
 from kncast.forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
-from kncast.forecast.errors import ForecastInputError, check_range
+from kncast.forecast.errors import ForecastInputError, ParameterError, check_range
 from kncast.forecast.extinction import transmission
 from kncast.forecast.photometry import ab_minus_vega, band_set
 from kncast.forecast.units import FLAM, value_in
@@ -76,7 +76,7 @@ class Transient:
                 raise ForecastInputError("distance and distance_mpc: give one of them, not both")
             distance_mpc = value_in(distance, u.Mpc, "distance")
         if distance_mpc is None and redshift is None:
-            raise ForecastInputError("distance needed: give --distance-mpc or distance_mpc in the event file")
+            raise ParameterError("distance_mpc", message="distance needed: give {distance_mpc} (in an event file: distance_mpc) or a redshift")
         if redshift is None:
             redshift = redshift_for_distance(distance_mpc, cosmology)
         elif distance_mpc is None:
