@@ -80,7 +80,7 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
     depth = absorption_depth(fc.tau[rows])
     depth = np.where(lte[None, :], depth, np.nan)
     cutoff = atmosphere.k_mag(lam) > UV_CUTOFF_MAG_PER_AIRMASS
-    lo, hi = w.absorption_lo_A[rows], w.absorption_hi_A[rows]
+    lo, hi = trough_window(w, rows)
     losses = _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm)
     usable = np.where(cutoff[..., None], 0.0, losses["usable"])       # (R, F, C)
     det = detect(r, res, depth.ravel()[None, :], lo.ravel()[None, :], hi.ravel()[None, :],
@@ -96,6 +96,13 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
         telluric_loss_trough=losses["opaque_trough"], telluric_correctable_trough=losses["correctable_trough"],
         telluric_loss_emission=losses["opaque_emission"], below_cutoff=cutoff,
         settings={"sigma": float(sigma), "bin_kms": float(bin_kms)})
+
+
+def trough_window(windows, rows):
+    """(lo, hi) vacuum A of the trough where a feature is measured: from the blue edge at v_max to the
+    trough at v_phot (rows x features)."""
+    lo = windows.absorption_lo_A[rows]
+    return lo, np.maximum(windows.trough_A[rows], lo + 1e-3)
 
 
 def _trough_flux(transient, phase_d, lam):
@@ -131,7 +138,7 @@ def _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm) -> dict:
     from kncast.forecast.coverage import window_fractions
 
     w = fc.windows
-    lo, hi = w.absorption_lo_A[rows], w.absorption_hi_A[rows]
+    lo, hi = trough_window(w, rows)
     elo, ehi = w.emission_lo_A[rows], w.emission_hi_A[rows]
     x = np.asarray(airmass, float).reshape(-1, 1) if np.ndim(airmass) else airmass
     p = np.asarray(pwv_mm, float).reshape(-1, 1) if np.ndim(pwv_mm) else pwv_mm

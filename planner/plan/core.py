@@ -350,7 +350,7 @@ def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> S
     idx = [f for f in np.argsort(-m.significance[k, :, j], kind="stable") if targets[k, f]]
     o.targets = [fc.features[f].id for f in idx]
     if p.hours_available <= 0:
-        o.verdict = _verdict(o)
+        o.verdict = "no usable time"
         return o
     o.detected = [fc.features[f].id for f in idx if m.significance[k, f, j] >= sigma]
     seen = [f for f in idx if m.usable_trough[k, f, j] > 0]

@@ -12,7 +12,11 @@ TOP_KEYS = {"kncast", "kind", "event", "epochs"}
 EPOCH_KEYS = {"phase_d", "temperature_K", "v_phot_c", "v_max_c", "features"}
 FEATURE_KEYS = {"feature", "species", "rest_vac_A", "trough_obs_A", "absorption_obs_A", "emission_obs_A",
                 "tau_sobolev", "lte", "setups"}
-SETUP_KEYS = {"setup", "coverage", "gap_loss", "telluric_loss", "verdict"}
+SETUP_KEYS = {"setup", "coverage", "gap_loss", "telluric_loss", "verdict",
+              # what each feature will show (issue 11 contract)
+              "trough_A", "arm", "snr_bin", "snr_resel", "depth", "n_bins", "significance", "time_to_sigma_s",
+              "usable_trough", "telluric_loss_trough", "telluric_correctable_trough", "telluric_loss_emission",
+              "below_cutoff", "lte"}
 VERDICTS = {"clear", "partly hidden", "hidden by atmosphere", "in detector gap", "outside coverage"}
 
 
