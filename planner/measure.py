@@ -23,6 +23,9 @@ import numpy as np
 
 from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA,
                                       UV_CUTOFF_MAG_PER_AIRMASS)
+from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+
+TROUGH_SAMPLES = 9  # places across the trough (v_phot .. v_max) where the continuum S/N may be measured
 
 __all__ = ["Measurements", "measure", "feature_record", "feature_words", "diagnostic_mask"]
 
@@ -37,6 +40,7 @@ class Measurements:
     depth: np.ndarray                    # (n_rows, n_features); NaN: no LTE estimate
     lte: np.ndarray                      # (n_features,) bool
     arm: np.ndarray                      # str, '' off the detector
+    measured_A: np.ndarray               # where the continuum S/N is measured: the trough, or the nearest usable
     snr_bin: np.ndarray
     snr_resel: np.ndarray
     n_bins: np.ndarray
@@ -63,39 +67,62 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
     from kncast.forecast.detect import absorption_depth, detect
 
     rows = np.asarray(rows, dtype=int)
-    n_rows, n_feat = rows.size, fc.tau.shape[1]
+    n_rows, n_feat, n_cols, k = rows.size, fc.tau.shape[1], len(cols), TROUGH_SAMPLES
     w = fc.windows
     lam = w.trough_A[rows]                                             # (R, F)
-    flat = lam.ravel()
+    lo, hi = trough_window(w, rows)
+    # samples from the trough (v_phot) towards the blue edge (v_max): the continuum is measured at the
+    # first one that is on the detector, above the cut-off and outside opaque bands
+    lam_k = hi[..., None] - (hi - lo)[..., None] * np.linspace(0.0, 1.0, k)          # (R, F, K)
+    flat = lam_k.ravel()
     per_row = lambda v: np.repeat(np.broadcast_to(np.asarray(v, float), (n_rows,)), n_feat)  # noqa: E731
     x_flat, pwv_flat, t_flat = per_row(airmass), per_row(pwv_mm), per_row(time_s)
-    flux = _trough_flux(transient, fc.epochs.phase_d[rows], lam).ravel()
+    flux = _trough_flux(transient, fc.epochs.phase_d[rows], lam_k.reshape(n_rows, -1)).ravel()
     grids = [ex.setup_grid(refs[c].telescope, refs[c].instrument, refs[c].setup, wavelength_A=flat) for c in cols]
-    grid = ex.stack_grids(grids)                                       # (C, R*F)
-    tell = 1.0 if tellurics is None else tellurics.transmission(flat, x_flat, pwv_flat)
-    r = ex.rates(flux[None, :], grid, _flat_conditions(conditions, n_rows, n_feat), tell)
+    tell = np.ones_like(flat) if tellurics is None else tellurics.transmission(flat, np.repeat(x_flat, k),
+                                                                               np.repeat(pwv_flat, k))
+    r = ex.rates(flux[None, :], ex.stack_grids(grids), _flat_conditions(conditions, n_rows, n_feat * k), tell)
+    ok = r.on_detector & (tell >= CORRECTABLE_TRANSMISSION) & (atmosphere.k_mag(flat) <= UV_CUTOFF_MAG_PER_AIRMASS)
+    ok = ok.reshape(n_cols, n_rows * n_feat, k)
+    pick = np.argmax(ok, axis=-1)                                      # first usable sample (0: none)
+    r = _picked(r, pick, ok.any(axis=-1), k)                           # (C, R*F)
     nexp = np.maximum(1, np.ceil(t_flat / max_exposure_s - 1e-9)).astype(int)
     res = ex.expose(r, t_flat, nexp)
     lte = _lte_flags(fc)
-    depth = absorption_depth(fc.tau[rows])
-    depth = np.where(lte[None, :], depth, np.nan)
+    depth = np.where(lte[None, :], absorption_depth(fc.tau[rows]), np.nan)
     cutoff = atmosphere.k_mag(lam) > UV_CUTOFF_MAG_PER_AIRMASS
-    lo, hi = trough_window(w, rows)
     losses = _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm)
     usable = np.where(cutoff[..., None], 0.0, losses["usable"])       # (R, F, C)
     det = detect(r, res, depth.ravel()[None, :], lo.ravel()[None, :], hi.ravel()[None, :],
-                 np.moveaxis(usable, -1, 0).reshape(len(cols), -1), sigma=sigma, bin_kms=bin_kms,
+                 np.moveaxis(usable, -1, 0).reshape(n_cols, -1), sigma=sigma, bin_kms=bin_kms,
                  max_exposure_s=max_exposure_s)
-    back = lambda a: np.moveaxis(np.asarray(a).reshape(len(cols), n_rows, n_feat), 0, -1)  # noqa: E731
-    arms = np.stack([_arm_names(g) for g in grids])                    # (C, R*F)
+    back = lambda a: np.moveaxis(np.asarray(a).reshape(n_cols, n_rows, n_feat), 0, -1)  # noqa: E731
+    arms = np.stack([_take(_arm_names(g).reshape(-1, k), pick[j]) for j, g in enumerate(grids)])
+    arms = np.where(r.on_detector, arms, "")
     return Measurements(
         rows=rows, cols=list(cols), trough_A=lam, depth=depth, lte=lte, arm=back(arms),
-        snr_bin=back(det.snr_bin), snr_resel=back(det.snr_resel), n_bins=back(det.n_bins),
-        significance=back(det.significance), time_to_sigma_s=back(det.time_to_sigma_s),
+        measured_A=back(r.wavelength_A), snr_bin=back(det.snr_bin), snr_resel=back(det.snr_resel),
+        n_bins=back(det.n_bins), significance=back(det.significance), time_to_sigma_s=back(det.time_to_sigma_s),
         nexp_to_sigma=back(det.nexp_to_sigma), usable_trough=usable,
         telluric_loss_trough=losses["opaque_trough"], telluric_correctable_trough=losses["correctable_trough"],
         telluric_loss_emission=losses["opaque_emission"], below_cutoff=cutoff,
         settings={"sigma": float(sigma), "bin_kms": float(bin_kms)})
+
+
+def _take(a, pick):
+    """``a[..., pick]`` along the last axis (``pick`` one index per row)."""
+    return np.take_along_axis(a, pick[..., None], axis=-1)[..., 0]
+
+
+def _picked(r, pick, usable, k: int):
+    """Rates at the chosen sample of each trough: fields (C, N*K) -> (C, N); unusable troughs off the detector."""
+    import dataclasses
+
+    shape = r.wavelength_A.shape
+    fields = {f.name: _take(np.broadcast_to(np.asarray(getattr(r, f.name)), shape).reshape(shape[0], -1, k), pick)
+              for f in dataclasses.fields(r)}
+    fields["on_detector"] = usable
+    return type(r)(**fields)
 
 
 def trough_window(windows, rows):
@@ -192,6 +219,7 @@ def feature_record(m: Measurements, i: int, f: int, j: int, feature) -> dict:
     """The JSON record of feature ``f`` at row ``i`` in column ``j`` (keys documented in docs/json.md)."""
     t = float(m.time_to_sigma_s[i, f, j])
     return {"id": feature.id, "species": feature.species, "trough_A": _r(m.trough_A[i, f], 1),
+            "measured_A": _r(m.measured_A[i, f, j], 1) if m.arm[i, f, j] else None,
             "arm": str(m.arm[i, f, j]) or None, "snr_bin": _sig(m.snr_bin[i, f, j]),
             "snr_resel": _sig(m.snr_resel[i, f, j]), "depth": _sig(m.depth[i, f]),
             "n_bins": _sig(m.n_bins[i, f, j]), "significance": _sig(m.significance[i, f, j]),

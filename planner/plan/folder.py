@@ -54,7 +54,8 @@ WINDOW_COLUMNS = {  # name: (kind, unit)
 }
 FEATURE_COLUMNS = {
     "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
-    "id": (str, None), "species": (str, None), "trough_A": (float, "Angstrom"), "arm": (str, None),
+    "id": (str, None), "species": (str, None), "trough_A": (float, "Angstrom"), "measured_A": (float, "Angstrom"),
+    "arm": (str, None),
     "depth": (float, None), "snr_bin": (float, None), "snr_resel": (float, None), "n_bins": (float, None),
     "significance": (float, None), "time_to_sigma_s": (float, "s"), "usable_trough": (float, None),
     "telluric_loss_trough": (float, None), "telluric_correctable_trough": (float, None),

@@ -33,7 +33,8 @@ _bool = {"type": "boolean"}
 _fraction = {"type": "number", "minimum": 0, "maximum": 1}
 
 FEATURE = _obj({
-    "id": {"type": "string"}, "species": {"type": "string"}, "trough_A": _num_or_null, "arm": _str_or_null,
+    "id": {"type": "string"}, "species": {"type": "string"}, "trough_A": _num_or_null, "measured_A": _num_or_null,
+    "arm": _str_or_null,
     "snr_bin": _num_or_null, "snr_resel": _num_or_null, "depth": _num_or_null, "n_bins": _num_or_null,
     "significance": _num_or_null, "time_to_sigma_s": _num_or_null, "usable_trough": _fraction,
     "telluric_loss_trough": _fraction, "telluric_correctable_trough": _fraction,

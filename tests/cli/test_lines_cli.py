@@ -14,7 +14,8 @@ FEATURE_KEYS = {"feature", "species", "rest_vac_A", "trough_obs_A", "absorption_
                 "tau_sobolev", "lte", "setups"}
 SETUP_KEYS = {"setup", "coverage", "gap_loss", "telluric_loss", "verdict",
               # what each feature will show (issue 11 contract)
-              "trough_A", "arm", "snr_bin", "snr_resel", "depth", "n_bins", "significance", "time_to_sigma_s",
+              "trough_A", "measured_A", "arm", "snr_bin", "snr_resel", "depth", "n_bins", "significance",
+              "time_to_sigma_s",
               "usable_trough", "telluric_loss_trough", "telluric_correctable_trough", "telluric_loss_emission",
               "below_cutoff", "lte"}
 VERDICTS = {"clear", "partly hidden", "hidden by atmosphere", "in detector gap", "outside coverage"}
