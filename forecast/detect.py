@@ -3,14 +3,17 @@
 For one feature at one epoch in one setup (every kernel is vectorized over any
 shape of epochs x features x setups):
 
-* ``depth = 1 - exp(-tau)``: the fractional depth of the absorption against
-  the continuum, with tau the Sobolev optical depth of the line at the
-  photosphere.  Stated approximation: a pure-scattering line in homologous
-  ejecta in front of a sharp photosphere removes the fraction 1 - e^-tau of the
-  continuum at the velocity of the photosphere (Jeffery & Branch 1990, in
-  Supernovae, Jerusalem Winter School 6, 149; from memory); emission filling
-  in the trough and line blending are neglected, so the depth is an upper
-  bound for a single line and features deeper than ~0.6 are rarely seen.
+* ``depth = (1 - W) (1 - exp(-tau))``: the fractional depth of the absorption
+  against the continuum, with tau the Sobolev optical depth of the line at the
+  photosphere and W = 1/2 the geometric dilution factor there.  A pure-scattering
+  line in homologous ejecta has the Sobolev source function S = W I_c, so the
+  intensity through a resonance point in front of the photosphere is
+  I_c [e^-tau + W (1 - e^-tau)] (Jeffery & Branch 1990, in Supernovae, Jerusalem
+  Winter School 6, 149; from memory): even a saturated line fills half its
+  trough near the photosphere with scattered light.  Stated approximation: one
+  depth for the whole trough (tau and W taken at the photosphere; tau falling
+  and W falling outwards partly cancel), line blending neglected.  With W = 0
+  this is the plain 1 - exp(-tau) of a pure absorber, an upper bound.
 * the velocity bin: ``bin_A = lambda_trough x dv_bin / c`` (default dv_bin =
   1500 km/s, a tenth of the trough width for 0.1-0.3 c ejecta; common
   practice for broad kilonova features, which are smoothed before fitting);
@@ -39,17 +42,20 @@ import numpy as np
 from kncast.forecast.defaults import DEFAULT_BIN_KMS, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA
 
 C_KMS = 299792.458  # speed of light, km/s (CODATA, exact)
+# geometric dilution W = (1 - sqrt(1 - (R/r)^2)) / 2 at the photosphere r = R (textbook geometry)
+PHOTOSPHERE_DILUTION = 0.5
 MAX_TARGET_SNR = 1e5  # a continuum S/N per resolution element beyond this counts as unreachable
 
-__all__ = ["absorption_depth", "bin_width_A", "snr_per_bin", "velocity_bins", "significance",
+__all__ = ["PHOTOSPHERE_DILUTION", "absorption_depth", "bin_width_A", "snr_per_bin", "velocity_bins", "significance",
            "snr_bin_for_sigma", "resel_target_for_bin", "Detection", "detect", "DEFAULT_BIN_KMS",
            "DEFAULT_SIGMA", "DEFAULT_MIN_DEPTH"]
 
 
-def absorption_depth(tau) -> np.ndarray:
-    """Fractional depth 1 - exp(-tau) of a Sobolev line (NaN where tau has no estimate)."""
+def absorption_depth(tau, dilution=PHOTOSPHERE_DILUTION) -> np.ndarray:
+    """Fractional depth (1 - W) (1 - exp(-tau)) of a Sobolev scattering line seen against the photosphere
+    (W the dilution factor; NaN where tau has no estimate)."""
     tau = np.asarray(tau, dtype=float)
-    return -np.expm1(-np.where(np.isfinite(tau), np.clip(tau, 0.0, None), np.nan))
+    return (1.0 - float(dilution)) * -np.expm1(-np.where(np.isfinite(tau), np.clip(tau, 0.0, None), np.nan))
 
 
 def bin_width_A(wavelength_A, bin_kms=DEFAULT_BIN_KMS) -> np.ndarray:

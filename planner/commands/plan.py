@@ -30,7 +30,7 @@ def add_arguments(p) -> None:
                                      f"for the night to be useful (default {DEFAULT_SIGMA:g})")
     g.add_argument("--features", action="append", metavar="ID,...",
                    help="diagnostic features to judge by (feature ids as in kncast lines; default: every feature "
-                        f"whose expected depth 1 - exp(-tau) is at least {DEFAULT_MIN_DEPTH:g} at that epoch)")
+                        f"whose expected depth (1 - W)(1 - exp(-tau)) is at least {DEFAULT_MIN_DEPTH:g} at that epoch)")
     g.add_argument("--bin-kms", type=_common.finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS,
                    metavar="KMS", help=f"velocity bin of the continuum S/N across a trough, km/s "
                                        f"(default {DEFAULT_BIN_KMS:g})")

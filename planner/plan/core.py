@@ -521,7 +521,7 @@ def campaign_summary(plan: Plan) -> dict:
 def choice_rule(sigma: float, min_depth: float, bin_kms: float) -> str:
     """The setup-choice rule in words (plan.json settings.score; quoted by the report)."""
     return (f"a night and setup are useful when at least one diagnostic feature (by default every feature whose "
-            f"expected depth 1 - exp(-tau) is at least {min_depth:g}) is detected at >= {sigma:g} sigma in the "
+            f"expected depth (1 - W)(1 - exp(-tau)) is at least {min_depth:g}) is detected at >= {sigma:g} sigma in the "
             f"usable time, significance = depth x continuum S/N per {bin_kms:g} km/s bin at the trough x sqrt(bins "
             f"across the usable trough); the chosen setup detects the most diagnostic features, ties going to the "
             f"one whose best feature reaches {sigma:g} sigma soonest")

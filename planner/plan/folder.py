@@ -362,7 +362,8 @@ def assumptions(plan) -> list[str]:
         f"Usable time per night = min(window, {st['max_hours']:g} h) minus {st['overhead_s'] / 60:.0f} min of "
         "acquisition and readout overhead.",
         f"Each feature is judged where it is measured: its absorption trough from v_phot to v_max. Expected depth "
-        f"1 - exp(-tau) (Sobolev, LTE estimate); continuum S/N per {st['bin_kms']:g} km/s bin at the trough; "
+        f"(1 - W)(1 - exp(-tau)) of a scattering line against the photosphere (Sobolev, LTE estimate; dilution "
+        f"W = 1/2); continuum S/N per {st['bin_kms']:g} km/s bin at the trough; "
         f"significance = depth x S/N per bin x sqrt(usable bins across the trough); target {st['sigma']:g} sigma.",
         "Exposures are split into single exposures of at most 30 min; seeing, water vapour and extinction "
         "come from each site's [atmosphere] table (or the defaults).",

@@ -236,7 +236,8 @@ def test_features_agree_with_the_lines_command(demo, scratch):
         ref = next(f for f in feats if f["feature"] == c["feature"])
         assert c["trough_obs_A"] == pytest.approx(ref["trough_obs_A"], abs=0.2)
         assert mine["tau_sobolev"] == pytest.approx(ref["tau_sobolev"], rel=1e-3)
-        assert mine["depth"] == pytest.approx(1.0 - math.exp(-ref["tau_sobolev"]), rel=1e-3)
+        # depth of a scattering line against the photosphere, (1 - W)(1 - e^-tau), W = 1/2 (docs/methods.md)
+        assert mine["depth"] == pytest.approx(0.5 * (1.0 - math.exp(-ref["tau_sobolev"])), rel=1e-3)
 
 
 def test_exposures_agree_with_the_exposure_command(demo, scratch):

@@ -10,11 +10,15 @@ from kncast.forecast import detect
 from kncast.forecast import exposure as ex
 
 
-def test_depth_is_one_minus_exp_minus_tau():
-    # Sobolev depth at the photosphere: 1 - e^-tau (Jeffery & Branch 1990; from memory)
+def test_depth_of_a_scattering_line():
+    # Sobolev scattering line against the photosphere: I / I_c = e^-tau + W (1 - e^-tau), so the depth is
+    # (1 - W)(1 - e^-tau) (Jeffery & Branch 1990; from memory); W = 1/2 at the photosphere (geometry)
+    assert detect.PHOTOSPHERE_DILUTION == 0.5
     got = detect.absorption_depth([0.0, 1.0, np.log(2.0), np.nan, 50.0])
-    np.testing.assert_allclose(got[:3], [0.0, 1.0 - math.exp(-1.0), 0.5], rtol=1e-12)
-    assert np.isnan(got[3]) and got[4] == pytest.approx(1.0)
+    np.testing.assert_allclose(got[:3], [0.0, 0.5 * (1.0 - math.exp(-1.0)), 0.25], rtol=1e-12)
+    assert np.isnan(got[3]) and got[4] == pytest.approx(0.5)
+    # W = 0: a pure absorber, 1 - e^-tau
+    assert detect.absorption_depth(1.0, dilution=0.0) == pytest.approx(1.0 - math.exp(-1.0))
 
 
 def test_bin_width_hand_case():
