@@ -10,8 +10,8 @@ Baseline, measured in the same run (interleaved with the plan runs, so both
 see the same machine load): the separate per-question commands for the
 same event, each as its own process with ``--json`` and ``--plot``, summed --
 ``kncast visibility`` (same sites and nights), ``kncast lightcurve``
-(default epochs), ``kncast lines`` (default epochs) and ``kncast exposure``
-(S/N 10), the last two for one representative setup: the plan's own choice
+(default epochs), ``kncast lines`` (default epochs, which now also measures every feature) and
+``kncast exposure`` (the S/N spectrum of one hour), the last two for one representative setup: the plan's own choice
 for its first useful night, at that night's epoch (read from the first
 run's plan.json).  The plan does more than that sum (features and exposures
 for every setup of every site at every planned epoch, plus the report), so
@@ -88,7 +88,7 @@ def separate_commands(out: Path, setup: str, phase_d: float) -> dict[str, list[s
         "visibility": cmd("visibility", "--sites", SITES, "--nights", str(NIGHTS)),
         "lightcurve": cmd("lightcurve"),
         "lines": cmd("lines", "--setup", setup),
-        "exposure": cmd("exposure", "--setup", setup, "--phase", f"{phase_d:g}", "--snr", "10"),
+        "exposure": cmd("exposure", "--setup", setup, "--phase", f"{phase_d:g}", "--time", "3600"),
     }
 
 
