@@ -56,12 +56,15 @@ class Measurements:
 
 
 def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s, tellurics, atmosphere,
-            sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS, max_exposure_s=DEFAULT_MAX_EXPOSURE_S) -> Measurements:
+            sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS, max_exposure_s=DEFAULT_MAX_EXPOSURE_S,
+            telluric_threshold=CORRECTABLE_TRANSMISSION) -> Measurements:
     """Per-feature measurements of forecast epochs ``rows`` in setups ``cols`` (indices into ``refs``,
     the forecast's setup order), all under one ``atmosphere``.
 
     ``conditions``: kncast.forecast.exposure.Conditions whose arrays have one value per row (or scalars);
     ``airmass``, ``pwv_mm``, ``time_s`` (total on the target, s): scalars or arrays (n_rows,).
+    Telluric bands transmitting at least ``telluric_threshold`` are divided out (correctable); below it the
+    trough is lost there.
     """
     from kncast.forecast import exposure as ex
     from kncast.forecast.detect import absorption_depth, detect
@@ -82,7 +85,7 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
     tell = np.ones_like(flat) if tellurics is None else tellurics.transmission(flat, np.repeat(x_flat, k),
                                                                                np.repeat(pwv_flat, k))
     r = ex.rates(flux[None, :], ex.stack_grids(grids), _flat_conditions(conditions, n_rows, n_feat * k), tell)
-    ok = r.on_detector & (tell >= CORRECTABLE_TRANSMISSION) & (atmosphere.k_mag(flat) <= UV_CUTOFF_MAG_PER_AIRMASS)
+    ok = r.on_detector & (tell >= telluric_threshold) & (atmosphere.k_mag(flat) <= UV_CUTOFF_MAG_PER_AIRMASS)
     ok = ok.reshape(n_cols, n_rows * n_feat, k)
     pick = np.argmax(ok, axis=-1)                                      # first usable sample (0: none)
     r = _picked(r, pick, ok.any(axis=-1), k)                           # (C, R*F)
@@ -91,7 +94,7 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
     lte = _lte_flags(fc)
     depth = np.where(lte[None, :], absorption_depth(fc.tau[rows]), np.nan)
     cutoff = atmosphere.k_mag(lam) > UV_CUTOFF_MAG_PER_AIRMASS
-    losses = _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm)
+    losses = _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm, telluric_threshold)
     usable = np.where(cutoff[..., None], 0.0, losses["usable"])       # (R, F, C)
     det = detect(r, res, depth.ravel()[None, :], lo.ravel()[None, :], hi.ravel()[None, :],
                  np.moveaxis(usable, -1, 0).reshape(n_cols, -1), sigma=sigma, bin_kms=bin_kms,
@@ -159,7 +162,7 @@ def _lte_flags(fc) -> np.ndarray:
     return np.asarray(fc.lte_valid, dtype=bool)
 
 
-def _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm) -> dict:
+def _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm, threshold) -> dict:
     """Trough and emission-peak fractions per setup: measured (on the detector and not opaque), opaque and
     correctable (bands transmitting at least the threshold)."""
     from kncast.forecast.coverage import window_fractions
@@ -178,8 +181,8 @@ def _losses(fc, rows, cols, refs, tellurics, airmass, pwv_mm) -> dict:
             opaque = correct = e_opaque = np.zeros(lo.shape)
         else:
             cov = setup.covered_intervals_A()
-            opaque, correct = tellurics.opaque_and_correctable(lo, hi, x, p, covered_A=cov)
-            e_opaque, _ = tellurics.opaque_and_correctable(elo, ehi, x, p, covered_A=cov)
+            opaque, correct = tellurics.opaque_and_correctable(lo, hi, x, p, covered_A=cov, threshold=threshold)
+            e_opaque, _ = tellurics.opaque_and_correctable(elo, ehi, x, p, covered_A=cov, threshold=threshold)
         out["usable"][..., j] = np.clip(covered - opaque, 0.0, 1.0)
         out["opaque_trough"][..., j], out["correctable_trough"][..., j] = opaque, correct
         out["opaque_emission"][..., j] = e_opaque
@@ -237,7 +240,8 @@ def feature_words(feature) -> str:
 
 
 def records_for_setups(transient, fc, refs, airmass: float, pwv_mm: float, time_s: float, tellurics,
-                       sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS) -> list:
+                       sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS,
+                       telluric_threshold=CORRECTABLE_TRANSMISSION) -> list:
     """Feature records (:func:`feature_record`) for every epoch x feature x setup of ``fc`` (setups in
     ``refs`` order), for ``time_s`` seconds at ``airmass`` and ``pwv_mm`` under a dark sky, each setup with
     its site's seeing and extinction.  Returns nested lists [epoch][feature][setup]."""
@@ -255,7 +259,7 @@ def records_for_setups(transient, fc, refs, airmass: float, pwv_mm: float, time_
         cond = Conditions(airmass=airmass, seeing_arcsec=atm.seeing_arcsec, moon=None, pwv_mm=pwv_mm,
                           atmosphere=atm)
         m = measure(transient, fc, rows, cols, refs, cond, airmass, pwv_mm, time_s, tellurics, atm,
-                    sigma=sigma, bin_kms=bin_kms)
+                    sigma=sigma, bin_kms=bin_kms, telluric_threshold=telluric_threshold)
         for i in range(n):
             for f in range(nf):
                 for j, k in enumerate(cols):

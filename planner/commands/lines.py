@@ -41,6 +41,12 @@ def add_arguments(p) -> None:
                    metavar="N", help=f"target significance for time_to_sigma_s (default {DEFAULT_SIGMA:g})")
     m.add_argument("--bin-kms", type=finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS, metavar="KMS",
                    help=f"velocity bin of the continuum S/N across a trough, km/s (default {DEFAULT_BIN_KMS:g})")
+    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+
+    m.add_argument("--telluric-threshold", type=finite_float("--telluric-threshold", 0, 1),
+                   default=CORRECTABLE_TRANSMISSION, metavar="T",
+                   help="telluric bands transmitting at least T are divided out (correctable); below it a trough "
+                        f"is lost there (default {CORRECTABLE_TRANSMISSION:g})")
     v = p.add_argument_group("what-if velocities (replace the model's at every epoch)")
     v.add_argument("--vphot", type=finite_float("--vphot"), metavar="C",
                    help=f"photospheric velocity, fraction of c, in (0, {MAX_VELOCITY_C:g})")
@@ -151,6 +157,7 @@ def lines_document(event, transient, result, args, linelist, refs) -> dict:
         "non_lte_rule": _non_lte_rule(),
     }
     settings.update(time_s=args.time, sigma=args.sigma, bin_kms=args.bin_kms,
+                    telluric_threshold=args.telluric_threshold,
                     measurement="dark sky at the given airmass and water vapour; each setup with its site's "
                                 "seeing and extinction")
     epochs = result.epoch_rows()
@@ -165,7 +172,8 @@ def _add_measurements(epochs: list, result, transient, args, refs) -> None:
     from kncast.planner.measure import records_for_setups
 
     records = records_for_setups(transient, result, refs, args.airmass, args.pwv, args.time, TelluricModel.load(),
-                                 sigma=args.sigma, bin_kms=args.bin_kms)
+                                 sigma=args.sigma, bin_kms=args.bin_kms,
+                                 telluric_threshold=args.telluric_threshold)
     index = {f.id: k for k, f in enumerate(result.features)}
     for i, ep in enumerate(epochs):
         for feat in ep["features"]:

@@ -34,6 +34,12 @@ def add_arguments(p) -> None:
     g.add_argument("--bin-kms", type=_common.finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS,
                    metavar="KMS", help=f"velocity bin of the continuum S/N across a trough, km/s "
                                        f"(default {DEFAULT_BIN_KMS:g})")
+    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+
+    g.add_argument("--telluric-threshold", type=_common.finite_float("--telluric-threshold", 0, 1),
+                   default=CORRECTABLE_TRANSMISSION, metavar="T",
+                   help="telluric bands transmitting at least T are divided out (correctable); below it a trough "
+                        f"is lost there (default {CORRECTABLE_TRANSMISSION:g})")
     g.add_argument("--snr-at", type=_common.finite_float("--snr-at", 1000, 60000), metavar="WAVELENGTH_A",
                    help="also report a plain continuum S/N per resolution element at this vacuum wavelength, A")
     g.add_argument("--snr", type=_common.finite_float("--snr", 0, 1000, low_open=True), default=10.0,
@@ -79,7 +85,8 @@ def run(args) -> int:
         plan = build_plan(event, sites, nights=args.nights, snr_target=args.snr, max_hours=args.max_hours,
                           overhead_s=args.overhead_min * 60.0, twilight=args.twilight, registry=registry,
                           overrides=overrides, progress=say, sigma=args.sigma, bin_kms=args.bin_kms,
-                          features=feature_ids(args), snr_at_A=args.snr_at)
+                          features=feature_ids(args), snr_at_A=args.snr_at,
+                          telluric_threshold=args.telluric_threshold)
         doc = write_folder(plan, out, say)
     if args.json:
         _common.emit_json(args.json, doc)

@@ -164,7 +164,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                max_hours: float = DEFAULT_MAX_HOURS, overhead_s: float = DEFAULT_OVERHEAD_S,
                twilight: str = "nautical", registry=None, model=None, overrides=None,
                progress=None, sigma: float = DEFAULT_SIGMA, bin_kms: float = DEFAULT_BIN_KMS,
-               features=None, min_depth: float = DEFAULT_MIN_DEPTH, snr_at_A: float | None = None) -> Plan:
+               features=None, min_depth: float = DEFAULT_MIN_DEPTH, snr_at_A: float | None = None,
+               telluric_threshold: float = CORRECTABLE_TRANSMISSION) -> Plan:
     """Plan spectroscopy of ``event`` from ``sites`` over ``nights`` local nights after t0.
 
     A night is useful when a diagnostic feature reaches ``sigma`` (detection significance of its
@@ -183,6 +184,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
 
     check_settings(snr_target, max_hours, overhead_s, nights)
     check_detection(sigma, bin_kms, min_depth, snr_at_A)
+    if not (math.isfinite(telluric_threshold) and 0.0 <= telluric_threshold <= 1.0):
+        raise ParameterError("telluric_threshold", telluric_threshold, "a transmission in [0, 1]")
     say = progress or (lambda text: None)
     sites = list({s.id: s for s in sites}.values())  # each site once, in the order given
     say("visibility windows")
@@ -199,7 +202,7 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                 "bin_kms": float(bin_kms), "min_depth": float(min_depth),
                 "features": list(features) if features else None,
                 "snr_at_A": None if snr_at_A is None else float(snr_at_A),
-                "telluric_threshold": CORRECTABLE_TRANSMISSION}
+                "telluric_threshold": float(telluric_threshold)}
     t0_mjd = float(event.t0.utc.mjd)
     plans = [_night_plan(rec, t0_mjd, max_hours, overhead_s) for rec in vis.nights]
     epochs = [p for p in plans if p.window is not None]
@@ -302,7 +305,7 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, say) -> None:
         m = measure(plan.transient, fc, rows, [column[r.id] for r in site_refs], refs,
                     batched_conditions(windows, atm), np.array([forecast_airmass(w) for w in windows]),
                     atm.pwv_mm, np.maximum(seconds, 1.0), plan.tellurics, atm,
-                    sigma=st["sigma"], bin_kms=st["bin_kms"])
+                    sigma=st["sigma"], bin_kms=st["bin_kms"], telluric_threshold=st["telluric_threshold"])
         targets = _targets(m, fc, st)
         for k, i in enumerate(rows):
             p = epochs[i]
