@@ -18,8 +18,8 @@ merger in the source frame), vectorized over epochs:
     empirical description of the colour temperature and the photospheric
     velocity that observers fit, and they stay the default so that users can
     match what they see; but unbounded, L_free falls only as t^-0.6 and by a
-    week radiates more than the radioactive power its ejecta deposit (4x at
-    7 d, 9x at 14 d for the defaults), which energy conservation forbids.
+    week radiates more than the radioactive power its ejecta deposit (3.5x at
+    7 d, 8x at 14 d for the defaults), which energy conservation forbids.
     After the diffusion peak a radioactively powered transient radiates close
     to its instantaneous deposition (Arnett 1982, ApJ 253, 785; for kilonova
     ejecta of low opacity from about a day on: Waxman et al. 2018, MNRAS 481,
@@ -61,10 +61,11 @@ import numpy as np
 from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, stefan_boltzmann_luminosity
 from kncast.forecast.errors import ForecastInputError
 from kncast.forecast.heating import DAY_S, arnett_luminosity, input_luminosity_erg_s
-from kncast.forecast.references import ARNETT_1982, BARNES_2016, KOROBKIN_2012, WAXMAN_2018
+from kncast.forecast.references import (ARNETT_1982, BARNES_2016, KOROBKIN_2012, METZGER_2010, METZGER_2019,
+                                        TANAKA_2020, WAXMAN_2018)
 
 # Published sources cited above, as data (records in kncast.forecast.references).
-REFERENCES = (KOROBKIN_2012, BARNES_2016, ARNETT_1982, WAXMAN_2018)
+REFERENCES = (KOROBKIN_2012, BARNES_2016, ARNETT_1982, WAXMAN_2018, METZGER_2010, METZGER_2019, TANAKA_2020)
 
 MODEL_NAMES = ("powerlaw", "heating")
 V_LIMIT_C = 0.8  # ejecta velocities allowed in (0, 0.8) c
@@ -100,21 +101,35 @@ def _check(key, value, lo, hi, lo_open, hi_open, unit, where):
         raise ForecastInputError(f"{where}.{key} = {shown}: allowed {interval}{(' ' + unit) if unit else ''}")
 
 
+# Reference point of the default power laws, taken from a published model family: the one-zone
+# radioactive kilonova (Metzger et al. 2010, MNRAS 406, 2650; reviewed by Metzger 2019, Living Rev.
+# Relativ. 23, 1; from memory), i.e. Korobkin et al. 2012 heating, Barnes et al. 2016 thermalization
+# and Arnett diffusion, whose photosphere moves with the ejecta (``kncast.forecast.heating``), for one
+# lanthanide-poor component: the power law's own ejecta mass (0.04 Msun), the middle velocity of the
+# Barnes et al. grid (0.2 c) and a lanthanide-free grey opacity of 1 cm^2/g (Tanaka et al. 2020,
+# MNRAS 496, 1369; from memory).  At the reference age of 1 day (a round age where the one-zone
+# photosphere has left its first, diffusion-dominated hours) that model's photosphere is at 6264 K:
+# rounded to 6300 K.  tests/accuracy/test_accuracy_photosphere.py recomputes it independently.
+REFERENCE_COMPONENT = {"mass_msun": 0.04, "velocity_c": 0.2, "opacity_cm2_g": 1.0}
+REFERENCE_AGE_D = 1.0
+REFERENCE_TEMPERATURE_K = 6300.0
+
+
 @dataclass(frozen=True)
 class PowerLawPhotosphere:
     """Empirical cooling blackbody, its luminosity capped at the thermalized heating of
-    ``mass_msun`` (module docstring).  Defaults: common practice for kilonovae
-    (about 5000 K at 1.5 days, reaching the 2500 K floor after 6 days,
-    photospheric velocity 0.2 c at 1.5 days slowly receding, 0.1-0.3 c)."""
+    ``mass_msun`` (module docstring).  Default reference point: the one-zone radioactive model
+    family at 1 day (``REFERENCE_COMPONENT`` above: 6300 K, photosphere at the ejecta velocity
+    0.2 c); with T ~ t^-0.5 it reaches the 2500 K floor after 6.4 days."""
 
-    t_ref_d: float = 1.5
-    temperature_ref_K: float = 5000.0
+    t_ref_d: float = REFERENCE_AGE_D
+    temperature_ref_K: float = REFERENCE_TEMPERATURE_K
     temperature_index: float = 0.5
     temperature_floor_K: float = 2500.0
-    velocity_ref_c: float = 0.2
+    velocity_ref_c: float = REFERENCE_COMPONENT["velocity_c"]
     velocity_index: float = 0.3
     v_max_c: float = 0.35        # outer edge of the ejecta; the photosphere never lies outside it
-    mass_msun: float = 0.04      # total ejecta mass: line-strength estimates and the heating cap on L
+    mass_msun: float = REFERENCE_COMPONENT["mass_msun"]  # total ejecta mass: line strengths and the heating cap on L
 
     name = "powerlaw"
 
@@ -303,5 +318,5 @@ def _no_unknown(config, allowed, where, name):
                                  f"(allowed: name, {', '.join(sorted(allowed))})")
 
 
-__all__ = ["MODEL_NAMES", "PowerLawPhotosphere", "EjectaComponent", "HeatingPhotosphere", "DEFAULT_COMPONENTS",
+__all__ = ["MODEL_NAMES", "REFERENCE_COMPONENT", "REFERENCE_AGE_D", "REFERENCE_TEMPERATURE_K", "PowerLawPhotosphere", "EjectaComponent", "HeatingPhotosphere", "DEFAULT_COMPONENTS",
            "build_model"]

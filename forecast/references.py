@@ -60,6 +60,16 @@ SINGER_2016 = Citation("Singer et al.", 2016, "ApJL", "829", "L15", "per-pixel d
 KOROBKIN_2012 = Citation("Korobkin et al.", 2012, "MNRAS", "426", "1940", "eq. 4, r-process heating rate")
 BARNES_2016 = Citation("Barnes et al.", 2016, "ApJ", "829", "110", "eq. 36 and Table 1, thermalization efficiency")
 ARNETT_1982 = Citation("Arnett", 1982, "ApJ", "253", "785", "one-zone radiative diffusion")
+METZGER_2010 = Citation("Metzger et al.", 2010, "MNRAS", "406", "2650",
+                        "one-zone radioactive kilonova model family (r-process heating, diffusion, photosphere at "
+                        "the ejecta velocity); from memory")
+METZGER_2019 = Citation("Metzger", 2019, "Living Rev. Relativ.", "23", "1",
+                        "review of kilonova models (published 2019, volume dated 2020); from memory")
+TANAKA_2020 = Citation("Tanaka, Kato, Gaigalas & Kawaguchi", 2020, "MNRAS", "496", "1369",
+                       "grey opacities of kilonova ejecta, ~1 cm^2/g for lanthanide-free matter (citation checked; "
+                       "the opacity value from memory)")
+DOMOTO_2021 = Citation("Domoto, Tanaka, Wanajo & Kato", 2021, "ApJ", "913", "26",
+                       "ejecta density rho ~ v^-3 between 0.05 c and the outer edge; from memory")
 WAXMAN_2018 = Citation("Waxman, Ofek, Kushnir & Gal-Yam", 2018, "MNRAS", "481", "3423",
                        "kilonova bolometric light curve near the thermalized radioactive deposition; "
                        "authors checked (arXiv listing), journal volume and page from memory")
@@ -110,6 +120,10 @@ LUCY_1991 = Citation("Lucy", 1991, "ApJ", "383", "308",
 STECK_CS = Citation("Steck", 2010, "Cesium D Line Data", "rev. 2.1.4", "steck.us/alkalidata",
                     "Cs I D1/D2 wavelengths; online reference notes, not a journal article; the revision "
                     "used for the line list is not recorded")
+ANDERS_GREVESSE_1989 = Citation("Anders & Grevesse", 1989, "Geochim. Cosmochim. Acta", "53", "197",
+                                "solar-system (meteoritic) abundances, Si = 1e6; from memory")
+SIMMERER_2004 = Citation("Simmerer et al.", 2004, "ApJ", "617", "1091",
+                         "r-process fractions of the solar-system abundances; from memory")
 HOTOKEZAKA_2023 = Citation("Hotokezaka et al.", 2023, "MNRAS", "526", "L155",
                            "[Te III] 2.1 micron identification (authors checked; volume and page from memory; "
                            "the line-list row names no paper)")

@@ -12,12 +12,17 @@ import argparse
 from kncast.planner.commands._common import finite_float
 
 # option -> [model] key, for the powerlaw model
+# defaults: the one-zone radioactive model family (Metzger et al. 2010, MNRAS 406, 2650) at 1 day for
+# 0.04 Msun at 0.2 c, kappa 1 cm^2/g (kncast.forecast.photosphere.REFERENCE_COMPONENT; docs/methods.md)
 POWERLAW_OPTIONS = (
-    ("--t-ref-d", "t_ref_d", "reference age of the power laws, days (default 1.5)"),
-    ("--temperature-ref-k", "temperature_ref_K", "temperature at the reference age, K (default 5000)"),
+    ("--t-ref-d", "t_ref_d", "reference age of the power laws, days (default 1: where the default's "
+                             "one-zone model family is anchored)"),
+    ("--temperature-ref-k", "temperature_ref_K", "temperature at the reference age, K (default 6300: the "
+                                                 "one-zone radioactive model of Metzger et al. 2010 at 1 d)"),
     ("--temperature-index", "temperature_index", "alpha in T ~ t^-alpha (default 0.5)"),
     ("--temperature-floor-k", "temperature_floor_K", "temperature floor, K (default 2500)"),
-    ("--velocity-ref-c", "velocity_ref_c", "photospheric velocity at the reference age, c (default 0.2)"),
+    ("--velocity-ref-c", "velocity_ref_c", "photospheric velocity at the reference age, c (default 0.2: "
+                                           "that model's ejecta velocity)"),
     ("--velocity-index", "velocity_index", "beta in v ~ t^-beta (default 0.3)"),
     ("--v-max-c", "v_max_c", "outer ejecta velocity, c (default 0.35)"),
     ("--mass-msun", "mass_msun", "total ejecta mass, Msun (default 0.04)"),

@@ -234,6 +234,36 @@ def test_default_powerlaw_never_radiates_more_than_its_thermalized_heating():
     assert np.all(lum[t < 1.5] < heat[t < 1.5]) and np.allclose(lum[t > 3.0], heat[t > 3.0], rtol=1e-9)
 
 
+def test_default_powerlaw_reference_point_is_the_one_zone_model_at_one_day():
+    # The default reference point is the one-zone radioactive kilonova (Metzger et al. 2010, MNRAS
+    # 406, 2650; from memory) for 0.04 Msun at 0.2 c with kappa = 1 cm^2/g (kncast.forecast.photosphere):
+    # recomputed here with its own Arnett (1982, ApJ 253, 785) integral by adaptive quadrature,
+    # L(t) = exp(-u) int_0^u L_in(u') exp(u') du', u = (t / t_d)^2, t_d = sqrt(2 kappa M / (13.8 c v)),
+    # L_in from Korobkin et al. 2012 x Barnes et al. 2016 (above), and T = (L / (4 pi sigma (v t)^2))^1/4.
+    from scipy.integrate import quad
+
+    from kncast.forecast.photosphere import REFERENCE_COMPONENT, PowerLawPhotosphere
+
+    mass, v, kappa = (REFERENCE_COMPONENT[k] for k in ("mass_msun", "velocity_c", "opacity_cm2_g"))
+    assert (mass, v, kappa) == (0.04, 0.2, 1.0)
+    coeffs = _barnes_at(mass, v)
+    c = const.c.cgs.value
+    t_d = np.sqrt(2 * kappa * mass * const.M_sun.cgs.value / (13.8 * c * v * c)) / 86400.0   # days
+    u_end = (1.0 / t_d) ** 2
+
+    def integrand(log_u):    # in ln u: smooth over the many decades of early times
+        u = np.exp(log_u)
+        return _thermalized_heating_reference(t_d * np.sqrt(u), mass, *coeffs) * np.exp(u - u_end) * u
+
+    lum = quad(integrand, np.log(1e-14), np.log(u_end), limit=400, epsabs=0, epsrel=1e-8)[0]
+    radius = v * c * 86400.0
+    temp = (lum / (4 * np.pi * const.sigma_sb.cgs.value * radius**2)) ** 0.25
+    model = PowerLawPhotosphere()
+    assert model.t_ref_d == 1.0 and model.velocity_ref_c == v and model.mass_msun == mass
+    assert temp == pytest.approx(6264.0, rel=5e-3)                      # the value the docs quote
+    assert model.temperature_ref_K == pytest.approx(round(temp, -2))     # rounded to 100 K
+
+
 # Published bolometric light curve of a kilonova (values from memory -- check before tightening):
 # Cowperthwaite et al. 2017 (ApJL 848, L17) and Waxman et al. 2018 (MNRAS 481, 3423) give
 # L ~ 5e41-1e42 erg/s near 0.6-1 d, declining roughly as t^-1.3 to about a week; after ~7 d the

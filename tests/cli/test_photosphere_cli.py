@@ -29,7 +29,7 @@ def test_lightcurve_json_keys_and_components(run_cli, demo_event_path, tmp_path)
 def test_lightcurve_from_options_powerlaw_with_overrides(run_cli, tmp_path):
     out = tmp_path / "lc.json"
     status, stdout, stderr = run_cli("lightcurve", *EVENT, "--distance-mpc", "90", "--model", "powerlaw",
-                                     "--temperature-ref-k", "6000", "--v-max-c", "0.4", "--phases", "1.5",
+                                     "--temperature-ref-k", "6000", "--v-max-c", "0.4", "--phases", "1",
                                      "--bands", "sdss2010-g,sdss2010-r", "--bands", "twomass-H", "--json", out)
     assert status == 0, stderr
     doc = json.loads(out.read_text())

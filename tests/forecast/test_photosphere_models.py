@@ -46,10 +46,12 @@ def test_luminosity_is_4_pi_r2_sigma_t4_at_every_epoch(model):
 
 
 def test_powerlaw_defaults_follow_common_practice():
-    # common practice: ~5000 K at 1.5 days, ~2500 K within a week, features forming at 0.1-0.3 c
-    # (the line-forming velocity; the blackbody radius recedes faster once L is capped by the heating)
-    s = Transient(PowerLawPhotosphere(), distance_mpc=40.0).state([1.5 * (1 + 0.00925), 7.0])
-    assert s.temperature_K[0] == pytest.approx(5000.0, rel=0.02)
+    # the reference point (6300 K at 1 d) is checked against its published model family in
+    # tests/accuracy/test_accuracy_photosphere.py; here the rest is common practice: ~2500 K within a
+    # week, features forming at 0.1-0.3 c (the line-forming velocity; the blackbody radius recedes
+    # faster once L is capped by the heating)
+    s = Transient(PowerLawPhotosphere(), distance_mpc=40.0).state([1.0 * (1 + 0.00925), 7.0])
+    assert s.temperature_K[0] == pytest.approx(6300.0, rel=0.01)
     assert s.temperature_K[1] == pytest.approx(2500.0, rel=0.05)
     day = Transient(PowerLawPhotosphere(), distance_mpc=40.0).state(np.linspace(1.0, 5.0, 9))
     assert np.all((day.v_line_c >= 0.1) & (day.v_line_c <= 0.3))
