@@ -16,5 +16,14 @@ DEFAULT_SIGMA = 5.0        # detection significance a feature must reach (common
 DEFAULT_MIN_DEPTH = 0.1    # expected depth from which a feature is a diagnostic target by default
 UV_CUTOFF_MAG_PER_AIRMASS = 1.0  # troughs where the atmosphere extinguishes more than this do not count
 
+# the photospheric temperatures and rest wavelengths the bundled line list was chosen for
+# (forecast/data/make_lines.py; docs/methods.md, "Line selection"), and the epochs `kncast lines`
+# forecasts by default: DEFAULT_LINE_EPOCHS log-spaced phases over the time the event's photosphere
+# spends in that temperature range (kncast.forecast.epochs)
+LINE_RULE_TEMPERATURE_K = (2500.0, 6000.0)
+LINE_RULE_WAVELENGTH_A = (3000.0, 25000.0)
+DEFAULT_LINE_EPOCHS = 4
+
 __all__ = ["STRONG_TAU", "DEFAULT_MAX_EXPOSURE_S", "SNR_BASIS", "DEFAULT_BANDS", "DEFAULT_BIN_KMS", "DEFAULT_SIGMA",
-           "DEFAULT_MIN_DEPTH", "UV_CUTOFF_MAG_PER_AIRMASS"]
+           "DEFAULT_MIN_DEPTH", "UV_CUTOFF_MAG_PER_AIRMASS", "LINE_RULE_TEMPERATURE_K", "LINE_RULE_WAVELENGTH_A",
+           "DEFAULT_LINE_EPOCHS"]

@@ -7,7 +7,6 @@ from kncast.planner.commands._model_options import add_model_options, overrides_
 
 HELP = "forecast diagnostic line features per epoch: observed windows, LTE strength, coverage per setup"
 
-DEFAULT_PHASES = "1.5,2.5,3.5,4.5"
 DEFAULT_AIRMASS = 1.2
 DEFAULT_PWV_MM = 2.5
 DEFAULT_TIME_S = 3600.0
@@ -20,8 +19,13 @@ CAUTION = ("Model estimates: windows from a homologous P Cygni picture, strength
 def add_arguments(p) -> None:
     add_event_options(p)
     add_model_options(p)
-    p.add_argument("--phases", default=DEFAULT_PHASES, metavar="D,D,...",
-                   help=f"observer-frame days since t0, each in (0, 100] (default {DEFAULT_PHASES})")
+    from kncast.forecast.defaults import DEFAULT_LINE_EPOCHS, LINE_RULE_TEMPERATURE_K
+
+    low, high = LINE_RULE_TEMPERATURE_K
+    p.add_argument("--phases", metavar="D,D,...",
+                   help=f"observer-frame days since t0, each in (0, 100] (default: {DEFAULT_LINE_EPOCHS} epochs "
+                        f"log-spaced over the time the event's photosphere cools from {high:g} K to {low:g} K, "
+                        "the range the line list was chosen for; rounded to 0.1 d)")
     g = p.add_argument_group("setups and atmosphere")
     g.add_argument("--setup", action="append", metavar="SITE/TELESCOPE/INSTRUMENT[:SETUP]",
                    help="spectrograph setup (repeatable or comma separated; default: every setup; "
@@ -69,11 +73,11 @@ def _check_velocity(option: str, value) -> None:
         raise OptionError(option, value, f"a fraction of c in (0, {MAX_VELOCITY_C:g})")
 
 
-def check_options(args) -> list[float]:
-    """Validate options that need no files; returns the phases."""
+def check_options(args) -> list[float] | None:
+    """Validate options that need no files; returns the phases (None: the model's default epochs)."""
     from kncast.planner.errors import OptionError
 
-    phases = parse_phases(args.phases)
+    phases = parse_phases(args.phases) if args.phases is not None else None
     check_plot_path(args.plot)
     _check_velocity("--vphot", args.vphot)
     _check_velocity("--vmax", args.vmax)
@@ -122,6 +126,7 @@ def _check_against_model(args, state) -> None:
 
 def compute(args):
     """(event, transient, forecast result, setup refs, line list) for parsed options."""
+    from kncast.forecast.epochs import useful_phases
     from kncast.forecast.features import forecast_features
     from kncast.forecast.lte import Composition
     from kncast.forecast.tellurics import TelluricModel
@@ -130,6 +135,7 @@ def compute(args):
     phases = check_options(args)
     event = event_from_args(args)
     transient = transient_for_event(event, overrides=overrides_from_args(args))
+    phases = phases if phases is not None else useful_phases(transient)
     _check_against_model(args, transient.state(phases))
     linelist = load_lines(args)
     composition = Composition.load(args.abundances)

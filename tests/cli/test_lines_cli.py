@@ -169,3 +169,22 @@ def test_bad_abundance_file(run_cli, tmp_path):
     ab.write_text("[abundances]\n[abundances.mass_fraction]\nSr = 1.0\n")
     status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP, "--abundances", ab)
     assert status == 2 and "no abundance for" in err and len(err.strip().splitlines()) == 1
+
+
+def test_default_phases_follow_the_model_photosphere(run_cli, tmp_path):
+    # without --phases: 4 epochs log-spaced from the 6000 K to the 2500 K crossing of the photosphere.
+    # For the power law these crossings have a closed form, t = t_ref (T_ref / T)^(1/alpha), in the
+    # source frame; the redshift of 90 Mpc comes from astropy's Planck18 (an independent library).
+    import numpy as np
+    from astropy import units as u
+    from astropy.cosmology import Planck18, z_at_value
+
+    out = tmp_path / "default.json"
+    status, _, err = run_cli("lines", "--ra", "150.25", "--dec", "-25.5", "--t0", "2027-04-10T03:00:00Z",
+                             "--distance-mpc", "90", "--model", "powerlaw", "--setup", SETUP, "--json", out)
+    assert status == 0, err
+    z = float(z_at_value(Planck18.luminosity_distance, 90 * u.Mpc))
+    crossings = [1.0 * (6300.0 / t) ** 2 * (1 + z) for t in (6000.0, 2500.0)]   # t_ref 1 d, alpha 0.5
+    expected = np.geomspace(*crossings, 4)
+    phases = [e["phase_d"] for e in json.loads(out.read_text())["epochs"]]
+    assert np.allclose(phases, expected, atol=0.06 + 0.012 * expected)   # 0.1 d rounding, 1 % scan step
