@@ -147,6 +147,11 @@ MOFFAT_1969 = Citation("Moffat", 1969, "A&A", "3", "455", "Moffat point-spread f
 TRUJILLO_2001 = Citation("Trujillo et al.", 2001, "MNRAS", "328", "977", "Moffat beta 4.765 for Kolmogorov seeing")
 MERLINE_HOWELL_1995 = Citation("Merline & Howell", 1995, "Experimental Astronomy", "6", "163",
                                "eq. (2), the CCD equation")
+FILIPPENKO_1982 = Citation("Filippenko", 1982, "PASP", "94", "715",
+                           "eqs. 1-3, refractive index of moist air; differential refraction 206265 [n(lambda) - "
+                           "n(ref)] tan z and its Table 1 (table values checked against a public reproduction)")
+EDLEN_1953 = Citation("Edlen", 1953, "J. Opt. Soc. Am.", "43", "339",
+                      "dispersion of standard air, the coefficients of Filippenko's eq. 1; from memory")
 
 
 def unique(citations) -> tuple[Citation, ...]:
