@@ -115,7 +115,7 @@ class Composition:
 
     @classmethod
     def load(cls, abundances_path=None, atoms_path=None, partition_data: PartitionData | None = None) -> "Composition":
-        """Read an abundance table (default: the bundled illustrative mixture) and the atomic data.
+        """Read an abundance table (default: the bundled one, written by make_lines.py) and the atomic data.
 
         ``partition_data``: level lists and table for U(T) (default: the bundled files).
         """

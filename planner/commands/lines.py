@@ -13,7 +13,8 @@ DEFAULT_TIME_S = 3600.0
 MAX_VELOCITY_C = 0.8
 DETAIL_SETUPS = 4  # up to this many setups: one detailed column per setup in the feature table
 CAUTION = ("Model estimates: windows from a homologous P Cygni picture, strengths from an LTE/Sobolev estimate "
-           "with an illustrative composition; the observatory's own tools and rules take precedence.")
+           "with the line-list elements in solar r-process proportions; the observatory's own tools and rules "
+           "take precedence.")
 
 
 def add_arguments(p) -> None:
@@ -62,7 +63,7 @@ def add_arguments(p) -> None:
     d.add_argument("--only-lines", action="store_true", help="use only the --lines files, not the bundled list")
     d.add_argument("--abundances", metavar="FILE",
                    help="element mass fractions (TOML like forecast/data/abundances.toml; default: the bundled "
-                        "illustrative mixture)")
+                        "solar r-process proportions of the line-list elements)")
     add_output_options(p)
 
 

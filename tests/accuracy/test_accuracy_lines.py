@@ -97,11 +97,30 @@ PUBLISHED = [
 
 @pytest.fixture(scope="module")
 def lines():
+    # every candidate line (forecast/data/candidates/line_candidates.ecsv); the bundled list is a
+    # selection of these rows, unchanged (checked below and in tests/forecast/test_lines_linelist.py)
     from astropy.table import Table
 
     from kncast.forecast.linelist import DEFAULT_PATH
 
-    return LineList.load(), Table.read(DEFAULT_PATH, format="ascii.ecsv")
+    path = DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv"
+    return LineList.load(path), Table.read(path, format="ascii.ecsv")
+
+
+@pytest.mark.parametrize("species,lam,e_low,log_gf,medium", [p for p in PUBLISHED if p[0] in
+                                                             ("Sr II", "Ba II", "Y II", "Zr II")])
+def test_bundled_line_equals_published_value(species, lam, e_low, log_gf, medium):
+    # the shipped list keeps every published value of the r-process lines the rule selects
+    from astropy.table import Table
+
+    from kncast.forecast.linelist import DEFAULT_PATH
+
+    rows = [r for r in Table.read(DEFAULT_PATH, format="ascii.ecsv")
+            if r["species"] == species and abs(r["published_A"] - lam) < 1e-6]
+    assert len(rows) == 1
+    assert rows[0]["E_low_eV"] == pytest.approx(e_low, abs=1e-9) and rows[0]["log_gf"] == pytest.approx(log_gf, abs=1e-9)
+    vac = air_to_vac(lam) if medium == "air" else lam
+    assert rows[0]["wavelength_A"] == pytest.approx(vac, abs=ROUNDING_TOL_A)
 
 
 @pytest.mark.parametrize("species,lam,e_low,log_gf,medium", PUBLISHED)

@@ -49,7 +49,7 @@ def test_json_keys(doc):
 
 def test_multiplets_list_rest_wavelengths(doc):
     feats = {f["feature"]: f for f in doc["epochs"][0]["features"]}
-    assert isinstance(feats["ca2-nir"]["rest_vac_A"], list) and len(feats["ca2-nir"]["rest_vac_A"]) == 3
+    assert isinstance(feats["sr2-nir"]["rest_vac_A"], list) and len(feats["sr2-nir"]["rest_vac_A"]) == 3
     assert isinstance(feats["y2-4375"]["rest_vac_A"], float)
 
 
@@ -63,16 +63,46 @@ def test_features_ranked_by_tau(doc):
         assert sum(fr.values()) == pytest.approx(1.0, abs=1e-5)
 
 
-def test_terminal_tables(run_cli):
-    status, out, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP)
+def _he_files(tmp_path):
+    """He I 10830 (a candidate the selection rule leaves out: non-LTE) as the user's own line file,
+    with the bundled mixture plus helium."""
+    from astropy.table import Table
+
+    from kncast.forecast.linelist import DEFAULT_PATH
+    from kncast.forecast.lte import Composition
+
+    cand = Table.read(DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv", format="ascii.ecsv")
+    cand[cand["feature"] == "he1-10830"].write(tmp_path / "he.ecsv", format="ascii.ecsv")
+    comp = Composition.load()
+    (tmp_path / "he.toml").write_text("[abundances]\n[abundances.mass_fraction]\nHe = 0.01\n" + "".join(
+        f"{e} = {x}\n" for e, x in zip(comp.elements, comp.mass_fraction)))
+    return ["--lines", tmp_path / "he.ecsv", "--abundances", tmp_path / "he.toml"]
+
+
+@pytest.fixture(scope="module")
+def he_doc(tmp_path_factory):
+    from kncast.planner.cli import main
+
+    tmp = tmp_path_factory.mktemp("he")
+    out = tmp / "lines.json"
+    status = main(["lines", "--event", str(DEMO_EVENT), "--phases", "1.5,3", "--setup", SETUP,
+                   *map(str, _he_files(tmp)), "--json", str(out)])
+    assert status == 0
+    return json.loads(out.read_text())
+
+
+def test_terminal_tables(run_cli, tmp_path):
+    status, out, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", SETUP,
+                               *_he_files(tmp_path))
     assert status == 0, err
     assert "sr2-nir" in out and SETUP in out and "day 2" in out
     he = next(line for line in out.splitlines() if "he1-10830" in line)
     assert "non-LTE: no LTE estimate" in he     # in the tau column, instead of a number
 
 
-def test_non_lte_line_has_no_tau(doc):
+def test_non_lte_line_has_no_tau(he_doc):
     # He I 10830: lower level 19.8 eV, LTE does not apply (forecast.linelist.NON_LTE_E_LOW_EV)
+    doc = he_doc
     for ep in doc["epochs"]:
         he = next(f for f in ep["features"] if f["feature"] == "he1-10830")
         assert he["lte"] is False and he["tau_sobolev"] is None

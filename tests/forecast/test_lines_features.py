@@ -24,6 +24,26 @@ def setups():
 
 
 @pytest.fixture(scope="module")
+def with_left_out(tmp_path_factory):
+    """(line list, composition): the bundled list plus the candidate features the selection rule leaves
+    out (He I 10830, Cs I D, [Te III]) as a user's own file, and the bundled mixture plus their elements."""
+    from astropy.table import Table
+
+    from kncast.forecast.linelist import DEFAULT_PATH
+    from kncast.forecast.lte import Composition
+
+    tmp = tmp_path_factory.mktemp("left_out")
+    cand = Table.read(DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv", format="ascii.ecsv")
+    cand[np.isin(np.asarray(cand["feature"]).astype(str), ["he1-10830", "cs1-d", "te3-21050"])].write(
+        tmp / "left_out.ecsv", format="ascii.ecsv")
+    bundled = Composition.load()
+    fractions = dict(zip(bundled.elements, bundled.mass_fraction)) | {"He": 0.01, "Cs": 0.01, "Te": 0.01}
+    (tmp / "ab.toml").write_text("[abundances]\n[abundances.mass_fraction]\n"
+                                 + "".join(f"{e} = {x}\n" for e, x in fractions.items()))
+    return LineList.merge([LineList.load(), LineList.load(tmp / "left_out.ecsv")]), Composition.load(tmp / "ab.toml")
+
+
+@pytest.fixture(scope="module")
 def tellurics():
     from kncast.forecast.tellurics import TelluricModel
 
@@ -45,7 +65,7 @@ def test_shapes_and_ranking(setups, tellurics):
 def test_blend_trough_at_strongest_member():
     ll = LineList.load()
     fc = forecast_features(_epochs(1), None, ll, [])
-    f = [k for k, feat in enumerate(fc.features) if feat.id == "ca2-nir"][0]
+    f = [k for k, feat in enumerate(fc.features) if feat.id == "ba2-red"][0]
     members = list(fc.features[f].members)
     strongest = members[int(np.argmax(fc.tau_lines[0, members]))]
     assert fc.trough_member[0, f] == strongest
@@ -93,11 +113,12 @@ def test_faster_ejecta_shift_troughs_bluer():
     assert np.all(fast.windows.absorption_lo_A < slow.windows.absorption_lo_A)
 
 
-def test_epoch_rows_json_ready(setups, tellurics):
+def test_epoch_rows_json_ready(setups, tellurics, with_left_out):
     import json
 
     s, ids = setups
-    rows = forecast_features(_epochs(2), None, None, s, tellurics, setup_ids=ids).epoch_rows()
+    ll, comp = with_left_out
+    rows = forecast_features(_epochs(2), None, ll, s, tellurics, setup_ids=ids, composition=comp).epoch_rows()
     text = json.dumps(rows, allow_nan=False)
     assert '"tau_sobolev": null' in text  # Cs I and [Te III] have no strength estimate
 
@@ -115,11 +136,12 @@ def test_rounding_overshoot_of_the_model_photosphere_is_clipped():
     assert np.all(ep.v_phot_c <= ep.v_max_c)
 
 
-def test_non_lte_feature_has_no_tau_and_ranks_with_the_unknowns():
+def test_non_lte_feature_has_no_tau_and_ranks_with_the_unknowns(with_left_out):
     # He I 10830 (lower level 19.8 eV, lte = false): no LTE estimate, not a "weak" line
     from kncast.forecast.features import NON_LTE_NOTE
 
-    fc = forecast_features(_epochs(3), None, None, [])
+    ll, comp = with_left_out
+    fc = forecast_features(_epochs(3), None, ll, [], composition=comp)
     ids = [f.id for f in fc.features]
     he = ids.index("he1-10830")
     assert not fc.lte_valid[he] and fc.lte_valid[ids.index("sr2-nir")]

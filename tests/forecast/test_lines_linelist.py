@@ -7,10 +7,18 @@ import pytest
 from kncast.forecast.errors import DataFileError
 from kncast.forecast.linelist import DEFAULT_PATH, LineList
 
+# every line with published data; make_lines.py chooses the bundled list from it (docs/methods.md)
+CANDIDATES = DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv"
+
 
 @pytest.fixture(scope="module")
 def text():
     return DEFAULT_PATH.read_text()
+
+
+@pytest.fixture(scope="module")
+def candidates_text():
+    return CANDIDATES.read_text()
 
 
 def _write(tmp_path, content, name="lines.ecsv"):
@@ -19,20 +27,43 @@ def _write(tmp_path, content, name="lines.ecsv"):
     return p
 
 
-def test_bundled_list_has_the_required_species():
+def test_bundled_list_is_what_the_selection_rule_ships():
+    # lines.ecsv is written by make_lines.py: the candidates' rows of the features the rule keeps
+    # (docs/methods.md, "Line selection"), unchanged; every element of the list is in the composition
+    import runpy
+
+    from astropy.table import Table
+
+    from kncast.forecast.lte import Composition
+
+    mod = runpy.run_path(str(DEFAULT_PATH.parent / "make_lines.py"), run_name="kncast_test")
+    candidates = Table.read(CANDIDATES, format="ascii.ecsv")
+    shipped, decisions = mod["select"](candidates)
     ll = LineList.load()
-    assert len(ll) >= 25
-    species = set(ll.species)
-    for s in ("Sr II", "Ca II", "Ba II", "Y II", "Zr II", "He I", "Cs I", "[Te III]"):
-        assert s in species
+    assert list(dict.fromkeys(ll.feature)) == shipped
+    assert len(decisions) == len(set(candidates["feature"]))
+    rows = candidates[np.isin(np.asarray(candidates["feature"]).astype(str), shipped)]
+    assert np.array_equal(np.asarray(rows["wavelength_A"]), ll.wavelength_A)
+    assert np.array_equal(np.asarray(rows["log_gf"]), np.asarray(Table.read(DEFAULT_PATH, format="ascii.ecsv")["log_gf"]))
+    assert set(ll.species) == {"Sr II", "Ba II", "Y II", "Zr II"}
+    assert set(Composition.load().elements) == set(ll.element)
     assert np.all(np.diff(ll.wavelength_A[ll.feature == "sr2-nir"]) > 0)
+
+
+def test_candidates_hold_the_lines_the_rule_leaves_out():
+    cand = LineList.load(CANDIDATES)
+    assert {"Ca II", "He I", "Cs I", "[Te III]"} <= set(cand.species)
+    assert not set(cand.feature[np.isin(cand.element, ["Ca", "He", "Cs", "Te"])]) & set(LineList.load().feature)
 
 
 def test_multiplets_merge_into_features():
     feats = {f.id: f for f in LineList.load().features()}
-    assert len(feats["ca2-nir"].members) == 3 and len(feats["ca2-hk"].members) == 2
-    assert len(feats["he1-10830"].members) == 3
-    assert feats["cs1-d"].uncertain and not feats["sr2-uv"].uncertain
+    assert len(feats["sr2-nir"].members) == 3 and len(feats["ba2-res"].members) == 2
+    assert len(feats["ba2-red"].members) == 3 and len(feats["y2-5000"].members) == 3
+    cand = {f.id: f for f in LineList.load(CANDIDATES).features()}
+    assert len(cand["ca2-nir"].members) == 3 and len(cand["ca2-hk"].members) == 2
+    assert len(cand["he1-10830"].members) == 3
+    assert cand["cs1-d"].uncertain and not feats["sr2-uv"].uncertain
 
 
 def test_regenerate_script_reproduces_the_vacuum_column(tmp_path, text):
@@ -54,10 +85,10 @@ def _replace_row(text, start, old, new):
 
 @pytest.mark.parametrize("start,old,new,match", [
     ("sr2-uv \"Sr II\" Sr 2 4078.86", " 2 4078.86", " 7 4078.86", r"ion_stage row 1: value 7 out of range"),
-    ("ca2-hk \"Ca II\" Ca 2 3934.774", "\"Ca II\" Ca", "\"Ca III\" Ca", r"species row 6: 'Ca III' does not match"),
-    ("ba2-res \"Ba II\" Ba 2 4555.306", "4555.306", "4556.306", r"wavelength_A row 11: .*rerun forecast/data/make_lines.py"),
-    ("y2-4375 ", " air ", " sky ", r"published_medium row 16: value 'sky' not recognised"),
-    ("zr2-4443 ", " 1.486 ", " -3.0 ", r"E_low_eV row 24: value -3 out of range"),
+    ("ba2-red \"Ba II\" Ba 2 5855.291", "\"Ba II\" Ba", "\"Ba III\" Ba", r"species row 8: 'Ba III' does not match"),
+    ("ba2-res \"Ba II\" Ba 2 4555.306", "4555.306", "4556.306", r"wavelength_A row 6: .*rerun forecast/data/make_lines.py"),
+    ("y2-4375 ", " air ", " sky ", r"published_medium row 11: value 'sky' not recognised"),
+    ("zr2-4443 ", " 1.486 ", " -3.0 ", r"E_low_eV row 19: value -3 out of range"),
     ("sr2-nir \"Sr II\" Sr 2 10039.406", "sr2-nir", "\"sr2 nir\"", r"feature row 3: id .sr2 nir. has spaces"),
 ])
 def test_bad_rows_name_file_column_row(tmp_path, text, start, old, new, match):
@@ -87,14 +118,14 @@ def test_missing_file_and_folder(tmp_path):
         LineList.load(tmp_path)
 
 
-def test_a_value_needs_g_up(tmp_path, text):
-    content, _ = _replace_row(text, "he1-10830 \"He I\" He 1 10832.057", " 3 1 ", " 3 0 ")
+def test_a_value_needs_g_up(tmp_path, candidates_text):
+    content, _ = _replace_row(candidates_text, "he1-10830 \"He I\" He 1 10832.057", " 3 1 ", " 3 0 ")
     with pytest.raises(DataFileError, match=r"g_up row 25"):
         LineList.load(_write(tmp_path, content))
 
 
 def test_blend_members_too_far_apart(tmp_path, text):
-    content, _ = _replace_row(text, "te3-21050", "te3-21050", "sr2-uv")
+    content, _ = _replace_row(text, "y2-7882", "y2-7882", "sr2-uv")
     with pytest.raises(DataFileError, match=r"blend 'sr2-uv' spans members too far apart"):
         LineList.load(_write(tmp_path, content))
 
@@ -105,23 +136,24 @@ def test_lte_flag_follows_the_rule_and_marks_he_i():
     # ejecta (Lucy 1991, ApJ 383, 308; from memory): no LTE estimate.
     from kncast.forecast.linelist import NON_LTE_E_LOW_EV, lte_applies
 
-    ll = LineList.load()
+    ll = LineList.load(CANDIDATES)
     assert np.array_equal(ll.lte, lte_applies(ll.E_low_eV))
     assert set(ll.feature[~ll.lte]) == {"he1-10830"}
     assert np.all(ll.E_low_eV[ll.lte] <= NON_LTE_E_LOW_EV)
     feats = {f.id: f for f in ll.features()}
     assert not feats["he1-10830"].lte and feats["sr2-nir"].lte and feats["cs1-d"].lte
+    assert LineList.load().lte.all()          # the rule ships LTE features only
 
 
 def test_lte_flag_from_the_file_or_the_rule(tmp_path):
     # without an lte column the rule applies; with one, the file's flag is used as given
     from astropy.table import Table
 
-    t = Table.read(DEFAULT_PATH, format="ascii.ecsv")
+    t = Table.read(CANDIDATES, format="ascii.ecsv")
     t.remove_column("lte")
     t.write(tmp_path / "no_lte.ecsv", format="ascii.ecsv")
     ll = LineList.load(tmp_path / "no_lte.ecsv")
-    assert len(ll) == len(LineList.load()) and set(ll.feature[~ll.lte]) == {"he1-10830"}
+    assert len(ll) == len(LineList.load(CANDIDATES)) and set(ll.feature[~ll.lte]) == {"he1-10830"}
     one = Table.read(DEFAULT_PATH, format="ascii.ecsv")[:1]
     one["feature"] = ["my-sr2"]
     one["lte"] = [False]

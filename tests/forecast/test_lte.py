@@ -98,7 +98,7 @@ def test_boltzmann_factor_between_two_lines(comp, grid):
 
 
 def test_unknown_gf_gives_nan(grid):
-    tau = line_optical_depths(grid, ["Cs"], [1], [np.nan], [8523.47], [0.0])
+    tau = line_optical_depths(grid, ["Sr"], [2], [np.nan], [4078.86], [0.0])
     assert np.all(np.isnan(tau))
 
 
