@@ -44,9 +44,9 @@ def build():
     from kncast.forecast.source import Transient
 
     model = HeatingPhotosphere((
-        EjectaComponent("blue", 0.025, 0.25, 0.5, 3000.0),
-        EjectaComponent("purple", 0.02, 0.2, 3.0, 2700.0),
-        EjectaComponent("red", 0.04, 0.15, 10.0, 2500.0),
+        EjectaComponent("fast", 0.025, 0.25, 0.5, 3000.0),
+        EjectaComponent("intermediate", 0.02, 0.2, 3.0, 2700.0),
+        EjectaComponent("slow", 0.04, 0.15, 10.0, 2500.0),
     ))
     return Transient(model, distance_mpc=150.0, ebv_mw=0.05, ebv_host=0.1)
 
