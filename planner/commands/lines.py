@@ -205,8 +205,9 @@ def run(args) -> int:
         from kncast.planner.output import save_figure
         from kncast.planner.figures.lines import lines_figure
 
-        save_figure(lines_figure(transient, result, refs, airmass=args.airmass, pwv_mm=args.pwv,
-                                 title=event.id), args.plot)
+        save_figure(lines_figure(transient, result, refs, airmass=args.airmass, pwv_mm=args.pwv, title=event.id,
+                                 telluric_threshold=args.telluric_threshold),
+                    args.plot, bbox_inches=None)   # the chart has a fixed layout: no second, "tight" pass
     if args.json:
         emit_json(args.json, doc)
     if args.json != "-":

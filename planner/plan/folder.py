@@ -253,14 +253,16 @@ def spectral_figure(plan, folder, day):
                            setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
                            pwv_mm=pwv, setup_ids=[r.id for r in group_refs])
     fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
-                       f"Days {day}-{day + 1}")
+                       f"Days {day}-{day + 1}", telluric_threshold=plan.settings.get("telluric_threshold"))
     words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
                                                               for p in g) for g in groups)
     return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
             "path": _save(fig, folder, f"spectrum-day{day:02d}"),
-            "caption": f"One panel per chosen epoch, top to bottom (epochs within {SAME_EPOCH_D * 24:.1f} h share a "
-                       f"panel): {words}. Bottom: the chosen setups' coverage. Telluric bands drawn at airmass "
-                       f"{airmass:.2f}, PWV {pwv:g} mm."}
+            "caption": f"Feature map: one row per chosen epoch, top to bottom (epochs within {SAME_EPOCH_D * 24:.1f} h "
+                       f"share a row): {words}. Each feature keeps its lane and colour (key at the right); top: the "
+                       f"sky transmission at airmass {airmass:.2f}, PWV {pwv:g} mm (hatched columns: correctable "
+                       f"bands, cross-hatched: lost); bottom: the chosen setups' coverage and how many features are "
+                       f"clear in each, per epoch."}
 
 
 MAX_SNR_FIGURES = 4
