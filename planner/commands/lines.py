@@ -52,11 +52,12 @@ def add_arguments(p) -> None:
                    default=CORRECTABLE_TRANSMISSION, metavar="T",
                    help="telluric bands transmitting at least T are divided out (correctable); below it a trough "
                         f"is lost there (default {CORRECTABLE_TRANSMISSION:g})")
-    v = p.add_argument_group("what-if velocities (replace the model's at every epoch)")
-    v.add_argument("--vphot", type=finite_float("--vphot"), metavar="C",
-                   help=f"photospheric velocity, fraction of c, in (0, {MAX_VELOCITY_C:g})")
-    v.add_argument("--vmax", type=finite_float("--vmax"), metavar="C",
-                   help=f"outer ejecta velocity, fraction of c, in (0, {MAX_VELOCITY_C:g}), above --vphot")
+    v = p.add_argument_group("what-if line-forming shell (replaces the model's velocities at every epoch)")
+    v.add_argument("--shell-inner-c", type=finite_float("--shell-inner-c"), metavar="C",
+                   help="inner edge of the line-forming shell (the photosphere), fraction of c, "
+                        f"in (0, {MAX_VELOCITY_C:g})")
+    v.add_argument("--shell-outer-c", type=finite_float("--shell-outer-c"), metavar="C",
+                   help=f"outer edge of the ejecta, fraction of c, in (0, {MAX_VELOCITY_C:g}), above --shell-inner-c")
     d = p.add_argument_group("line data")
     d.add_argument("--lines", action="append", metavar="FILE",
                    help="your own line list (ECSV, schema in docs/formats.md, Line list), added to the bundled list (repeatable)")
@@ -80,10 +81,11 @@ def check_options(args) -> list[float] | None:
 
     phases = parse_phases(args.phases) if args.phases is not None else None
     check_plot_path(args.plot)
-    _check_velocity("--vphot", args.vphot)
-    _check_velocity("--vmax", args.vmax)
-    if args.vphot is not None and args.vmax is not None and args.vphot >= args.vmax:
-        raise OptionError("--vphot", args.vphot, f"below --vmax {args.vmax:g}")
+    _check_velocity("--shell-inner-c", args.shell_inner_c)
+    _check_velocity("--shell-outer-c", args.shell_outer_c)
+    inner, outer = args.shell_inner_c, args.shell_outer_c
+    if inner is not None and outer is not None and inner >= outer:
+        raise OptionError("--shell-inner-c", inner, f"below --shell-outer-c {outer:g}")
     if args.only_lines and not args.lines:
         raise OptionError("--only-lines", True, "together with at least one --lines FILE")
     return phases
@@ -112,17 +114,18 @@ def select_setups(args):
 
 
 def _check_against_model(args, state) -> None:
-    """A lone --vphot/--vmax must stay on the right side of the model's other velocity at every epoch."""
+    """A lone --shell-inner-c/--shell-outer-c must stay on the right side of the model's other velocity."""
     from kncast.planner.errors import OptionError
 
-    if args.vphot is not None and args.vmax is None and (args.vphot >= state.v_max_c).any():
-        i = int((args.vphot >= state.v_max_c).argmax())
-        raise OptionError("--vphot", args.vphot, f"below the model's v_max {state.v_max_c[i]:.3f} c at "
-                          f"{state.phase_d[i]:g} d (or give --vmax too)")
-    if args.vmax is not None and args.vphot is None and (args.vmax <= state.v_line_c).any():
-        i = int((args.vmax <= state.v_line_c).argmax())  # features form at the line-forming velocity
-        raise OptionError("--vmax", args.vmax, f"above the model's v_phot {state.v_line_c[i]:.3f} c at "
-                          f"{state.phase_d[i]:g} d (or give --vphot too)")
+    inner, outer = args.shell_inner_c, args.shell_outer_c
+    if inner is not None and outer is None and (inner >= state.v_max_c).any():
+        i = int((inner >= state.v_max_c).argmax())
+        raise OptionError("--shell-inner-c", inner, f"below the model's v_max {state.v_max_c[i]:.3f} c at "
+                          f"{state.phase_d[i]:g} d (or give --shell-outer-c too)")
+    if outer is not None and inner is None and (outer <= state.v_line_c).any():
+        i = int((outer <= state.v_line_c).argmax())  # features form at the line-forming velocity
+        raise OptionError("--shell-outer-c", outer, f"above the model's v_phot {state.v_line_c[i]:.3f} c at "
+                          f"{state.phase_d[i]:g} d (or give --shell-inner-c too)")
 
 
 def compute(args):
@@ -142,7 +145,8 @@ def compute(args):
     composition = Composition.load(args.abundances)
     refs = select_setups(args)
     result = forecast_features(transient, phases, linelist, [r.setup for r in refs], TelluricModel.load(),
-                               airmass=args.airmass, pwv_mm=args.pwv, vphot_c=args.vphot, vmax_c=args.vmax,
+                               airmass=args.airmass, pwv_mm=args.pwv,
+                               vphot_c=args.shell_inner_c, vmax_c=args.shell_outer_c,
                                composition=composition, setup_ids=[r.id for r in refs])
     return event, transient, result, refs, linelist
 
@@ -154,7 +158,7 @@ def lines_document(event, transient, result, args, linelist, refs) -> dict:
     comp = result.lte.composition
     settings = {
         "airmass": args.airmass, "pwv_mm": args.pwv,
-        "vphot_override_c": args.vphot, "vmax_override_c": args.vmax,
+        "shell_inner_override_c": args.shell_inner_c, "shell_outer_override_c": args.shell_outer_c,
         "redshift": transient.redshift, "ejecta_mass_msun": transient.ejecta_mass_msun,
         "line_list": linelist.path, "abundances": comp.path, "abundance_source": comp.source,
         "mass_fractions": dict(zip(comp.elements, [round(float(x), 6) for x in comp.mass_fraction])),

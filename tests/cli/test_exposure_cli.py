@@ -9,7 +9,7 @@ import pytest
 ROOT = Path(__file__).resolve().parents[2]
 SOUTH = ROOT / "demo_events" / "kn-demo-south.toml"
 POLE = ROOT / "demo_events" / "kn-demo-pole.toml"
-SETUP = "paranal/t8m/broadband-3arm"
+SETUP = "sutherland/t8m/wide-3arm"
 FIXED = ["--airmass", "1.3", "--moon-illumination", "0.3", "--moon-sep", "80"]  # no planner call
 
 
@@ -34,7 +34,7 @@ def test_json_schema_time_mode(run_cli, tmp_path):
     assert set(s) >= {"wavelength_A", "snr_per_pixel", "snr_per_resel", "source_e", "sky_e"}
     # samples across every arm of the setup
     arms = {x["arm"] for x in doc["samples"]}
-    assert arms == {"uv-blue", "visible", "nir"}
+    assert arms == {"blue", "red", "ir"}
     for f in doc["features"]:
         assert set(f) >= {"feature", "trough_obs_A", "snr_per_resel"}
     assert "per resolution element" in stdout and "take precedence" in stdout
@@ -86,7 +86,7 @@ def test_conditions_from_planner_window(run_cli, tmp_path):
 def test_no_window_is_an_error_unless_airmass_given(run_cli, tmp_path):
     # the far-southern demo event never rises from La Palma (northern hemisphere)
     out = tmp_path / "x.json"
-    args = ["exposure", "--event", POLE, "--setup", "la-palma/t4m/lowres-optical", "--phase", "1.5",
+    args = ["exposure", "--event", POLE, "--setup", "la-palma/t6m/lowres-optical", "--phase", "1.5",
             "--time", "600", "--json", out]
     status, _, stderr = run_cli(*args)
     assert status == 2 and "no observing window" in stderr and "--airmass" in stderr
@@ -146,7 +146,7 @@ def test_bad_options_exit_2_without_output(run_cli, tmp_path, extra, needle):
 
 def test_unknown_setup_suggests(run_cli, tmp_path):
     out = tmp_path / "o.json"
-    status, _, stderr = run_cli("exposure", "--event", SOUTH, "--setup", "paranal/t8m/broadband-3am",
+    status, _, stderr = run_cli("exposure", "--event", SOUTH, "--setup", "sutherland/t8m/wide-3am",
                                 "--phase", "2", "--time", "100", *FIXED, "--json", out)
     assert status == 2 and "did you mean" in stderr and SETUP in stderr
     assert not out.exists()
@@ -175,7 +175,7 @@ def test_bad_atmosphere_table(run_cli, tmp_path):
     d.mkdir()
     (d / "testpar.toml").write_text(site)
     out = tmp_path / "o.json"
-    status, _, stderr = run_cli("exposure", "--event", SOUTH, "--setup", "testpar/t8m/broadband-3arm", "--sites-dir", d,
+    status, _, stderr = run_cli("exposure", "--event", SOUTH, "--setup", "testpar/t10m/fibre-optical", "--sites-dir", d,
                                 "--phase", "2", "--time", "100", *FIXED, "--json", out)
     assert status == 2 and "atmosphere.aerosol_k5500" in stderr
     assert not out.exists()

@@ -7,7 +7,7 @@ from pathlib import Path
 import pytest
 
 DEMO_EVENT = Path(__file__).resolve().parents[2] / "demo_events" / "kn-demo-south.toml"
-SETUP = "maunakea/t10m/nir-xd"
+SETUP = "maunakea/t6m/nir-xd"
 TOP_KEYS = {"kncast", "kind", "event", "epochs"}
 EPOCH_KEYS = {"phase_d", "temperature_K", "v_phot_c", "v_max_c", "features"}
 FEATURE_KEYS = {"feature", "species", "rest_vac_A", "trough_obs_A", "absorption_obs_A", "emission_obs_A",
@@ -27,7 +27,7 @@ def doc(tmp_path_factory):
 
     out = tmp_path_factory.mktemp("lines") / "lines.json"
     status = main(["lines", "--event", str(DEMO_EVENT), "--phases", "1.5,3", "--setup", SETUP,
-                   "--setup", "hanle/t2m/lowres-optical", "--json", str(out)])
+                   "--setup", "hanle/t4m/lowres-optical", "--json", str(out)])
     assert status == 0
     return json.loads(out.read_text())
 
@@ -41,7 +41,7 @@ def test_json_keys(doc):
         for f in ep["features"]:
             assert FEATURE_KEYS <= set(f)
             assert len(f["absorption_obs_A"]) == 2 and len(f["emission_obs_A"]) == 2
-            assert [s["setup"] for s in f["setups"]] == [SETUP, "hanle/t2m/lowres-optical"]
+            assert [s["setup"] for s in f["setups"]] == [SETUP, "hanle/t4m/lowres-optical"]
             for s in f["setups"]:
                 assert set(s) == SETUP_KEYS and s["verdict"] in VERDICTS
                 assert 0 <= s["telluric_loss"] <= s["coverage"] <= 1 and 0 <= s["gap_loss"] <= 1
@@ -123,7 +123,7 @@ def test_all_setups_by_default_and_plot(run_cli, tmp_path):
 def test_velocity_overrides(run_cli, tmp_path):
     out = tmp_path / "v.json"
     status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2,4", "--setup", SETUP,
-                             "--vphot", "0.1", "--vmax", "0.3", "--json", out)
+                             "--shell-inner-c", "0.1", "--shell-outer-c", "0.3", "--json", out)
     assert status == 0, err
     eps = json.loads(out.read_text())["epochs"]
     assert all(e["v_phot_c"] == 0.1 and e["v_max_c"] == 0.3 for e in eps)
@@ -133,12 +133,12 @@ def test_velocity_overrides(run_cli, tmp_path):
     (["--phases", "0"], "--phases"),
     (["--phases", "-1"], "--phases"),
     (["--phases", "2,abc"], "--phases"),
-    (["--vphot", "0.3", "--vmax", "0.2"], "--vphot"),
-    (["--vphot", "0.25", "--vmax", "0.25"], "--vphot"),
-    (["--vphot", "0"], "--vphot"),
-    (["--vmax", "0.8"], "--vmax"),
-    (["--vmax", "1.5"], "--vmax"),
-    (["--vphot", "0.7"], "--vphot"),          # above the model's v_max with no --vmax
+    (["--shell-inner-c", "0.3", "--shell-outer-c", "0.2"], "--shell-inner-c"),
+    (["--shell-inner-c", "0.25", "--shell-outer-c", "0.25"], "--shell-inner-c"),
+    (["--shell-inner-c", "0"], "--shell-inner-c"),
+    (["--shell-outer-c", "0.8"], "--shell-outer-c"),
+    (["--shell-outer-c", "1.5"], "--shell-outer-c"),
+    (["--shell-inner-c", "0.7"], "--shell-inner-c"),   # above the model's v_max with no --shell-outer-c
     (["--airmass", "0.5"], "--airmass"),
     (["--pwv", "-1"], "--pwv"),
     (["--plot", "x.gif"], "--plot"),
@@ -153,9 +153,9 @@ def test_bad_options_exit_2(run_cli, tmp_path, args, needle):
 
 def test_unknown_setup_suggests(run_cli, tmp_path):
     out = tmp_path / "bad.json"
-    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", "maunakea/t10m/nir-xdd",
+    status, _, err = run_cli("lines", "--event", DEMO_EVENT, "--phases", "2", "--setup", "maunakea/t6m/nir-xdd",
                              "--json", out)
-    assert status == 2 and "did you mean maunakea/t10m/nir-xd" in err and len(err.strip().splitlines()) == 1
+    assert status == 2 and "did you mean maunakea/t6m/nir-xd" in err and len(err.strip().splitlines()) == 1
     assert not out.exists()
 
 

@@ -15,13 +15,13 @@ def test_lightcurve_json_keys_and_components(run_cli, demo_event_path, tmp_path)
     doc = json.loads(out.read_text())
     assert doc["kind"] == "lightcurve" and "kncast" in doc and doc["event"]["id"] == "kn-demo-south"
     assert doc["model"]["name"] == "heating"  # from the demo file's [model] table
-    assert [c["name"] for c in doc["model"]["parameters"]["component"]] == ["blue", "red"]
+    assert [c["name"] for c in doc["model"]["parameters"]["component"]] == ["fast", "slow"]
     assert [e["phase_d"] for e in doc["epochs"]] == [1.0, 2.0, 5.0]
     for epoch in doc["epochs"]:
         for key in ("phase_d", "temperature_K", "radius_cm", "luminosity_erg_s", "v_phot_c", "mag_ab"):
             assert key in epoch
         assert set(epoch["mag_ab"]) == set(doc["bands"])
-        assert [c["name"] for c in epoch["components"]] == ["blue", "red"]
+        assert [c["name"] for c in epoch["components"]] == ["fast", "slow"]
         assert sum(c["luminosity_erg_s"] for c in epoch["components"]) == pytest.approx(epoch["luminosity_erg_s"])
     assert "twomass-Ks" in stdout and "days since t0" in stdout
 
@@ -138,7 +138,8 @@ def test_transient_for_event_uses_event_distance_and_dust(demo_event_path):
     event = load_event(demo_event_path)
     tr = transient_for_event(event)
     assert tr.distance_mpc == 120.0 and tr.ebv_mw == pytest.approx(0.06)
-    assert tr.photosphere.name == "heating" and tr.ejecta_mass_msun == pytest.approx(0.065)
+    # the demo file's two components: 0.015 + 0.06 Msun
+    assert tr.photosphere.name == "heating" and tr.ejecta_mass_msun == pytest.approx(0.075)
     pl = transient_for_event(event, model="powerlaw", overrides={"mass_msun": 0.02})
     assert pl.photosphere.name == "powerlaw" and pl.ejecta_mass_msun == pytest.approx(0.02)
 

@@ -74,7 +74,7 @@ def test_custom_site_folder(run_cli, tmp_path):
 
 def test_table_output(run_cli):
     status, out, _ = run_cli("setups", "--sites", "paranal")
-    assert status == 0 and "paranal/t8m/broadband-3arm:vis-nir" in out
+    assert status == 0 and "paranal/t10m/fibre-optical:red" in out
 
 
 def test_malformed_instrument_table_exits_2_without_output(run_cli, tmp_path):

@@ -44,7 +44,7 @@ def _setup():
     from kncast.planner.setups import resolve_setup
     from kncast.planner.sites import SiteRegistry
 
-    ref = resolve_setup("paranal/t8m/broadband-3arm", SiteRegistry.load([]))
+    ref = resolve_setup("sutherland/t8m/wide-3arm", SiteRegistry.load([]))
     return ref.telescope, ref.instrument, ref.setup
 
 

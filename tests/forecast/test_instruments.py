@@ -114,7 +114,7 @@ def test_bundled_sites_have_enough_setups_and_the_three_designs():
     refs = all_setups(SiteRegistry.load())
     assert len(refs) >= 20
     kinds = {r.instrument.id for r in refs}
-    assert {"lowres-optical", "nir-xd", "broadband-3arm"} <= kinds
+    assert {"lowres-optical", "nir-xd", "wide-3arm"} <= kinds
     for r in refs:
         for arm in r.setup.arms:
             assert np.all((arm.throughput >= 0) & (arm.throughput <= 1))
@@ -123,13 +123,13 @@ def test_bundled_sites_have_enough_setups_and_the_three_designs():
 
 def test_setup_ids_resolve_case_insensitively_and_default_alias():
     reg = SiteRegistry.load()
-    ref = resolve_setup("Paranal/T8M/broadband-3arm", reg)
-    assert ref.setup.is_default and ref.id == "paranal/t8m/broadband-3arm"
-    assert resolve_setup("paranal/t8m/broadband-3arm:default", reg) is not None
-    assert resolve_setup("paranal/t8m/broadband-3arm:vis-nir", reg).setup.id == "vis-nir"
+    ref = resolve_setup("Sutherland/T8M/wide-3arm", reg)
+    assert ref.setup.is_default and ref.id == "sutherland/t8m/wide-3arm"
+    assert resolve_setup("sutherland/t8m/wide-3arm:default", reg) is not None
+    assert resolve_setup("sutherland/t8m/wide-3arm:red-ir", reg).setup.id == "red-ir"
 
 
 def test_unknown_setup_suggests_close_ids():
     reg = SiteRegistry.load()
-    with pytest.raises(UnknownNameError, match="did you mean paranal/t8m/broadband-3arm"):
-        resolve_setup("paranal/t8m/broadband-3am", reg)
+    with pytest.raises(UnknownNameError, match="did you mean sutherland/t8m/wide-3arm"):
+        resolve_setup("sutherland/t8m/wide-3am", reg)

@@ -109,7 +109,7 @@ def small_plan():
     from kncast.planner.sites import SiteRegistry
 
     reg = SiteRegistry.load([])
-    sites = [reg.get("paranal"), reg.get("sutherland")]   # a slit and a fibre spectrograph
+    sites = [reg.get("paranal"), reg.get("sutherland")]   # fibre and slit spectrographs
     return build_plan(load_event(ROOT / "demo_events" / "kn-demo-south.toml"), sites, nights=4)
 
 

@@ -237,6 +237,14 @@ def test_distance_columns_give_map_distance(tmp_path):
         load_skymap(write_flat(tmp_path / "e.fits", p, nside, columns=bad))
 
 
+def test_distance_header_keywords_without_columns(tmp_path):
+    # the all-sky distance keywords of a probability map's header (DISTMEAN, DISTSTD, Mpc) are read when the
+    # map has no per-pixel distance columns
+    nside = 8
+    m = load_skymap(write_flat(tmp_path / "h.fits", cap_prob(nside, dec_max_deg=0), nside, DISTMEAN=95.0, DISTSTD=20.0))
+    assert m.distmu_mpc is None and m.distance_moments_mpc() == (95.0, 20.0)
+
+
 def test_galactic_map_is_turned_to_icrs(tmp_path):
     from astropy_healpix import lonlat_to_healpix
     import astropy.units as u

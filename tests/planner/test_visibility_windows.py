@@ -152,7 +152,7 @@ def test_no_dark_time_high_latitude_summer(tmp_path, run_cli):
 
 
 def test_window_crossing_utc_midnight_is_one_window(registry, south):
-    # Chile is UTC-3: a night-long window spans 00:00 UTC and must not be split there
+    # America/Santiago is UTC-3: a night-long window spans 00:00 UTC and must not be split there
     site = registry.get("paranal")
     res = compute_visibility(south, [site], nights=3)
     crossing = [w for n in res.nights for w in n.windows if w.start.datetime.date() != w.end.datetime.date()]
