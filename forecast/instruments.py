@@ -357,9 +357,9 @@ def _toml_name(where: str) -> str:
 
 
 def _known_keys(row: dict, allowed: set, where, path) -> None:
-    unknown = sorted(set(row) - allowed)
-    if unknown:
-        raise DataFileError(path, f"{where}.{unknown[0]}", "unknown key", " | ".join(sorted(allowed)))
+    from kncast.forecast.datafiles import check_keys
+
+    check_keys(row, allowed, path, where)
 
 
 def _ident(value: str, where, path) -> str:

@@ -174,10 +174,9 @@ class LineList:
 def _read_ecsv(path: Path):
     from astropy.table import Table
 
-    if not path.exists():
-        raise DataFileError(path, "", "file not found")
-    if path.is_dir():
-        raise DataFileError(path, "", "is a folder, expected an ECSV line list")
+    from kncast.forecast.datafiles import MAX_TABLE_BYTES, check_input_file
+
+    check_input_file(path, "an ECSV line list", MAX_TABLE_BYTES)  # a regular file of bounded size
     try:
         return Table.read(path, format="ascii.ecsv")
     except Exception as err:  # astropy raises many kinds; all mean "not a valid ECSV table"

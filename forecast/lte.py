@@ -45,7 +45,7 @@ from pathlib import Path
 import numpy as np
 from astropy import constants as const
 
-from kncast.forecast.datafiles import field, read_toml, table
+from kncast.forecast.datafiles import check_keys, field, read_toml, table
 from kncast.forecast.errors import DataFileError, ForecastInputError, check_range
 from kncast.forecast.partition import PartitionData, PartitionFunctions
 from kncast.forecast.references import CASTOR_1970, JEFFERY_BRANCH_1990, SAHA_1920, SOBOLEV_1957
@@ -123,12 +123,15 @@ class Composition:
         at_path = Path(atoms_path) if atoms_path is not None else ATOMS_PATH
         atoms = _load_atoms(at_path)
         doc = read_toml(ab_path)
+        check_keys(doc, ("abundances", "ejecta"), ab_path)
         ab = table(doc, "abundances", ab_path)
+        check_keys(ab, ("mass_fraction", "source", "description"), ab_path, "abundances")
         fractions = table(ab, "mass_fraction", ab_path)
         if not fractions:
             raise DataFileError(ab_path, "abundances.mass_fraction", "no elements listed")
         source = field(ab, "source", ab_path, prefix="abundances", kind=str, default="not stated")
         ej = table(doc, "ejecta", ab_path, required=False)
+        check_keys(ej, ("density_index", "inner_velocity_c"), ab_path, "ejecta")
         n = field(ej, "density_index", ab_path, prefix="ejecta", default=3.0, low=0.0, high=12.0)
         v_in = field(ej, "inner_velocity_c", ab_path, prefix="ejecta", default=0.05, low=0.0, high=0.5,
                      low_open=True, unit="c")

@@ -242,13 +242,10 @@ def load_sky_spectrum(path) -> SkySpectrum:
     whitespace or commas.  At least 2 rows, finite values, wavelengths strictly
     increasing in [1000, 60000] A, brightness >= 0 and < 1e-10.
     """
+    from kncast.forecast.datafiles import MAX_TABLE_BYTES, decode_text, read_nonempty_bytes
+
     path = Path(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise DataFileError(path, "", "file not found") from None
-    except (OSError, UnicodeDecodeError) as err:
-        raise DataFileError(path, "", f"cannot be read as text ({type(err).__name__})") from None
+    text = decode_text(read_nonempty_bytes(path, "a sky spectrum file", MAX_TABLE_BYTES), path, "a sky spectrum")
     rows = []
     for n, line in enumerate(text.splitlines(), start=1):
         s = line.strip()

@@ -21,7 +21,8 @@ import numpy as np
 from astropy.cosmology import Planck18
 
 from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, planck_sum_flam
-from kncast.forecast.distance import MPC_CM, distance_for_redshift, redshift_for_distance
+from kncast.forecast.distance import (DISTANCE_RANGE_MPC, MPC_CM, REDSHIFT_RANGE, distance_for_redshift,
+                                      redshift_for_distance)
 from kncast.forecast.errors import ForecastInputError, ParameterError, check_range
 from kncast.forecast.extinction import transmission
 from kncast.forecast.photometry import ab_minus_vega, band_set
@@ -81,8 +82,8 @@ class Transient:
             redshift = redshift_for_distance(distance_mpc, cosmology)
         elif distance_mpc is None:
             distance_mpc = distance_for_redshift(redshift, cosmology)
-        check_range("distance_mpc", distance_mpc, 0.0, 1e5, low_open=True, unit=" Mpc")
-        check_range("redshift", redshift, 0.0, 10.0, low_open=True)
+        check_range("distance_mpc", distance_mpc, *DISTANCE_RANGE_MPC, low_open=True, unit=" Mpc")
+        check_range("redshift", redshift, *REDSHIFT_RANGE, low_open=True)
         check_range("ebv_mw", ebv_mw, 0.0, 10.0, unit=" mag")
         check_range("ebv_host", ebv_host, 0.0, 10.0, unit=" mag")
         self.photosphere = photosphere

@@ -7,6 +7,8 @@ A site id in a user folder replaces a bundled site of the same id.
 """
 from __future__ import annotations
 
+import os
+import re
 import zoneinfo
 from dataclasses import dataclass, field as dc_field
 from importlib import resources
@@ -14,7 +16,7 @@ from pathlib import Path
 
 import numpy as np
 
-from kncast.forecast.datafiles import field, read_toml, table
+from kncast.forecast.datafiles import check_keys, field, read_toml, table
 from kncast.forecast.errors import DataFileError
 from kncast.planner.errors import InputError, ParameterError, UnknownNameError
 
@@ -70,10 +72,19 @@ def bundled_sites_dir() -> Path:
     return bundled_dir("kncast.planner._sites", "sites")
 
 
+SITE_FILE_KEYS = ("site", "telescope", "atmosphere")  # the top-level tables of a site file
+SITE_KEYS = ("id", "name", "latitude_deg", "longitude_deg", "elevation_m", "timezone", "min_altitude_deg", "horizon")
+HORIZON_KEYS = ("azimuth_deg", "altitude_deg")
+MAX_HORIZON_POINTS = 3600  # one point per 0.1 deg of azimuth
+_SITE_ID = re.compile(r"^[a-z0-9][a-z0-9._-]*$")  # as the telescope and instrument ids (no '/' or ':')
+
+
 def load_site(path) -> Site:
     """Read and validate one site file."""
     doc = read_toml(path)
     st = table(doc, "site", path)
+    check_keys(doc, SITE_FILE_KEYS, path)
+    check_keys(st, SITE_KEYS, path, "site")
     f = lambda key, **kw: field(st, key, path, prefix="site", **kw)  # noqa: E731
     tzname = f("timezone", kind=str)
     try:
@@ -82,7 +93,7 @@ def load_site(path) -> Site:
         raise DataFileError(path, "site.timezone", f"unknown time zone {tzname!r}",
                             "an IANA name such as America/Santiago") from None
     return Site(
-        id=f("id", kind=str).strip(),
+        id=_site_id(f("id", kind=str), path),
         name=f("name", kind=str),
         latitude_deg=f("latitude_deg", low=-90, high=90, unit="deg"),
         longitude_deg=f("longitude_deg", low=-180, high=360, unit="deg (east positive)"),
@@ -96,18 +107,29 @@ def load_site(path) -> Site:
     )
 
 
+def _site_id(value: str, path) -> str:
+    text = value.strip()
+    if len(text) > 64 or not _SITE_ID.match(text.lower()):
+        raise DataFileError(path, "site.id", f"id {text[:80]!r} not allowed",
+                            "at most 64 letters, digits, '.', '_' and '-', starting with a letter or digit")
+    return text
+
+
 def _horizon(st: dict, path) -> Horizon | None:
     hz = st.get("horizon")
     if hz is None:
         return None
     if not isinstance(hz, dict):
         raise DataFileError(path, "site.horizon", "expected a table with azimuth_deg and altitude_deg arrays")
+    check_keys(hz, HORIZON_KEYS, path, "site.horizon")
     az = field(hz, "azimuth_deg", path, prefix="site.horizon", kind=list)
     alt = field(hz, "altitude_deg", path, prefix="site.horizon", kind=list)
     try:
         az, alt = np.asarray(az, dtype=float), np.asarray(alt, dtype=float)
     except (TypeError, ValueError):
         raise DataFileError(path, "site.horizon", "azimuth_deg and altitude_deg must hold numbers") from None
+    if az.ndim != 1 or az.size > MAX_HORIZON_POINTS:
+        raise DataFileError(path, "site.horizon.azimuth_deg", f"{az.size} values", f"2 to {MAX_HORIZON_POINTS} numbers")
     if az.size < 2 or az.shape != alt.shape:
         raise DataFileError(path, "site.horizon", "azimuth_deg and altitude_deg need the same length, at least 2")
     if np.any((az < 0) | (az >= 360)) or np.any(np.diff(az) <= 0):
@@ -162,11 +184,24 @@ class SiteRegistry:
         return [self.get(i) for i in ids]
 
 
+MAX_SITE_FILES = 500  # site files in one folder
+
+
 def _load_folder(folder: Path) -> dict[str, Site]:
     if not folder.is_dir():
         raise ParameterError("extra_dirs", message=f"extra_dirs {str(folder)!r}: not a folder")
+    try:
+        with os.scandir(folder) as it:
+            names = sorted(e.name for e in it if e.name.endswith(".toml"))
+    except OSError as err:
+        raise ParameterError("extra_dirs", message=f"extra_dirs {str(folder)!r}: cannot be read ({err.strerror})") from None
+    if not os.access(folder, os.R_OK | os.X_OK):
+        raise ParameterError("extra_dirs", message=f"extra_dirs {str(folder)!r}: cannot be read (no permission)")
+    if len(names) > MAX_SITE_FILES:
+        raise ParameterError("extra_dirs", message=f"extra_dirs {str(folder)!r}: {len(names)} site files "
+                                                   f"(allowed: at most {MAX_SITE_FILES})")
     found: dict[str, Site] = {}
-    for path in sorted(folder.glob("*.toml")):
+    for path in (folder / n for n in names):
         site = load_site(path)
         key = site.id.lower()
         if key in found:

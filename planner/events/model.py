@@ -17,6 +17,10 @@ from kncast.planner.errors import InputError
 
 # DE421 (skyfield-data) spans 1899-07-28 .. 2053-10-08; keep a margin for the nights after t0.
 T0_MIN, T0_MAX = "1900-01-01", "2053-01-01"
+MAX_ID_CHARS = 100  # event and candidate ids (shown in tables, titles and folder names)
+MAX_CANDIDATES = 50  # candidate positions of one event (each is planned per site and night)
+# control characters, line separators and bidirectional overrides/isolates: never in an id
+_UNSAFE_ID_CHARS = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
 
 
 @dataclass(frozen=True)
@@ -73,8 +77,12 @@ class Event:
         for name, value in (("ebv_mw", ebv_mw), ("ebv_host", ebv_host)):
             if not 0.0 <= float(value) <= 10.0:
                 raise ParameterError(name, value, "0 to 10 mag")
+        try:
+            id = check_id(str(id), "id")
+        except InputError as err:
+            raise ParameterError("id", message=str(err)) from None
         icrs = coord.icrs
-        return cls(str(id), float(icrs.ra.deg), float(icrs.dec.deg), t, distance_mpc=distance_mpc,
+        return cls(id, float(icrs.ra.deg), float(icrs.dec.deg), t, distance_mpc=distance_mpc,
                    redshift=None if redshift is None else float(redshift), ebv_mw=float(ebv_mw),
                    ebv_host=float(ebv_host), model=dict(model or {}), source="Python")
 
@@ -99,6 +107,20 @@ class Event:
         if self.candidates:
             doc["candidates"] = [{"id": c.id, "ra_deg": c.ra_deg, "dec_deg": c.dec_deg} for c in self.candidates]
         return doc
+
+
+def check_id(value, where: str) -> str:
+    """An event or candidate id: non-empty, at most MAX_ID_CHARS characters, no control characters, stripped."""
+    text = value.strip() if isinstance(value, str) else ""
+    if not text:
+        raise InputError(f"{where}: expected a non-empty id, got {value!r}")
+    if len(text) > MAX_ID_CHARS:
+        raise InputError(f"{where}: id of {len(text)} characters is too long (allowed: at most {MAX_ID_CHARS})")
+    bad = _UNSAFE_ID_CHARS.search(text)
+    if bad:
+        raise InputError(f"{where}: id holds the control character U+{ord(bad.group()):04X} "
+                         f"(allowed: printable text on one line)")
+    return text
 
 
 def parse_ra(value, where: str) -> float:
@@ -138,6 +160,11 @@ def parse_time_utc(value, where: str) -> Time:
         dt = value
     else:
         text = str(value).strip()
+        if len(text) > 64:
+            raise InputError(f"{where}: cannot read time of {len(text)} characters (allowed: ISO 8601 UTC, "
+                             f"e.g. 2027-03-14T02:17:00Z)")
+        if _LEAP.match(text):
+            return _leap_second(text, value, where)
         try:
             dt = datetime.fromisoformat(text.replace("Z", "+00:00").replace("z", "+00:00"))
         except ValueError:
@@ -153,9 +180,36 @@ def parse_time_utc(value, where: str) -> Time:
     return t
 
 
+# a time in a leap second: 23:59:60[.fff] UTC (Z or +00:00 only: leap seconds are defined in UTC)
+_LEAP = re.compile(r"^(\d{4}-\d{2}-\d{2})[Tt ]23:59:60(\.\d{1,9})?([Zz]|\+00:?00)$")
+
+
+def _leap_second(text: str, value, where: str) -> Time:
+    """A UTC Time inside a leap second, checked against astropy's leap-second table (IERS Bulletin C)."""
+    import warnings
+
+    from erfa import ErfaWarning
+
+    m = _LEAP.match(text)
+    stamp = f"{m.group(1)}T23:59:60{m.group(2) or ''}"
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("error", ErfaWarning)
+            t = Time(stamp, scale="utc", format="isot")
+    except (ErfaWarning, ValueError):
+        raise InputError(f"{where}: time {value!r}: no leap second ends that day (allowed: 23:59:60 only on "
+                         f"the days IERS Bulletin C lists)") from None
+    if not Time(T0_MIN) <= t <= Time(T0_MAX):
+        raise InputError(f"{where}: time {value!r} outside the ephemeris span (allowed: {T0_MIN} to {T0_MAX})")
+    return t
+
+
 def check_distance(distance_mpc, redshift, where: str):
-    """Validate distance (Mpc, (0, 1e5]) and redshift ((0, 10])."""
-    if distance_mpc is not None and not 0.0 < distance_mpc <= 1e5:
-        raise InputError(f"{where}: distance {distance_mpc:g} Mpc out of range (allowed: 0 < D <= 100000 Mpc)")
-    if redshift is not None and not 0.0 < redshift <= 10.0:
-        raise InputError(f"{where}: redshift {redshift:g} out of range (allowed: 0 < z <= 10)")
+    """Validate distance (Mpc, DISTANCE_RANGE_MPC) and redshift (REDSHIFT_RANGE)."""
+    from kncast.forecast.distance import (DISTANCE_RANGE_MPC, REDSHIFT_RANGE, distance_range_text,
+                                          redshift_range_text)
+
+    if distance_mpc is not None and not DISTANCE_RANGE_MPC[0] < distance_mpc <= DISTANCE_RANGE_MPC[1]:
+        raise InputError(f"{where}: distance {distance_mpc:g} Mpc out of range (allowed: {distance_range_text()})")
+    if redshift is not None and not REDSHIFT_RANGE[0] < redshift <= REDSHIFT_RANGE[1]:
+        raise InputError(f"{where}: redshift {redshift:g} out of range (allowed: {redshift_range_text()})")
