@@ -23,6 +23,7 @@ refused.  Every failure is one :class:`DataFileError` line naming the file.
 """
 from __future__ import annotations
 
+import io
 import math
 import warnings
 from dataclasses import dataclass
@@ -30,6 +31,7 @@ from pathlib import Path
 
 import numpy as np
 
+from kncast.forecast.datafiles import MIB, read_input_bytes
 from kncast.forecast.errors import DataFileError
 from kncast.forecast.references import GORSKI_2005, SINGER_2016
 
@@ -39,6 +41,8 @@ REFERENCES = (GORSKI_2005, SINGER_2016)
 NORM_QUIET = 1e-4  # |sum - 1| below this: float rounding, renormalised silently
 NORM_TOLERANCE = 0.01  # |sum - 1| up to this: renormalised with a warning; beyond: refused
 MAX_LEVEL = 29  # HEALPix order limit of 64-bit indices (nside = 2^29)
+MAX_FLAT_NSIDE = 2048  # flat maps: 50 million pixels at most (finer maps: use the multi-order form)
+MAX_MAP_BYTES = 2 * 1024 ** 3  # a sky-map file, and its content after gzip/bzip2 decompression: 2 GiB
 SR_TO_DEG2 = (180.0 / math.pi) ** 2
 FITS_BLOCK = 2880  # bytes
 FLAT_ORDERINGS = ("NESTED", "RING")
@@ -210,16 +214,12 @@ def _read_table(path: Path):
     """(header, {UPPER name: flat float/int array}) of the first HEALPix binary table."""
     from astropy.io import fits
 
-    if not path.exists():
-        raise DataFileError(path, "", "file not found")
-    if path.is_dir():
-        raise DataFileError(path, "", "is a folder, expected a FITS sky map")
-    _check_blocks(path)
+    data_bytes = _fits_bytes(path)
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # header-style notices from astropy are not our concern here
             warnings.filterwarnings("error", message=".*(truncated|corrupt).*")  # a damaged file is
-            with fits.open(path, memmap=False) as hdul:
+            with fits.open(io.BytesIO(data_bytes), memmap=False) as hdul:
                 tables = [h for h in hdul[1:] if isinstance(h, fits.BinTableHDU)]
                 if not tables:
                     raise DataFileError(path, "", "no binary table extension; a HEALPix map is a BINTABLE "
@@ -242,18 +242,33 @@ def _read_table(path: Path):
     return header, cols
 
 
-def _check_blocks(path: Path) -> None:
-    """An uncompressed FITS file is a whole number of 2880-byte blocks (FITS Standard 4.0, sec. 3.1)."""
-    try:
-        with path.open("rb") as f:
-            magic = f.read(3)
-        size = path.stat().st_size
-    except OSError as err:
-        raise DataFileError(path, "", f"cannot be read ({err.strerror})") from None
-    compressed = magic[:2] == b"\x1f\x8b" or magic == b"BZh"
-    if not compressed and size % FITS_BLOCK:
-        raise DataFileError(path, "", f"not a readable FITS file ({size} bytes is not a whole number of "
+def _fits_bytes(path: Path) -> bytes:
+    """The (decompressed) bytes of a sky-map file: a regular file, at most MAX_MAP_BYTES before and after
+    gzip/bzip2 decompression, a whole number of 2880-byte blocks (FITS Standard 4.0, sec. 3.1)."""
+    raw = read_input_bytes(path, "a FITS sky map", MAX_MAP_BYTES)
+    if raw[:2] == b"\x1f\x8b" or raw[:3] == b"BZh":
+        raw = _decompress(raw, path)
+    if len(raw) % FITS_BLOCK:
+        raise DataFileError(path, "", f"not a readable FITS file ({len(raw)} bytes is not a whole number of "
                                       f"{FITS_BLOCK}-byte blocks: truncated or not FITS)")
+    return raw
+
+
+def _decompress(raw: bytes, path: Path) -> bytes:
+    """gzip or bzip2 content, read up to one byte past MAX_MAP_BYTES (never more) and refused beyond it."""
+    import bz2
+    import gzip
+    import zlib
+
+    source = io.BytesIO(raw)
+    try:
+        with (gzip.GzipFile(fileobj=source) if raw[:2] == b"\x1f\x8b" else bz2.BZ2File(source)) as f:
+            out = f.read(MAX_MAP_BYTES + 1)
+    except (OSError, EOFError, ValueError, zlib.error) as err:
+        raise DataFileError(path, "", f"not a readable compressed file ({err})") from None
+    if len(out) > MAX_MAP_BYTES:
+        raise DataFileError(path, "", "decompressed size too large", f"at most {MAX_MAP_BYTES / MIB:g} MiB decompressed")
+    return out
 
 
 def _ordering(header, columns, path) -> str:
@@ -332,8 +347,9 @@ def _nside(header, n: int, path) -> int:
         if 12 * nside * nside != n:
             raise DataFileError(path, "NSIDE", f"value {nside} needs {12 * nside * nside} pixels, the table has {n}",
                                 "12 * NSIDE^2 rows")
-    if nside < 1 or nside & (nside - 1) or nside > 2 ** MAX_LEVEL:
-        raise DataFileError(path, "NSIDE", f"value {nside} is not a power of 2", f"1, 2, 4, ... 2^{MAX_LEVEL}")
+    if nside < 1 or nside & (nside - 1) or nside > MAX_FLAT_NSIDE:
+        raise DataFileError(path, "NSIDE", f"value {nside} is not a power of 2 up to {MAX_FLAT_NSIDE}",
+                            f"1, 2, 4, ... {MAX_FLAT_NSIDE} for a flat map")
     return nside
 
 

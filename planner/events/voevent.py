@@ -31,10 +31,10 @@ import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
-from kncast.forecast.datafiles import read_nonempty_bytes
+from kncast.forecast.datafiles import MAX_TEXT_BYTES, read_nonempty_bytes
 from kncast.forecast.errors import DataFileError
 from kncast.planner.errors import InputError
-from kncast.planner.events.model import Event, T0_MAX, T0_MIN, check_distance
+from kncast.planner.events.model import Event, T0_MAX, T0_MIN, check_distance, check_id
 
 VOEVENT_NS = "http://www.ivoa.net/xml/VOEvent/v2.0"
 LOCATION = "WhereWhen/ObsDataLocation/ObservationLocation"
@@ -44,6 +44,8 @@ SPATIAL_FRAMES = ("ICRS", "FK5")
 DISTANCE_NAMES = ("distance", "distmean", "distance_mpc", "luminosity_distance")
 DISTANCE_ERR_NAMES = ("distance_err", "distance_error", "diststd", "distance_err_mpc")
 DISTANCE_UNITS_MPC = {"pc": 1e-6, "kpc": 1e-3, "mpc": 1.0, "gpc": 1e3}
+MAX_XML_DEPTH = 32  # element nesting (a VOEvent 2.0 packet needs about 8)
+MAX_XML_ELEMENTS = 100_000
 
 
 def load_voevent(path) -> Event:
@@ -76,23 +78,62 @@ def load_voevent(path) -> Event:
 
 # --- reading -------------------------------------------------------------
 def _parse(path: Path) -> ET.Element:
-    """The packet's root element, namespaces stripped from every tag."""
-    raw = read_nonempty_bytes(path, "a VOEvent XML file")
-    if b"<!ENTITY" in raw:
-        raise DataFileError(path, "", "XML entity declarations are not accepted in alert packets")
-    try:
-        root = ET.fromstring(raw)
-    except ET.ParseError as err:
-        raise DataFileError(path, "", f"not well-formed XML ({err})") from None
+    """The packet's root element, namespaces stripped from every tag.
+
+    Parsed with ``defusedxml`` after decoding (any encoding the packet declares): a DOCTYPE, an
+    entity declaration or an external reference is refused, so are an unknown encoding, nesting
+    deeper than MAX_XML_DEPTH, more than MAX_XML_ELEMENTS elements and a root element outside the
+    VOEvent 2.0 namespace.
+    """
+    raw = read_nonempty_bytes(path, "a VOEvent XML file", MAX_TEXT_BYTES)
+    root = _parse_bytes(raw, path)
+    namespace, _, local = root.tag.rpartition("}")
+    if local != "VOEvent":
+        raise DataFileError(path, "", f"root element is <{local}>, not a VOEvent packet",
+                            f"a VOEvent 2.0 document ({VOEVENT_NS})")
+    if namespace.lstrip("{") != VOEVENT_NS:
+        raise DataFileError(path, "VOEvent", f"namespace {namespace.lstrip('{') or '(none)'!r} is not VOEvent 2.0",
+                            VOEVENT_NS)
     for el in root.iter():
         if isinstance(el.tag, str):
             el.tag = el.tag.rsplit("}", 1)[-1]
-    if root.tag != "VOEvent":
-        raise DataFileError(path, "", f"root element is <{root.tag}>, not a VOEvent packet",
-                            f"a VOEvent 2.0 document ({VOEVENT_NS})")
     version = root.get("version", "").strip()
     if version and version != "2.0":
         raise DataFileError(path, "VOEvent/@version", f"version {version!r} not supported", "2.0")
+    return root
+
+
+def _parse_bytes(raw: bytes, path) -> ET.Element:
+    import io
+
+    import defusedxml.ElementTree as safe_et
+    from defusedxml import DefusedXmlException
+
+    depth = count = 0
+    root = None
+    try:
+        for event, el in safe_et.iterparse(io.BytesIO(raw), events=("start", "end"), forbid_dtd=True):
+            if event == "end":
+                depth -= 1
+                continue
+            depth, count = depth + 1, count + 1
+            root = el if root is None else root
+            if depth > MAX_XML_DEPTH:
+                raise DataFileError(path, "", "elements nested too deeply", f"at most {MAX_XML_DEPTH} levels")
+            if count > MAX_XML_ELEMENTS:
+                raise DataFileError(path, "", "too many elements", f"at most {MAX_XML_ELEMENTS}")
+    except DataFileError:
+        raise
+    except DefusedXmlException as err:
+        raise DataFileError(path, "", f"{type(err).__name__}: DOCTYPE, entity declarations and external "
+                                      "references are not accepted in alert packets") from None
+    except ET.ParseError as err:
+        raise DataFileError(path, "", f"not well-formed XML ({err})") from None
+    except (LookupError, ValueError, UnicodeError) as err:
+        raise DataFileError(path, "", f"cannot be decoded ({str(err).splitlines()[0][:120]})",
+                            "a known encoding such as UTF-8 or UTF-16") from None
+    if root is None:
+        raise DataFileError(path, "", "not well-formed XML (no element)")
     return root
 
 
@@ -113,13 +154,16 @@ def _text(parent: ET.Element, where: str, path, name: str) -> str:
 def _event_id(root: ET.Element, path) -> str:
     ivorn = (root.get("ivorn") or "").strip()
     if not ivorn.startswith("ivo://"):
-        raise DataFileError(path, "VOEvent/@ivorn", f"missing or malformed ivorn {ivorn!r}",
+        raise DataFileError(path, "VOEvent/@ivorn", f"missing or malformed ivorn {ivorn[:120]!r}",
                             "ivo://authority/path#local-id")
     local = ivorn.split("#", 1)[1] if "#" in ivorn else ivorn.rstrip("/").rsplit("/", 1)[-1]
     local = re.sub(r"[^A-Za-z0-9._+-]+", "-", local.strip()).strip("-.")  # safe in file and folder names
     if not local:
-        raise DataFileError(path, "VOEvent/@ivorn", f"no local id in {ivorn!r}", "ivo://authority/path#local-id")
-    return local
+        raise DataFileError(path, "VOEvent/@ivorn", f"no local id in {ivorn[:120]!r}", "ivo://authority/path#local-id")
+    try:
+        return check_id(local, "local id")
+    except InputError as err:
+        raise DataFileError(path, "VOEvent/@ivorn", str(err)) from None
 
 
 # --- where and when ------------------------------------------------------
@@ -183,6 +227,8 @@ def _time(coords: ET.Element, system, path):
 
     where = f"{LOCATION}/AstroCoords/Time/TimeInstant/ISOTime"
     text = _text(coords, "Time/TimeInstant/ISOTime", path, where)
+    if len(text) > 64:
+        raise DataFileError(path, where, f"time of {len(text)} characters", "ISO 8601, e.g. 2027-03-14T02:17:00.00")
     stamp = text[:-1] if text[-1:] in "Zz" else text
     scale = TIME_SCALES[system[0]]
     try:
@@ -243,7 +289,7 @@ def _float(text, path, where: str) -> float:
     try:
         v = float(str(text).strip())
     except (TypeError, ValueError):
-        raise DataFileError(path, where, f"expected a number, got {text!r}") from None
+        raise DataFileError(path, where, f"expected a number, got {str(text)[:40]!r}") from None
     if not math.isfinite(v):
-        raise DataFileError(path, where, f"expected a finite number, got {text!r}")
+        raise DataFileError(path, where, f"expected a finite number, got {str(text)[:40]!r}")
     return v
