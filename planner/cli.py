@@ -5,16 +5,74 @@ Each sub-command lives in ``planner/commands/<name>.py`` and exposes
 Command modules import nothing heavy at module level, so ``kncast --help``
 stays fast.  Bad input ends with one line on stderr and exit status 2;
 an internal error says so in one line and ``--debug`` shows the traceback.
+SIGINT (Ctrl-C), SIGTERM and SIGHUP end a run the same way: one line, exit
+status 128 + the signal's number, outputs from earlier runs left as they were
+(every output is written aside and renamed into place, see kncast.planner.output);
+forked workers leave the clean-up to the main process and print nothing.
 """
 from __future__ import annotations
 
 import argparse
+import contextlib
 import importlib
+import os
+import signal
 import sys
+import threading
 
 COMMANDS = ["demo", "plan", "visibility", "lightcurve", "setups", "lines", "exposure", "coverage"]
 
 EXIT_OK, EXIT_INTERNAL, EXIT_USAGE = 0, 1, 2
+EXIT_SIGNAL_BASE = 128  # a run stopped by signal N exits with 128 + N, as shells report it
+STOP_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM", "SIGHUP") if hasattr(signal, n))
+
+
+class Stopped(KeyboardInterrupt):
+    """A stop signal (SIGINT, SIGTERM, SIGHUP) arrived; unwinds like Ctrl-C so every clean-up runs."""
+
+    def __init__(self, signum: int):
+        super().__init__(signum)
+        self.signum = signum
+
+
+def _raise_stopped(signum, _frame):
+    raise Stopped(signum)
+
+
+_handling = False  # True while main() handles the stop signals (read by forked children)
+
+
+def _quiet_child() -> None:
+    """In a process forked while main() runs (figure workers): Ctrl-C is the parent's to handle,
+    SIGTERM/SIGHUP (the parent's pool sends SIGTERM) end the worker silently."""
+    if _handling:
+        signal.signal(signal.SIGINT, signal.SIG_IGN)
+        for s in STOP_SIGNALS:
+            if s != signal.SIGINT:
+                signal.signal(s, signal.SIG_DFL)
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_quiet_child)
+
+
+@contextlib.contextmanager
+def stop_signals():
+    """SIGINT/SIGTERM/SIGHUP raise :class:`Stopped` inside the block; the previous handlers return after it."""
+    global _handling
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = {s: signal.getsignal(s) for s in STOP_SIGNALS}
+    for s in STOP_SIGNALS:
+        signal.signal(s, _raise_stopped)
+    _handling = True
+    try:
+        yield
+    finally:
+        _handling = False
+        for s, handler in previous.items():
+            signal.signal(s, handler if handler is not None else signal.SIG_DFL)
 
 
 class OneLineParser(argparse.ArgumentParser):
@@ -76,6 +134,14 @@ def user_message(err, option_of: dict) -> str:
 
 
 def main(argv=None) -> int:
+    with stop_signals():
+        try:
+            return _main(argv)
+        except KeyboardInterrupt as err:  # also a stop before the command is known
+            return _stopped("kncast", err)
+
+
+def _main(argv) -> int:
     parser = build_parser()
     args = parser.parse_args(argv)
     if not getattr(args, "command", None):
@@ -84,19 +150,45 @@ def main(argv=None) -> int:
     from kncast.planner.errors import USER_ERRORS
 
     try:
+        from kncast.planner.commands._outputs import check_outputs
+
+        check_outputs(args)
         return int(args.run(args) or EXIT_OK)
     except USER_ERRORS as err:
-        print(f"kncast {args.command}: error: {user_message(err, args.option_of)}", file=sys.stderr)
+        _say(f"kncast {args.command}: error: {user_message(err, args.option_of)}")
         return EXIT_USAGE
-    except KeyboardInterrupt:
-        print(f"kncast {args.command}: interrupted", file=sys.stderr)
-        return 130
+    except KeyboardInterrupt as err:
+        return _stopped(f"kncast {args.command}", err)
     except Exception as err:  # noqa: BLE001 - the last line of defence, see --debug
         if args.debug:
             raise
-        print(f"kncast {args.command}: internal error: {type(err).__name__}: {err} "
-              f"(run again with --debug for the traceback)", file=sys.stderr)
+        _say(f"kncast {args.command}: internal error: {type(err).__name__}: {err} "
+             f"(run again with --debug for the traceback)")
         return EXIT_INTERNAL
+
+
+def _stopped(prog: str, err: KeyboardInterrupt) -> int:
+    """One line for a stop signal; the exit status 128 + its number (SIGINT: 130).  A second signal
+    while stopping is ignored (the clean-up has run; stop_signals restores the handlers)."""
+    with contextlib.suppress(ValueError):  # not the main thread
+        for s in STOP_SIGNALS:
+            signal.signal(s, signal.SIG_IGN)
+    signum = getattr(err, "signum", signal.SIGINT)
+    _say(f"{prog}: interrupted by {signal.Signals(signum).name}; earlier outputs are unchanged")
+    return EXIT_SIGNAL_BASE + int(signum)
+
+
+MAX_MESSAGE_CHARS = 1000  # a message quoting a huge value from a file is cut to this
+
+
+def _say(line: str) -> None:
+    """Print ``line`` on stderr as one line (line breaks become spaces, at most MAX_MESSAGE_CHARS), if
+    stderr is still there (a hung-up terminal is not)."""
+    line = " ".join(str(line).splitlines())
+    if len(line) > MAX_MESSAGE_CHARS:
+        line = line[:MAX_MESSAGE_CHARS - 5] + " ..."
+    with contextlib.suppress(OSError, ValueError):
+        print(line, file=sys.stderr)
 
 
 if __name__ == "__main__":

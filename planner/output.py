@@ -2,22 +2,47 @@
 
 Every file kncast writes goes to a temporary name in the target folder and
 is renamed into place only when complete, so a failed run never leaves a
-partial file at the requested path.
+partial file at the requested path; a plan folder is swapped in whole, with
+the previous one restored if the swap fails, and what killed runs left behind
+is restored or swept on the next run.
 """
 from __future__ import annotations
 
 import contextlib
+import errno
 import json
 import math
 import os
+import re
 import shutil
+import signal
 import tempfile
+import threading
 from pathlib import Path
 
 import numpy as np
 from astropy.time import Time
 
+from kncast.planner.errors import InputError
+
 SCHEMA_VERSION = 2  # 2: per-feature detectability (plan and lines)
+
+
+# Errors of the file system that mean "this place cannot take the output" (the user's to fix: exit 2):
+# disk full, quota, read-only, no permission, name too long, file too large.
+DISK_ERRNOS = frozenset({errno.ENOSPC, errno.EDQUOT, errno.EROFS, errno.EACCES, errno.EPERM, errno.ENAMETOOLONG,
+                         errno.EFBIG, errno.EIO})
+_TMP_TAG = ".kncast-"  # temporary names: .<name>.kncast-<new|old|tmp>-<pid>-<random>
+_TMP_NAME = re.compile(r"^\.(?P<name>.+)\.kncast-(?P<kind>new|old|tmp)-(?P<pid>\d+)-[A-Za-z0-9_]+(\.[^.]*)?$")
+STOP_SIGNALS = tuple(getattr(signal, n) for n in ("SIGINT", "SIGTERM", "SIGHUP") if hasattr(signal, n))
+
+
+class OutputError(InputError):
+    """An output path the file system refuses (disk full, read-only, no permission): one line, exit 2."""
+
+    def __init__(self, path, err: OSError):
+        self.path, self.errno = str(path), err.errno
+        super().__init__(f"cannot write {path}: {err.strerror or err} (nothing was replaced)")
 
 
 def _umask() -> int:
@@ -32,41 +57,142 @@ def _publish_mode(path: Path, directory: bool = False) -> None:
 
 
 @contextlib.contextmanager
-def atomic_path(path, suffix: str | None = None):
-    """Yield a temporary path beside ``path``; rename it onto ``path`` on success only."""
-    path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix or path.suffix, dir=path.parent)
-    os.close(fd)
+def signals_held():
+    """Hold SIGINT/SIGTERM/SIGHUP until the block ends (a rename pair or a clean-up is never cut in two).
+
+    Only the main thread can do this; elsewhere (and on systems without pthread_sigmask) it does nothing.
+    """
+    can = hasattr(signal, "pthread_sigmask") and threading.current_thread() is threading.main_thread()
+    old = signal.pthread_sigmask(signal.SIG_BLOCK, STOP_SIGNALS) if can else None
     try:
-        yield Path(tmp)
-        _publish_mode(Path(tmp))
-        os.replace(tmp, path)
-    except BaseException:
-        with contextlib.suppress(FileNotFoundError):
-            os.unlink(tmp)
+        yield
+    finally:
+        if can:
+            signal.pthread_sigmask(signal.SIG_SETMASK, old)
+
+
+def _tmp_prefix(path: Path, kind: str) -> str:
+    return f".{path.name}{_TMP_TAG}{kind}-{os.getpid()}-"
+
+
+def _pid_alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return False  # a leftover of an earlier process that had our number
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def sweep_stale(path) -> list[Path]:
+    """Restore or remove what killed runs left beside ``path``; returns what was removed.
+
+    A run killed between the two renames of a folder swap leaves the previous folder as
+    ``.<name>.kncast-old-<pid>-*/x`` with nothing at ``path``: it is renamed back.  Temporary
+    folders and files of runs whose process is gone are removed; those of running processes stay.
+    """
+    path = Path(path)
+    parent = path.absolute().parent
+    removed = []
+    try:
+        entries = list(os.scandir(parent))
+    except OSError:
+        return removed
+    for entry in entries:
+        m = _TMP_NAME.match(entry.name)
+        if not m or m.group("name") != path.name or _pid_alive(int(m.group("pid"))):
+            continue
+        stale = Path(entry.path)
+        with signals_held():
+            if m.group("kind") == "old" and entry.is_dir(follow_symlinks=False):
+                previous = stale / "x"
+                if previous.exists() and not os.path.lexists(path):
+                    os.replace(previous, path)
+            if entry.is_dir(follow_symlinks=False):
+                shutil.rmtree(stale, ignore_errors=True)
+            else:
+                with contextlib.suppress(OSError):
+                    stale.unlink()
+        removed.append(stale)
+    return removed
+
+
+@contextlib.contextmanager
+def disk_errors(path):
+    """Turn a file-system refusal (DISK_ERRNOS) inside the block into an OutputError naming ``path``."""
+    try:
+        yield
+    except OSError as err:
+        if err.errno in DISK_ERRNOS:
+            raise OutputError(path, err) from None
         raise
 
 
 @contextlib.contextmanager
-def atomic_dir(path):
-    """Yield a temporary folder beside ``path``; it replaces ``path`` on success only."""
+def atomic_path(path, suffix: str | None = None):
+    """Yield a temporary path beside ``path``; rename it onto ``path`` on success only.
+
+    A refusal of the file system (disk full, no permission) becomes an OutputError; the file
+    at ``path``, if any, is left as it was.
+    """
     path = Path(path)
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = Path(tempfile.mkdtemp(prefix=f".{path.name}.", dir=path.parent))
-    try:
-        yield tmp
-        _publish_mode(tmp, directory=True)
-        if path.exists():
-            old = Path(tempfile.mkdtemp(prefix=f".{path.name}.old.", dir=path.parent))
-            os.replace(path, old / "x")
+    with disk_errors(path):
+        path.parent.mkdir(parents=True, exist_ok=True)
+        sweep_stale(path)
+        fd, tmp = tempfile.mkstemp(prefix=_tmp_prefix(path, "tmp"), suffix=suffix or path.suffix, dir=path.parent)
+        os.close(fd)
+        try:
+            yield Path(tmp)
+            _publish_mode(Path(tmp))
             os.replace(tmp, path)
-            shutil.rmtree(old, ignore_errors=True)
-        else:
-            os.replace(tmp, path)
-    except BaseException:
-        shutil.rmtree(tmp, ignore_errors=True)
-        raise
+        except BaseException:
+            with signals_held(), contextlib.suppress(FileNotFoundError):
+                os.unlink(tmp)
+            raise
+
+
+@contextlib.contextmanager
+def atomic_dir(path):
+    """Yield a temporary folder beside ``path``; it replaces ``path`` on success only.
+
+    The swap is two renames with the stop signals held: the previous folder moves aside, the new
+    one into place, and if the second rename fails the previous folder is moved back.  Leftovers
+    of killed runs are swept first (:func:`sweep_stale`).  A refusal of the file system becomes an
+    OutputError and leaves the previous folder as it was.
+    """
+    path = Path(path)
+    with disk_errors(path):
+        path.parent.mkdir(parents=True, exist_ok=True)
+        sweep_stale(path)
+        tmp = Path(tempfile.mkdtemp(prefix=_tmp_prefix(path, "new"), dir=path.parent))
+        try:
+            yield tmp
+            _publish_mode(tmp, directory=True)
+            _swap(tmp, path)
+        except BaseException:
+            with signals_held():
+                shutil.rmtree(tmp, ignore_errors=True)
+            raise
+
+
+def _swap(new: Path, path: Path) -> None:
+    """Put folder ``new`` at ``path``; a previous folder there is removed only once ``new`` is in place."""
+    with signals_held():
+        if not os.path.lexists(path):
+            os.replace(new, path)
+            return
+        old = Path(tempfile.mkdtemp(prefix=_tmp_prefix(path, "old"), dir=path.parent))
+        os.replace(path, old / "x")
+        try:
+            os.replace(new, path)
+        except BaseException:
+            os.replace(old / "x", path)
+            os.rmdir(old)
+            raise
+    shutil.rmtree(old, ignore_errors=True)
 
 
 def iso_utc(t) -> str | None:
@@ -113,8 +239,14 @@ def save_figure(fig, path, **kwargs) -> None:
 
     path = Path(path)
     fmt = path.suffix.lstrip(".") or "png"
+    options = {"dpi": 120, "bbox_inches": "tight", **kwargs}
     try:
         with atomic_path(path) as tmp:
-            fig.savefig(tmp, format=fmt, **{"dpi": 120, "bbox_inches": "tight", **kwargs})
+            try:
+                fig.savefig(tmp, format=fmt, **options)
+            except ValueError:  # a text matplotlib cannot typeset as mathtext: draw every text as written
+                for text in fig.findobj(lambda a: hasattr(a, "set_parse_math")):
+                    text.set_parse_math(False)
+                fig.savefig(tmp, format=fmt, **options)
     finally:
         plt.close(fig)

@@ -8,6 +8,7 @@ DEMO_EVENT = "kn-demo-south.toml"
 
 def add_arguments(p) -> None:
     p.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/kn-demo-south/)")
+    p.add_argument("--force", action="store_true", help="replace a folder holding another event's plan")
     from kncast.planner.commands._common import positive_int
 
     p.add_argument("--nights", type=positive_int("--nights", 60), default=10, metavar="N",
@@ -27,6 +28,8 @@ def run(args) -> int:
     argv = ["plan", "--event", str(demo_event_path()), "--nights", str(args.nights)]
     if args.out:
         argv += ["--out", args.out]
+    if args.force:
+        argv.append("--force")
     plan_args = build_parser().parse_args(argv)
     plan_args.debug = args.debug
     return plan_args.run(plan_args)

@@ -53,6 +53,8 @@ def add_arguments(p) -> None:
                    help="Sun altitude that ends twilight (default nautical, -12 deg)")
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")
+    o.add_argument("--force", action="store_true",
+                   help="replace a folder holding another event's plan (files kncast did not write are never deleted)")
     o.add_argument("--json", metavar="PATH", help="also write plan.json to PATH ('-' for stdout); quiet terminal")
     from kncast.planner.commands._model_options import add_model_options
 
@@ -67,7 +69,7 @@ def run(args) -> int:
 
     overrides = overrides_from_args(args)
     out = Path(args.out) if args.out else Path("kncast-out") / safe_name(event.id)
-    check_out(out)
+    check_out(out, event.id, force=getattr(args, "force", False))
     with _common.progress(disable=quiet) as bar:
         task = bar.add_task("planning", total=7)
 
@@ -111,18 +113,19 @@ def feature_ids(args) -> list[str] | None:
 
 
 def safe_name(text: str) -> str:
-    """A folder name from an event id (letters, digits, '.', '_', '-')."""
-    import re
+    """A folder name from an event id: readable, different for different ids (kncast.planner.plan.outfolder)."""
+    from kncast.planner.plan.outfolder import folder_name
 
-    name = re.sub(r"[^A-Za-z0-9._-]+", "_", text).strip("._") or "event"
-    return name[:80]
+    return folder_name(text)
 
 
-def check_out(out: Path) -> None:
-    """The output folder must be new or an earlier plan folder, inside a folder we may write."""
+def check_out(out: Path, event_id: str, force: bool = False) -> None:
+    """The output folder must be new, empty or an earlier plan folder of this event holding only the files
+    its plan.json lists (another event's only with --force), inside a folder we may write."""
     import os
 
     from kncast.planner.errors import OptionError
+    from kncast.planner.plan.outfolder import check_plan_folder
 
     base = out.absolute().parent
     while not base.exists():
@@ -131,9 +134,7 @@ def check_out(out: Path) -> None:
         raise OptionError("--out", str(out), f"a folder that can be created ({base} is not writable)")
     if out.exists() and not out.is_dir():
         raise OptionError("--out", str(out), "a folder path (this is an existing file)")
-    if out.exists() and any(out.iterdir()) and not (out / "plan.json").exists():
-        raise OptionError("--out", str(out), "a new folder or an earlier kncast plan folder "
-                          "(this folder holds other files)")
+    check_plan_folder(out, event_id, force=force)  # names the files kncast did not write
 
 
 def write_folder(plan, out: Path, say=lambda text: None) -> dict:

@@ -182,8 +182,12 @@ def _run_job(job):
     """Draw one figure; a failure comes back as text (exception objects may not survive pickling)."""
     name, arg = job
     plan, folder = _JOB_STATE
+    from kncast.planner.errors import InputError
+
     try:
         return FIGURES[name](plan, folder, arg)
+    except InputError as err:  # e.g. the disk is full (OutputError): the user's to fix, one line, exit 2
+        raise InputError(str(err)) from None  # a plain InputError pickles back to the parent
     except Exception as err:  # noqa: BLE001 - re-raised in the parent by write_figures
         import traceback
 
