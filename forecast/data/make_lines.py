@@ -154,7 +154,7 @@ def _abundance_text(fractions: dict, source: str) -> str:
     return f'''# Ejecta composition for kncast's LTE line-strength estimate (forecast/lte.py).
 #
 # WRITTEN BY forecast/data/make_lines.py: do not edit by hand.  To use your own, copy this file,
-# change the numbers and pass it with `kncast lines --abundances FILE`.
+# change the numbers and give it to `kncast lines` (docs/commands/lines.md, option abundances).
 #
 # The elements are those of the bundled line list (the line-selection rule, docs/methods.md,
 # section "Line selection"), in the proportions of the solar-system r-process pattern
