@@ -172,11 +172,16 @@ def parse_phases(text: str, option: str = "--phases", high: float = 100.0) -> li
     return out
 
 
-def console(stderr: bool = False):
-    """A rich Console; decoration only on a terminal (plain text when piped)."""
+def console(stderr: bool = False, markup: bool = False):
+    """A rich Console; decoration only on a terminal (plain text when piped).
+
+    Rich markup (``[bold]``) is off unless asked for: ids, names and paths from files are then shown as
+    they are.  A caller that asks for ``markup`` escapes every such string (``rich.markup.escape``).
+    """
     from rich.console import Console
 
-    return Console(stderr=stderr, highlight=False, soft_wrap=False, width=None if sys.stdout.isatty() else 160)
+    return Console(stderr=stderr, highlight=False, soft_wrap=False, markup=markup, emoji=False,
+                   width=None if sys.stdout.isatty() else 160)
 
 
 def progress(disable: bool = False):

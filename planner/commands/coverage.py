@@ -85,12 +85,14 @@ def print_table(result, t0) -> None:
     """One rich table: every site and night with its observable probability, hours and area."""
     from rich.table import Table
 
-    out = console()
+    from rich.markup import escape
+
+    out = console(markup=True)  # every string from a file below is escaped
     m = result.skymap
     s = m.summary()
     dist = (f"  distance {s['distance_mean_mpc']:.0f} +- {s['distance_std_mpc']:.0f} Mpc"
             if s["distance_mean_mpc"] is not None and s["distance_std_mpc"] is not None else "")
-    out.print(f"[bold]{m.path}[/bold]  {s['ordering']} nside {s['nside']} ({s['npix']} pixels)  "
+    out.print(f"[bold]{escape(str(m.path))}[/bold]  {s['ordering']} nside {s['nside']} ({s['npix']} pixels)  "
               f"90% area {s['area90_deg2']:.1f} deg2  peak RA {s['peak_ra_deg']:.2f} Dec {s['peak_dec_deg']:+.2f}"
               f"{dist}")
     st = result.settings
@@ -109,6 +111,6 @@ def print_table(result, t0) -> None:
         frac = n.area90_observable_deg2 / area90 if area90 > 0 else 0.0
         table.add_row(n.site.id, n.night.isoformat(), dark, f"{n.dark_hours:.2f}",
                       f"{100 * n.observable_probability:.1f}%", f"{n.weighted_hours:.2f} h",
-                      f"{n.area90_observable_deg2:.1f} deg2 ({100 * frac:.0f}%)", f"[dim]{n.note}[/dim]")
+                      f"{n.area90_observable_deg2:.1f} deg2 ({100 * frac:.0f}%)", f"[dim]{escape(n.note)}[/dim]")
     out.print(table)
     out.print(f"[dim]{CAUTION}[/dim]")

@@ -196,13 +196,13 @@ def print_tables(res: dict) -> None:
     from rich.markup import escape
     from rich.table import Table
 
-    out = console()
+    out = console(markup=True)  # every string from a file below is escaped
     cond = res["conditions"]
     ev = res["event"]
     moon = ("Moon not given" if cond["moon_illumination"] is None else
             f"Moon {100 * cond['moon_illumination']:.0f}% lit, {cond['moon_sep_deg']:.0f} deg away, "
             f"altitude {cond['moon_altitude_deg']:.0f} deg")
-    out.print(f"[bold]{escape(ev.id)}[/bold]  {res['ref'].id}  phase {res['phase_d']:g} d")
+    out.print(f"[bold]{escape(ev.id)}[/bold]  {escape(res['ref'].id)}  phase {res['phase_d']:g} d")
     if res["ideal"]:
         out.print("ideal mode: unit throughput, no atmosphere, no sky, no detector noise, no slit loss")
     else:

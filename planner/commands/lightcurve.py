@@ -111,15 +111,15 @@ def _print_tables(event, transient, state, bands, mags) -> None:
     from rich.markup import escape
     from rich.table import Table
 
-    out = console()
+    out = console(markup=True)  # every string from a file below is escaped
     model = transient.photosphere
-    title = (f"{event.id}: {model.name} photosphere at {transient.distance_mpc:.1f} Mpc "
+    title = (f"{escape(event.id)}: {escape(model.name)} photosphere at {transient.distance_mpc:.1f} Mpc "
              f"(z = {transient.redshift:.4f}, E(B-V)_MW = {transient.ebv_mw:.2f}) - AB magnitudes")
     table = Table(title=title, title_justify="left")
     for head in ("days since t0", "T [K]", "R [1e14 cm]", "L [erg/s]", "v_phot [c]"):
         table.add_column(escape(head), justify="right")
     for b in bands:
-        table.add_column(b, justify="right")
+        table.add_column(escape(b), justify="right")
     for i, phase in enumerate(state.phase_d):
         table.add_row(f"{phase:g}", f"{state.temperature_K[i]:.0f}", f"{state.radius_cm[i] / 1e14:.2f}",
                       f"{state.luminosity_erg_s[i]:.2e}", f"{state.v_phot_c[i]:.3f}",
@@ -129,7 +129,7 @@ def _print_tables(event, transient, state, bands, mags) -> None:
         comp = Table(title=escape("components: T [K] / L [erg/s] / v_phot [c]"), title_justify="left")
         comp.add_column("days since t0", justify="right")
         for name in state.component_names:
-            comp.add_column(name, justify="right")
+            comp.add_column(escape(name), justify="right")
         for i, phase in enumerate(state.phase_d):
             comp.add_row(f"{phase:g}", *[f"{state.comp_temperature_K[k, i]:.0f} / "
                                          f"{state.comp_luminosity_erg_s[k, i]:.2e} / "

@@ -206,10 +206,11 @@ def run(args) -> int:
     event, transient, result, refs, linelist = compute(args)
     doc = lines_document(event, transient, result, args, linelist, refs)
     if args.plot:
+        from kncast.planner.figures.text import plain
         from kncast.planner.output import save_figure
         from kncast.planner.figures.lines import lines_figure
 
-        save_figure(lines_figure(transient, result, refs, airmass=args.airmass, pwv_mm=args.pwv, title=event.id,
+        save_figure(lines_figure(transient, result, refs, airmass=args.airmass, pwv_mm=args.pwv, title=plain(event.id),
                                  telluric_threshold=args.telluric_threshold),
                     args.plot, bbox_inches=None)   # the chart has a fixed layout: no second, "tight" pass
     if args.json:
@@ -257,7 +258,7 @@ def print_tables(event, doc, n_setups: int) -> None:
     from rich.markup import escape
     from rich.table import Table
 
-    out = console()
+    out = console(markup=True)  # every string from a file below is escaped
     st = doc["settings"]
     out.print(f"[bold]{escape(event.id)}[/bold]  z = {st['redshift']:.4f}  ejecta {st['ejecta_mass_msun']:g} Msun  "
               f"airmass {st['airmass']:g}  PWV {st['pwv_mm']:g} mm  {n_setups} setup(s)  (vacuum A, observed frame)")

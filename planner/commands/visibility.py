@@ -75,14 +75,16 @@ def print_tables(result) -> None:
     """One rich table per site: each night with its windows (or the reason there is none)."""
     from rich.table import Table
 
-    out = console()
+    from rich.markup import escape
+
+    out = console(markup=True)  # every string from a file below is escaped
     ev = result.event
-    out.print(f"[bold]{ev.id}[/bold]  RA {ev.ra_deg:.4f} deg  Dec {ev.dec_deg:+.4f} deg  "
+    out.print(f"[bold]{escape(ev.id)}[/bold]  RA {ev.ra_deg:.4f} deg  Dec {ev.dec_deg:+.4f} deg  "
               f"t0 {ev.t0.utc.strftime('%Y-%m-%d %H:%M:%S')} UTC   twilight: {result.twilight} "
               f"(Sun < {result.rules.twilight_deg:g} deg)")
     for site in result.sites:
         tz = site.tz
-        table = Table(title=f"{site.name}  (id {site.id}, {site.timezone})", title_justify="left")
+        table = Table(title=escape(f"{site.name}  (id {site.id}, {site.timezone})"), title_justify="left")
         for col, just in [("night", "left"), ("dusk-dawn UTC", "left"), ("window UTC", "left"),
                           ("window local", "left"), ("hours", "right"), ("best X", "right"),
                           ("best UTC", "left"), ("Moon illum.", "right"), ("Moon sep", "right"),
@@ -92,7 +94,7 @@ def print_tables(result) -> None:
             dark = (f"{_utc(rec.dusk)}-{_utc(rec.dawn)}" if rec.dusk is not None and rec.dawn is not None
                     else "-")
             if not rec.windows:
-                table.add_row(rec.night.isoformat(), dark, f"[dim]{rec.note}[/dim]", *[""] * 7)
+                table.add_row(rec.night.isoformat(), dark, f"[dim]{escape(rec.note)}[/dim]", *[""] * 7)
                 continue
             for k, w in enumerate(rec.windows):
                 table.add_row(
@@ -102,13 +104,14 @@ def print_tables(result) -> None:
                     f"{100 * w.moon_illumination:.0f}%", f"{w.moon_sep_deg:.0f} deg",
                     f"{w.phase_start_d:.2f}-{w.phase_end_d:.2f}")
             if rec.note:
-                table.add_row("", "", f"[dim]{rec.note}[/dim]", *[""] * 7)
+                table.add_row("", "", f"[dim]{escape(rec.note)}[/dim]", *[""] * 7)
         out.print(table)
     out.print(f"[dim]{CAUTION}[/dim]")
 
 
 def print_ranking(nights: list) -> None:
     """One rich table: per site and night, the candidates in observing order."""
+    from rich.markup import escape
     from rich.table import Table
 
     table = Table(title="Candidates ranked per site and night (most observable hours first, then best airmass)",
@@ -120,9 +123,9 @@ def print_ranking(nights: list) -> None:
     for night in nights:
         for k, r in enumerate(night.ranking):
             table.add_row(night.site.id if k == 0 else "", night.night.isoformat() if k == 0 else "", str(r.rank),
-                          r.candidate.id, f"{r.hours:.2f}",
+                          escape(r.candidate.id), f"{r.hours:.2f}",
                           "-" if r.best_airmass is None else f"{r.best_airmass:.2f}",
                           "-" if r.best_time is None else r.best_time.utc.strftime("%m-%d %H:%M"),
                           "-" if r.moon_sep_deg is None else f"{r.moon_sep_deg:.0f} deg",
-                          f"[dim]{r.note}[/dim]" if not r.observable else "")
-    console().print(table)
+                          f"[dim]{escape(r.note)}[/dim]" if not r.observable else "")
+    console(markup=True).print(table)

@@ -12,6 +12,7 @@ import numpy as np
 
 from kncast.forecast.airmass import airmass_from_altitude
 from kncast.planner.visibility import sky
+from kncast.planner.figures.text import plain
 
 SAMPLE_MIN = 5.0
 AIRMASS_RANGE = (1.0, 3.0)
@@ -84,7 +85,7 @@ def campaign_figure(result):
     ax.grid(axis="x", color="0.85", linewidth=0.5)
     ax.set_axisbelow(True)
     ev = result.event
-    ax.set_title(f"{ev.id}: observing windows ({result.twilight} darkness); "
+    ax.set_title(f"{plain(ev.id)}: observing windows ({result.twilight} darkness); "
                  f"upper strip = dark time tinted by moonlight; x = dark night without a window", fontsize=9, loc="left")
     cb = fig.colorbar(mesh, cax=cax_am, orientation="horizontal")
     cb.set_label("window bars: airmass (Kasten & Young 1989)", fontsize=8)

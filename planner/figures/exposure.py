@@ -12,6 +12,8 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from kncast.planner.figures.text import plain  # noqa: E402
+
 
 def exposure_figure(res: dict):
     """A matplotlib Figure from the dict returned by ``kncast.planner.commands.exposure.compute``."""
@@ -54,7 +56,7 @@ def exposure_figure(res: dict):
     ax.set_ylabel("S/N per resolution element")
     single = res["time_s"] / res["nexp"]
     mode = "ideal (photon noise only)" if res["ideal"] else f"airmass {res['conditions']['airmass']:.2f}"
-    ax.set_title(f"{res['event'].id}  {res['ref'].id}  phase {res['phase_d']:g} d  "
+    ax.set_title(f"{plain(res['event'].id)}  {plain(res['ref'].id)}  phase {res['phase_d']:g} d  "
                  f"{res['nexp']} x {single:.0f} s  {mode}\nS/N per resolution element (model estimate; "
                  "the observatory's own tools take precedence)", fontsize=9)
     ax.legend(loc="upper right", fontsize=7, framealpha=0.8)

@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from kncast.planner.figures.text import plain
+
 
 def lightcurve_figure(transient, state, bands, title: str):
     """A two-panel matplotlib Figure (Agg backend): AB magnitude and temperature vs days since t0."""
@@ -28,14 +30,14 @@ def lightcurve_figure(transient, state, bands, title: str):
     if finite.size:
         top.set_ylim(min(finite.max(), finite.min() + 12) + 0.3, finite.min() - 0.3)
     top.set_ylabel("AB magnitude")
-    top.set_title(f"{title}: {transient.photosphere.name} model, {transient.distance_mpc:.0f} Mpc", fontsize=10)
+    top.set_title(f"{plain(title)}: {transient.photosphere.name} model, {transient.distance_mpc:.0f} Mpc", fontsize=10)
     top.legend(fontsize=7, ncol=2, frameon=False)
     top.grid(alpha=0.25)
 
     bottom.plot(grid, smooth.temperature_K, color="black", lw=1.8, label="luminosity-weighted")
     if len(smooth.component_names) > 1:
         for k, name in enumerate(smooth.component_names):
-            bottom.plot(grid, smooth.comp_temperature_K[k], lw=1.0, ls="--", label=name)
+            bottom.plot(grid, smooth.comp_temperature_K[k], lw=1.0, ls="--", label=plain(name))
     bottom.set_ylabel("T_phot [K]")
     bottom.set_xlabel("days since t0 (observer frame)")
     bottom.set_xscale("log")

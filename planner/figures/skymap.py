@@ -11,6 +11,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from kncast.planner.figures.text import plain
+
 PLOT_LEVEL_MAX = 7  # resample to at most nside 128 for drawing
 RA_STEP_DEG, DEC_STEP_DEG = 1.0, 1.0
 
@@ -31,7 +33,7 @@ def coverage_figure(result):
     ax = fig.add_subplot(grid[0], projection="mollweide")
     _sky_panel(ax, result, level)
     _table_panel(fig.add_subplot(grid[1]), result, sites, n_nights)
-    fig.suptitle(f"Sky map coverage: {skymap.path}", fontsize=10, x=0.02, ha="left")
+    fig.suptitle(f"Sky map coverage: {plain(skymap.path)}", fontsize=10, x=0.02, ha="left")
     return fig
 
 

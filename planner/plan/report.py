@@ -231,14 +231,24 @@ def _justification(doc: dict) -> list[Block]:
 
 
 # ----------------------------------------------------------------------------------- rendering
+# "<" opening a tag, comment or declaration, "&" opening a character reference: shown literally in Markdown
+_MD_HTML = re.compile(r"<(?=[A-Za-z/!?])|&(?=#?[A-Za-z0-9]+;)")
+
+
+def _md_text(text) -> str:
+    """Text from the plan (ids and names come from files) with raw HTML neutralised for Markdown viewers."""
+    return _MD_HTML.sub(lambda m: "&lt;" if m.group() == "<" else "&amp;", str(text))
+
+
 def _md_cell(text) -> str:
-    return str(text).replace("|", "\\|").replace("\n", " ")
+    return _md_text(text).replace("|", "\\|").replace("\n", " ")
 
 
 def render_markdown(blocks: list[Block]) -> str:
-    """Markdown text; figures are linked by their relative paths."""
+    """Markdown text; figures are linked by their relative paths.  Raw HTML in the text (an id from a
+    file, say) is escaped, so a Markdown viewer shows it as text."""
     parts = []
-    for b in blocks:
+    for b in map(_md_block, blocks):
         if b.kind in ("h1", "h2", "h3"):
             parts.append("#" * int(b.kind[1]) + " " + b.text)
         elif b.kind == "p":
@@ -255,6 +265,12 @@ def render_markdown(blocks: list[Block]) -> str:
             caption = b.items[0] if b.items else ""
             parts.append(f"![{b.text}]({b.path})" + (f"\n\n*{caption}*" if caption else ""))
     return "\n\n".join(parts) + "\n"
+
+
+def _md_block(b: Block) -> Block:
+    """A copy of ``b`` with its text, list items and figure caption escaped (table cells: _md_cell)."""
+    items = b.items if b.kind == "table" else [_md_text(i) for i in b.items]
+    return Block(b.kind, _md_text(b.text), items, b.header, b.path, b.row_classes)
 
 
 _CSS = """
