@@ -30,10 +30,18 @@ def test_default_phases_are_log_spaced_and_rounded():
     tr = Transient(model, redshift=0.05)
     low, high = LINE_RULE_TEMPERATURE_K
     expected = np.geomspace(_powerlaw_crossing(model, high, 0.05), _powerlaw_crossing(model, low, 0.05), 4)
-    phases = useful_phases(tr)
-    assert len(phases) == 4 and phases == sorted(phases)
-    assert np.allclose(phases, expected, atol=0.06 + 0.012 * expected)   # 0.1 d rounding plus the scan step
+    phases = np.array(useful_phases(tr))
+    assert len(phases) == 4 and np.all(np.diff(phases) > 0)
+    _check_rounding(phases, expected)
     assert all(round(p * 10) == pytest.approx(p * 10, abs=1e-9) for p in phases)
+
+
+def _check_rounding(phases, expected, scan=0.012):
+    # 0.1 d steps: the first rounded up and the last down (inside the range), the others to the nearest;
+    # plus one step (about 1 %) of the temperature scan
+    assert expected[0] * (1 - scan) <= phases[0] <= expected[0] * (1 + scan) + 0.1
+    assert expected[-1] * (1 - scan) - 0.1 <= phases[-1] <= expected[-1] * (1 + scan)
+    assert np.allclose(phases[1:-1], expected[1:-1], atol=0.05 + scan * expected[1:-1])
 
 
 def test_a_floor_above_the_range_ends_where_the_floor_is_reached():
@@ -41,6 +49,6 @@ def test_a_floor_above_the_range_ends_where_the_floor_is_reached():
     tr = Transient(HeatingPhotosphere((comp,)), redshift=0.02)
     start, end = useful_range(tr)
     assert start < end
-    # a one-zone component holds its floor once reached: the range ends there (the coolest phase)
+    # a one-zone component approaches its floor and holds it: the range ends within 1 % of it
     t = tr.state([start * 0.97, end * 0.97, end]).temperature_K
-    assert t[0] > 6000.0 and t[1] > 3500.0 and t[2] == pytest.approx(3500.0)
+    assert t[0] > 6000.0 and t[1] > 3500.0 * 1.01 and 3500.0 <= t[2] <= 3500.0 * 1.01
