@@ -265,3 +265,18 @@ def records_for_setups(transient, fc, refs, airmass: float, pwv_mm: float, time_
                 for j, k in enumerate(cols):
                     out[i][f][k] = feature_record(m, i, f, j, fc.features[f])
     return out
+
+
+def feature_short(feature) -> str:
+    """A short trade name: 'Sr II 1.0um', 'Ca II 0.85um' in the near-IR, 'Ba II 4554' in the optical (rest, vacuum A)."""
+    lam = feature.rest_vac_A[0]
+    if lam >= 9500.0:
+        return f"{feature.species} {lam / 1e4:.1f}um"
+    return f"{feature.species} {lam / 1e4:.2f}um" if lam >= 8000.0 else f"{feature.species} {lam:.0f}"
+
+
+def feature_short_names() -> dict:
+    """Feature id -> short trade name for the bundled line list."""
+    from kncast.forecast.linelist import LineList
+
+    return {f.id: feature_short(f) for f in LineList.load().features()}

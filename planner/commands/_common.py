@@ -30,7 +30,7 @@ def add_event_options(p: argparse.ArgumentParser, distance: bool = True) -> None
 
 # parameter of the Python API -> dest of the option that sets it, where the names differ
 PARAMETER_DESTS = {"extra_dirs": "sites_dir", "target_index": "target", "min_altitude_deg": "min_altitude",
-                   "min_moon_sep_deg": "min_moon_sep", "snr_target": "snr", "step_min": "step"}
+                   "min_moon_sep_deg": "min_moon_sep", "snr_target": "snr", "step_min": "step", "start_date": "start"}
 
 
 def event_from_args(args):
@@ -68,10 +68,13 @@ def sites_from_args(args):
     return registry, registry.select(ids)
 
 
-def add_night_rule_options(g, subject: str, max_nights: int) -> None:
-    """``--nights --twilight --min-altitude --max-airmass --min-moon-sep`` for ``subject`` ("target", "pixel")."""
-    g.add_argument("--nights", type=positive_int("--nights", high=max_nights), default=3, metavar="N",
-                   help="local nights from the one in progress at t0 (default 3)")
+def add_night_rule_options(g, subject: str, max_nights: int, default_nights: int = 3) -> None:
+    """``--nights --start --twilight --min-altitude --max-airmass --min-moon-sep`` for ``subject``
+    ("target", "pixel"): the one set of night rules of every command that finds windows."""
+    g.add_argument("--nights", type=positive_int("--nights", high=max_nights), default=default_nights, metavar="N",
+                   help=f"local nights from the one in progress at t0 (default {default_nights})")
+    g.add_argument("--start", type=iso_date("--start"), metavar="YYYY-MM-DD",
+                   help="local evening date of the first night, when later than the night in progress at t0")
     from kncast.planner.visibility.nights import TWILIGHT_DEG
 
     g.add_argument("--twilight", choices=tuple(TWILIGHT_DEG), default="nautical",
@@ -84,6 +87,25 @@ def add_night_rule_options(g, subject: str, max_nights: int) -> None:
                    help=f"smallest Moon-{subject} separation (0-180 deg; default: no Moon rule)")
 
 
+def night_rules_from_args(args) -> dict:
+    """The night-rule options as keyword arguments of compute_visibility / build_plan / compute_coverage."""
+    return {"nights": args.nights, "twilight": args.twilight, "min_altitude_deg": args.min_altitude,
+            "max_airmass": args.max_airmass, "min_moon_sep_deg": args.min_moon_sep, "start_date": args.start}
+
+
+def iso_date(option: str):
+    """argparse ``type=`` for an ISO calendar date (YYYY-MM-DD)."""
+    import datetime as dt
+
+    def convert(text: str):
+        try:
+            return dt.date.fromisoformat(text.strip())
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r}: expected a date YYYY-MM-DD") from None
+
+    return convert
+
+
 def add_output_options(p: argparse.ArgumentParser, plot: bool = True) -> None:
     g = p.add_argument_group("output")
     g.add_argument("--json", metavar="PATH", help="write machine-readable JSON to PATH ('-' for stdout)")
@@ -94,6 +116,21 @@ def add_output_options(p: argparse.ArgumentParser, plot: bool = True) -> None:
 def check_plot_path(path) -> None:
     if path and not str(path).lower().endswith((".png", ".pdf", ".svg")):
         raise OptionError("--plot", path, "a path ending in .png, .pdf or .svg")
+
+
+def check_output_file(option: str, path) -> None:
+    """An output file path: not a folder, inside a folder that exists or can be made."""
+    import os
+    from pathlib import Path
+
+    target = Path(path)
+    if target.is_dir():
+        raise OptionError(option, str(path), "a file path (this is a folder)")
+    base = target.absolute().parent
+    while not base.exists():
+        base = base.parent
+    if not base.is_dir() or not os.access(base, os.W_OK | os.X_OK):
+        raise OptionError(option, str(path), f"a file in a folder that can be written ({base} is not writable)")
 
 
 def emit_json(path, doc: dict) -> None:
@@ -181,7 +218,15 @@ def console(stderr: bool = False, markup: bool = False):
     from rich.console import Console
 
     return Console(stderr=stderr, highlight=False, soft_wrap=False, markup=markup, emoji=False,
-                   width=None if sys.stdout.isatty() else 160)
+                   width=None if sys.stdout.isatty() else _columns())
+
+
+def _columns(default: int = 160) -> int:
+    """The width for output that is not a terminal: $COLUMNS when set (a whole number >= 40), else ``default``."""
+    import os
+
+    text = os.environ.get("COLUMNS", "")
+    return int(text) if text.isdigit() and int(text) >= 40 else default
 
 
 def progress(disable: bool = False):

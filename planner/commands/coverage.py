@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import sys
 
-from kncast.planner.commands._common import (add_night_rule_options, add_output_options, add_site_options,
+from kncast.planner.commands._common import (night_rules_from_args, add_night_rule_options, add_output_options, add_site_options,
                                       check_plot_path, console, emit_json, finite_float, sites_from_args)
 
 HELP = "observable probability of a HEALPix sky map per site and night"
@@ -37,9 +37,8 @@ def run(args) -> int:
         print(f"kncast coverage: warning: {line}", file=sys.stderr)
     from kncast.planner.visibility.skycoverage import compute_coverage
 
-    result = compute_coverage(skymap, sites, t0, nights=args.nights, twilight=args.twilight,
-                              min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
-                              min_moon_sep_deg=args.min_moon_sep, step_min=args.step, pixel_flags=bool(args.plot))
+    result = compute_coverage(skymap, sites, t0, **night_rules_from_args(args), step_min=args.step,
+                              pixel_flags=bool(args.plot))
     doc = coverage_document(result, t0)
     fig = None
     if args.plot:

@@ -11,18 +11,23 @@ from pathlib import Path
 
 from kncast.planner.commands import _common
 
+PARAMETER_DESTS = {"anchors": "anchor", "setups": "setups"}  # API parameter -> option dest
+
 HELP = "plan a spectroscopy campaign: best setup per site and night, exposure times, report"
 
 
 
 def add_arguments(p) -> None:
-    from kncast.planner.visibility.nights import TWILIGHT_DEG
-
     _common.add_event_options(p)
     _common.add_site_options(p)
+    n = p.add_argument_group("nights and windows")
+    _common.add_night_rule_options(n, "target", max_nights=60, default_nights=7)
     g = p.add_argument_group("plan")
-    g.add_argument("--nights", type=_common.positive_int("--nights", 60), default=7, metavar="N",
-                   help="local nights after t0 to plan (default 7)")
+    g.add_argument("--anchor", action="append", metavar="BAND=MAG@UTC",
+                   help="measured AB magnitude to rescale the photosphere model to before planning (repeatable; "
+                        "band names as kncast lightcurve lists them), e.g. bessell-R=20.8@2027-03-15T01:10:00Z")
+    g.add_argument("--setups", action="append", metavar="ID,...",
+                   help="only these setups (SITE/TELESCOPE/INSTRUMENT[:SETUP], as kncast setups lists them)")
     from kncast.forecast.defaults import DEFAULT_BIN_KMS, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA
 
     g.add_argument("--sigma", type=_common.finite_float("--sigma", 0, 100, low_open=True), default=DEFAULT_SIGMA,
@@ -49,13 +54,14 @@ def add_arguments(p) -> None:
                    metavar="H", help="at most this many hours per night on the target (default 4)")
     g.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
                    metavar="MIN", help="acquisition and readout overhead per night, minutes (default 15)")
-    g.add_argument("--twilight", choices=tuple(TWILIGHT_DEG), default="nautical",
-                   help="Sun altitude that ends twilight (default nautical, -12 deg)")
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")
     o.add_argument("--force", action="store_true",
                    help="replace a folder holding another event's plan (files kncast did not write are never deleted)")
     o.add_argument("--json", metavar="PATH", help="also write plan.json to PATH ('-' for stdout); quiet terminal")
+    o.add_argument("--ics", metavar="FILE", help="also write the planned blocks as an iCalendar file (RFC 5545, UTC)")
+    o.add_argument("--verbose", action="store_true",
+                   help="also print every night's reason and the nights without a spectrum")
     from kncast.planner.commands._model_options import add_model_options
 
     add_model_options(p)
@@ -70,6 +76,8 @@ def run(args) -> int:
     overrides = overrides_from_args(args)
     out = Path(args.out) if args.out else Path("kncast-out") / safe_name(event.id)
     check_out(out, event.id, force=getattr(args, "force", False))
+    if args.ics:
+        _common.check_output_file("--ics", args.ics)
     with _common.progress(disable=quiet) as bar:
         task = bar.add_task("planning", total=7)
 
@@ -84,17 +92,47 @@ def run(args) -> int:
 
         from kncast.planner.plan.core import build_plan
 
-        plan = build_plan(event, sites, nights=args.nights, snr_target=args.snr, max_hours=args.max_hours,
-                          overhead_s=args.overhead_min * 60.0, twilight=args.twilight, registry=registry,
+        rules = _common.night_rules_from_args(args)
+        plan = build_plan(event, sites, snr_target=args.snr, max_hours=args.max_hours,
+                          overhead_s=args.overhead_min * 60.0, registry=registry,
                           overrides=overrides, progress=say, sigma=args.sigma, bin_kms=args.bin_kms,
                           features=feature_ids(args), snr_at_A=args.snr_at,
-                          telluric_threshold=args.telluric_threshold)
+                          telluric_threshold=args.telluric_threshold, setups=_common.split_list(args.setups) or None,
+                          anchors=anchors_from_args(args, event), **rules)
         doc = write_folder(plan, out, say)
+    if args.ics:
+        from kncast.planner.output import atomic_path
+        from kncast.planner.plan.exports import blocks_ics
+
+        with atomic_path(args.ics) as tmp:
+            Path(tmp).write_bytes(blocks_ics(doc))
     if args.json:
         _common.emit_json(args.json, doc)
     if args.json != "-":
-        print_summary(plan, out, quiet=quiet)
+        print_summary(plan, doc, out, quiet=quiet, verbose=args.verbose)
     return 0
+
+
+def anchors_from_args(args, event) -> list | None:
+    """``--anchor BAND=MAG@UTC`` items as (band, AB mag, observer-frame days since t0)."""
+    if not args.anchor:
+        return None
+    from kncast.planner.errors import OptionError
+    from kncast.planner.events.model import parse_time_utc
+
+    out = []
+    for text in args.anchor:
+        band, eq, rest = text.partition("=")
+        mag, at, when = rest.partition("@")
+        try:
+            value = float(mag)
+        except ValueError:
+            value = None
+        if not (eq and at and band.strip() and value is not None):
+            raise OptionError("--anchor", text, "BAND=MAG@UTC, e.g. bessell-R=20.8@2027-03-15T01:10:00Z")
+        t = parse_time_utc(when.strip(), "--anchor")
+        out.append((band.strip(), value, float((t - event.t0).to_value("day"))))
+    return out
 
 
 def feature_ids(args) -> list[str] | None:
@@ -137,6 +175,19 @@ def check_out(out: Path, event_id: str, force: bool = False) -> None:
     check_plan_folder(out, event_id, force=force)  # names the files kncast did not write
 
 
+def previous_plan(out: Path, event_id: str) -> dict | None:
+    """The plan.json already in ``out`` for the same event (kept as plan.previous.json by a re-plan), or None."""
+    import json
+
+    path = out / "plan.json"
+    try:
+        doc = json.loads(path.read_text())
+    except (OSError, ValueError):
+        return None
+    ok = isinstance(doc, dict) and doc.get("kind") == "plan" and (doc.get("event") or {}).get("id") == event_id
+    return doc if ok else None
+
+
 def write_folder(plan, out: Path, say=lambda text: None) -> dict:
     """Write every output file of ``plan`` into ``out`` atomically; returns the plan document."""
     from kncast.planner.plan import folder as plan_outputs
@@ -154,8 +205,20 @@ def write_folder(plan, out: Path, say=lambda text: None) -> dict:
         figures = plan_outputs.write_figures(plan, tmp)
         files["figures"] = [f["path"] for f in figures]
         files.update(plan="plan.json", report_md="report.md", report_html="report.html")
+        files["blocks"] = "blocks.txt"
+        previous = previous_plan(out, plan.event.id)
+        if previous is not None:
+            files["previous"] = "plan.previous.json"
         doc = plan_outputs.document(plan, files)
+        if previous is not None:
+            from kncast.planner.plan.changes import plan_changes
+
+            doc["changes"] = plan_changes(previous, doc)
+            write_json(tmp / "plan.previous.json", previous)
         write_json(tmp / "plan.json", doc)
+        from kncast.planner.plan.exports import blocks_text
+
+        (tmp / "blocks.txt").write_text(blocks_text(doc))
         say("report")
         from kncast.planner.plan.report import write_report
 
@@ -163,44 +226,86 @@ def write_folder(plan, out: Path, say=lambda text: None) -> dict:
     return doc
 
 
-def print_summary(plan, out: Path, quiet: bool = False) -> None:
-    """Rich tables: the recommended observations (setup, epoch, exposure, S/N, reason) and, per site, the
-    nights without a useful spectrum and why; then the report path and the cautions in one line."""
-    from rich.table import Table
-
+def print_summary(plan, doc: dict, out: Path, quiet: bool = False, verbose: bool = False) -> None:
+    """Rich tables: one row per planned block (epoch, telescope, UTC block, airmass, N x t, S/N of that
+    exposure, detected features); with ``verbose`` every night's reason and the nights without a spectrum;
+    then the report path and the cautions in one line.  Fits 80 columns."""
     from kncast.planner.plan.report import CAUTION_LINE
 
     con = _common.console()
     if not quiet:
-        useful = sorted(plan.useful(), key=lambda p: p.phase_d)
-        if useful:
-            sigma = plan.settings["sigma"]
-            t = Table(title=f"Recommended spectra of {plan.event.id} (exposure for {sigma:g} sigma on the best "
-                            f"diagnostic trough; sigma reached in the usable time)")
-            for col, kw in (("day", {"justify": "right"}), ("site", {}), ("night", {}), ("setup", {}),
-                            ("exposure", {}), ("sigma", {"justify": "right"}), ("why", {"ratio": 1})):
-                t.add_column(col, overflow="fold", **kw)
-            for p in useful:
-                c = p.choice
-                t.add_row(f"{p.phase_d:.2f}", p.site.id, p.record.night.isoformat(), c.setup,
-                          f"{c.nexp} x {c.exposure_s:.0f} s" if c.nexp else "-", f"{c.significance:.1f}", p.reason)
-            con.print(t)
-        rest = Table(title="Nights without a useful spectrum")
-        for col in ("site", "nights", "why"):
-            rest.add_column(col, overflow="fold", ratio=1 if col == "why" else None)
-        for site, nights, reason in unused_runs(plan):
-            rest.add_row(site, nights, reason)
-        if rest.row_count:
-            con.print(rest)
+        blocks = doc.get("blocks", [])
+        if blocks:
+            con.print(blocks_table(plan, blocks))
+        if verbose:
+            con.print(reasons_table(plan))
+            rest = unused_table(plan)
+            if rest.row_count:
+                con.print(rest)
         camp = plan.campaign
         if camp["last_useful"]:
             lu = camp["last_useful"]
             con.print(f"Last useful night: {lu['night']} at {lu['site']} (day {lu['phase_d']:.2f}); "
-                      f"{camp['useful_nights']} useful site-night(s).")
+                      f"{camp['useful_nights']} useful site-night(s), {len(blocks)} block(s)."
+                      + ("" if verbose else " Reasons: --verbose."))
         else:
             con.print("Nothing useful can be done: " + camp.get("why_nothing", ""))
     con.print(f"Report: {out / 'report.html'}")
     con.print(CAUTION_LINE)
+
+
+def _block_utc(b: dict) -> str:
+    """'03-16 03:43-03:58' (month-day, start-end, UTC), wrapping at the space when narrow."""
+    return f"{b['start_utc'][5:10]} {b['start_utc'][11:16]}-{b['end_utc'][11:16]}"
+
+
+def blocks_table(plan, blocks: list):
+    """The planned blocks, one row each: setup ids shown as 'site telescope' over 'instrument' (wrapping at
+    spaces, never inside a word), the detected features as short trade names."""
+    from rich import box
+    from rich.table import Table
+
+    from kncast.planner.measure import feature_short_names
+
+    names = feature_short_names()
+    sigma = plan.settings["sigma"]
+    t = Table(title=f"Planned spectra of {plan.event.id}: S/N per {plan.settings['bin_kms']:g} km/s bin at the "
+                    f"trough for that exposure; detected at >= {sigma:g} sigma", title_justify="left",
+              box=box.SIMPLE_HEAD, pad_edge=False)
+    for col, kw in (("day", {"justify": "right"}), ("setup", {"min_width": 12}), ("UTC", {"min_width": 11}),
+                    ("X", {"justify": "right"}), ("N x t", {}), ("S/N", {"justify": "right"}),
+                    ("detected", {"ratio": 1, "min_width": 12})):
+        t.add_column(col, overflow="fold", **kw)
+    for b in blocks:
+        x = b["airmass"][1]
+        found = [names.get(f, f) for f in b["detected"]]
+        what = (found[0] + (f" +{len(found) - 1}" if len(found) > 1 else "")) if found else b["kind"]
+        t.add_row(f"{b['phase_d']:.2f}", b["setup"].replace("/", " "), _block_utc(b),
+                  "-" if x is None else f"{x:.2f}", f"{b['n_exp']}x{b['exp_s']:.0f}s",
+                  "-" if b["snr"] is None else f"{b['snr']:.1f}", what)
+    return t
+
+
+def reasons_table(plan):
+    from rich.table import Table
+
+    t = Table(title="Every site and night: the reason", title_justify="left")
+    for col, kw in (("site", {"min_width": 6}), ("night", {"no_wrap": True}), ("reason", {"ratio": 1})):
+        t.add_column(col, **kw)
+    for p in plan.nights:
+        t.add_row(p.site.id, p.record.night.isoformat(), p.reason)
+    return t
+
+
+def unused_table(plan):
+    from rich.table import Table
+
+    rest = Table(title="Nights without a useful spectrum", title_justify="left")
+    for col in ("site", "nights", "why"):
+        rest.add_column(col, ratio=1 if col == "why" else None)
+    for site, nights, reason in unused_runs(plan):
+        rest.add_row(site, nights, reason)
+    return rest
 
 
 def unused_runs(plan) -> list[tuple[str, str, str]]:

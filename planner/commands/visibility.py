@@ -1,7 +1,7 @@
 """``kncast visibility``: from which sites, on which nights, between which times."""
 from __future__ import annotations
 
-from kncast.planner.commands._common import (add_event_options, add_night_rule_options, add_output_options,
+from kncast.planner.commands._common import (night_rules_from_args, add_event_options, add_night_rule_options, add_output_options,
                                       add_site_options, check_plot_path, console, emit_json, event_from_args,
                                       sites_from_args)
 
@@ -28,16 +28,13 @@ def run(args) -> int:
     _, sites = sites_from_args(args)
     from kncast.planner.visibility.core import compute_visibility
 
-    result = compute_visibility(event, sites, nights=args.nights, twilight=args.twilight,
-                                min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
-                                min_moon_sep_deg=args.min_moon_sep)
+    rules = night_rules_from_args(args)
+    result = compute_visibility(event, sites, **rules)
     ranking = None
     if getattr(args, "candidates", False):
         from kncast.planner.visibility.candidates import rank_candidates
 
-        ranking = rank_candidates(event, sites, nights=args.nights, twilight=args.twilight,
-                                  min_altitude_deg=args.min_altitude, max_airmass=args.max_airmass,
-                                  min_moon_sep_deg=args.min_moon_sep)
+        ranking = rank_candidates(event, sites, **rules)
     if args.plot:
         from kncast.planner.figures.campaign import campaign_figure
         from kncast.planner.output import save_figure

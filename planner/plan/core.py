@@ -48,6 +48,8 @@ DEFAULT_SNR = 10.0
 DEFAULT_MAX_HOURS = 4.0
 DEFAULT_OVERHEAD_S = 900.0
 MAG_BANDS = ("bessell-R", "bessell-I", "twomass-J")  # model AB magnitudes quoted per epoch (speclite names)
+CLASSIFICATION_DAYS = 1.0   # a window within the first day after t0 may be kept as a classification epoch
+CLASSIFICATION_A = 6000.0   # where its continuum S/N is judged, vacuum A, unless snr_at_A is given
 
 STATUS_WORDS = {
     "observe": "observe",
@@ -69,6 +71,7 @@ class SetupOutcome:
 
     setup: str
     aperture_m: float
+    telescope: str = ""                            # SITE/TELESCOPE: the choice is made per telescope
     targets: list = field(default_factory=list)    # diagnostic feature ids, best measured first
     detected: list = field(default_factory=list)   # targets at or above the target significance
     features: list = field(default_factory=list)   # per-feature records (kncast.planner.measure.feature_record)
@@ -100,7 +103,8 @@ class NightPlan:
     hours_available: float = 0.0   # min(window, max_hours) - overhead, h
     photosphere: dict = field(default_factory=dict)
     outcomes: list = field(default_factory=list)
-    choice: SetupOutcome | None = None
+    choice: SetupOutcome | None = None             # the best of ``choices``
+    choices: list = field(default_factory=list)    # the chosen setup of each telescope that is useful, best first
     detected: list = field(default_factory=list)   # feature ids the chosen setup detects
     status: str = "no-window"
     reason: str = ""
@@ -131,6 +135,7 @@ class Plan:
     tellurics: object = None                       # kncast.forecast.tellurics.TelluricModel used
     atmospheres: dict = field(default_factory=dict)  # site id -> kncast.forecast.extinction_atm.Atmosphere
     candidates: list = field(default_factory=list)  # kncast.planner.visibility.candidates.CandidateNight, when the event lists several
+    blocks: list = field(default_factory=list)      # kncast.planner.plan.blocks.Block, one per chosen telescope and night
 
     def useful(self) -> list[NightPlan]:
         return [n for n in self.nights if n.choice is not None]
@@ -165,14 +170,20 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                twilight: str = "nautical", registry=None, model=None, overrides=None,
                progress=None, sigma: float = DEFAULT_SIGMA, bin_kms: float = DEFAULT_BIN_KMS,
                features=None, min_depth: float = DEFAULT_MIN_DEPTH, snr_at_A: float | None = None,
-               telluric_threshold: float = CORRECTABLE_TRANSMISSION) -> Plan:
+               telluric_threshold: float = CORRECTABLE_TRANSMISSION, setups=None, min_altitude_deg=None,
+               max_airmass=None, min_moon_sep_deg=None, start_date=None, anchors=None) -> Plan:
     """Plan spectroscopy of ``event`` from ``sites`` over ``nights`` local nights after t0.
 
     A night is useful when a diagnostic feature reaches ``sigma`` (detection significance of its
     trough, continuum S/N per ``bin_kms`` km/s bin); ``features`` (feature ids) picks the
     diagnostic features, by default every one whose expected depth is at least ``min_depth``.
     ``snr_at_A`` (vacuum A) adds a plain continuum S/N per resolution element there, reported
-    beside the verdict; ``snr_target`` is the continuum S/N quoted with it.  ``max_hours`` caps the time per
+    beside the verdict; ``snr_target`` is the continuum S/N quoted with it, and the one a classification
+    spectrum in the first day must reach (at ``snr_at_A``, or ``CLASSIFICATION_A``) when no feature is
+    detected yet.  ``setups`` (ids) restricts the setups; ``min_altitude_deg``, ``max_airmass``,
+    ``min_moon_sep_deg`` and ``start_date`` are the night rules of
+    :func:`kncast.planner.visibility.core.compute_visibility`.  ``anchors`` ((band, AB mag, phase_d)
+    items) rescale the photosphere model to measured photometry first (:mod:`kncast.forecast.anchor`).  ``max_hours`` caps the time per
     night (h); ``overhead_s`` is the acquisition + readout overhead per night
     (s).  ``registry`` (a SiteRegistry) supplies the setups; by default the
     registry of the given sites.  ``model``/``overrides`` choose the
@@ -189,12 +200,21 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     say = progress or (lambda text: None)
     sites = list({s.id: s for s in sites}.values())  # each site once, in the order given
     say("visibility windows")
-    vis = compute_visibility(event, sites, nights=nights, twilight=twilight)
+    rules = {"min_altitude_deg": min_altitude_deg, "max_airmass": max_airmass,
+             "min_moon_sep_deg": min_moon_sep_deg, "start_date": start_date}
+    vis = compute_visibility(event, sites, nights=nights, twilight=twilight, **rules)
     say("photosphere")
     transient = transient_for_event(event, model=model, overrides=overrides)
+    anchoring = None
+    if anchors:
+        from kncast.forecast.anchor import anchor_transient
+
+        anchoring = anchor_transient(transient, anchors)
+        transient = anchoring.transient
     site_ids = {s.id for s in sites}
     refs = [r for r in all_setups(registry if registry is not None else sites_registry(sites))
             if r.site.id in site_ids]
+    refs = restrict_setups(refs, setups)
     settings = {"nights": int(nights), "twilight": twilight, "snr_target": float(snr_target),
                 "snr_per": SNR_BASIS.removeprefix("per "), "max_hours": float(max_hours), "overhead_s": float(overhead_s),
                 "sites": [s.id for s in sites], "setups": [r.id for r in refs],
@@ -202,7 +222,10 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                 "bin_kms": float(bin_kms), "min_depth": float(min_depth),
                 "features": list(features) if features else None,
                 "snr_at_A": None if snr_at_A is None else float(snr_at_A),
-                "telluric_threshold": float(telluric_threshold)}
+                "telluric_threshold": float(telluric_threshold),
+                "night_rules": {k: (str(v) if k == "start_date" and v is not None else v) for k, v in rules.items()},
+                "classification_A": float(snr_at_A) if snr_at_A is not None else CLASSIFICATION_A,
+                "classification_days": CLASSIFICATION_DAYS}
     t0_mjd = float(event.t0.utc.mjd)
     plans = [_night_plan(rec, t0_mjd, max_hours, overhead_s) for rec in vis.nights]
     epochs = [p for p in plans if p.window is not None]
@@ -215,6 +238,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
             p.photosphere["mag_ab"] = {b: round(float(mags[b][k]), 3) for b in MAG_BANDS}
     plan = Plan(event=event, sites=sites, settings=settings, visibility=vis, transient=transient, nights=plans,
                 model=_model_summary(transient), setup_refs=refs)
+    if anchoring is not None:
+        plan.model["anchoring"] = anchoring.to_dict()
     say("line features")
     by_site = {}
     for r in refs:
@@ -227,8 +252,25 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
         from kncast.planner.visibility.candidates import rank_candidates
 
         say("ranking candidates")
-        plan.candidates = rank_candidates(event, sites, nights=nights, twilight=twilight, ephemeris=vis.ephemeris)
+        plan.candidates = rank_candidates(event, sites, nights=nights, twilight=twilight, ephemeris=vis.ephemeris,
+                                          **rules)
+    from kncast.planner.plan.blocks import plan_blocks
+
+    plan.blocks = plan_blocks(plan)
     return plan
+
+
+def restrict_setups(refs: list, setups) -> list:
+    """Only the setups named in ``setups`` (ids; unknown ids suggest the closest), or all of them."""
+    if not setups:
+        return refs
+    from kncast.planner.errors import UnknownNameError
+
+    known = {r.id: r for r in refs}
+    for sid in setups:
+        if sid not in known:
+            raise UnknownNameError("setup", sid, known)
+    return [r for r in refs if r.id in set(setups)]
 
 
 def sites_registry(sites):
@@ -310,8 +352,8 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, say) -> None:
         for k, i in enumerate(rows):
             p = epochs[i]
             p.outcomes = [_outcome(plan, p, fc, m, targets, k, j, ref) for j, ref in enumerate(site_refs)]
-            if st.get("snr_at_A") is not None:
-                _continuum_at(plan, p, site_refs, atm)
+            if st.get("snr_at_A") is not None or p.phase_d < CLASSIFICATION_DAYS:
+                _continuum_at(plan, p, site_refs, atm, st["classification_A"])
 
 
 def _targets(m, fc, st) -> np.ndarray:
@@ -347,7 +389,7 @@ def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> S
     from kncast.planner.measure import feature_record
 
     sigma = plan.settings["sigma"]
-    o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m)
+    o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m, telescope=f"{ref.site.id}/{ref.telescope.id}")
     o.features = [feature_record(m, k, f, j, fc.features[f]) for f in range(len(fc.features))]
     plan.features.extend(_feature_rows(p, ref.id, rec, targets[k, f]) for f, rec in enumerate(o.features))
     idx = [f for f in np.argsort(-m.significance[k, :, j], kind="stable") if targets[k, f]]
@@ -385,11 +427,11 @@ def _feature_rows(p: NightPlan, setup_id: str, rec: dict, target: bool) -> dict:
             **rec, "target": bool(target)}
 
 
-def _continuum_at(plan: Plan, p: NightPlan, refs: list, atm) -> None:
-    """The plain continuum S/N per resolution element at ``snr_at_A`` in the usable time, per setup."""
+def _continuum_at(plan: Plan, p: NightPlan, refs: list, atm, wavelength_A: float) -> None:
+    """The plain continuum S/N per resolution element at ``wavelength_A`` in the usable time, per setup."""
     from kncast.forecast import exposure
 
-    lam = np.array([plan.settings["snr_at_A"]])
+    lam = np.array([wavelength_A])
     cond = batched_conditions([p.window], atm)
     seconds = max(p.hours_available, 0.0) * 3600.0
     if seconds <= 0:
@@ -438,14 +480,48 @@ def choose(p: NightPlan, settings: dict, overhead_s: float) -> None:
         return
     for o in p.outcomes:
         o.score = score(o)
-    eligible = [o for o in p.outcomes if o.score > 0]
-    if eligible:
-        best = max(eligible, key=lambda o: (o.score, -(o.time_to_sigma_s or math.inf), o.significance or 0.0))
+    p.choices = per_telescope([o for o in p.outcomes if o.score > 0], _rank_key)
+    if p.choices:
+        best = p.choices[0]
         p.choice, p.status = best, "observe"
         p.detected = list(best.detected)
         p.reason = choice_words(best, p.hours_available, settings["sigma"])
         return
+    if _classification(p, settings):
+        return
     p.reason = "nothing useful, " + failure_words(p, settings["sigma"])
+
+
+def _rank_key(o: SetupOutcome):
+    return (o.score, -(o.time_to_sigma_s or math.inf), o.significance or 0.0)
+
+
+def per_telescope(outcomes: list, key) -> list:
+    """The best outcome (by ``key``) of each telescope, best first."""
+    best: dict = {}
+    for o in outcomes:
+        if o.telescope not in best or key(o) > key(best[o.telescope]):
+            best[o.telescope] = o
+    return sorted(best.values(), key=key, reverse=True)
+
+
+def _classification(p: NightPlan, settings: dict) -> bool:
+    """Within the first ``CLASSIFICATION_DAYS`` with nothing detected yet: keep the night as a classification
+    spectrum when the continuum S/N per resolution element reaches ``snr_target`` at the classification
+    wavelength in the usable time (the first spectrum a team wants, before any line is expected strong)."""
+    if p.phase_d is None or p.phase_d >= CLASSIFICATION_DAYS:
+        return False
+    target = settings["snr_target"]
+    ok = [o for o in p.outcomes if o.snr_at is not None and o.snr_at >= target]
+    p.choices = per_telescope(ok, lambda o: o.snr_at)
+    if not p.choices:
+        return False
+    best = p.choice = p.choices[0]
+    p.status = "observe"
+    p.reason = (f"{best.setup}: classification spectrum: continuum S/N {best.snr_at:.0f} per resolution element at "
+                f"{settings['classification_A']:.0f} A in {p.hours_available:.1f} h (target {target:g}); no "
+                f"diagnostic feature reaches {settings['sigma']:g} sigma yet")
+    return True
 
 
 def choice_words(o: SetupOutcome, hours: float, sigma: float) -> str:
@@ -578,7 +654,11 @@ def night_summary(p: NightPlan, sigma: float) -> dict:
         "trough_obs_A": _r(c.trough_obs_A, 2), "arm": c.arm or None, "significance": _r(c.significance, 3),
         "snr_bin": _r(c.snr_bin, 3), "time_to_sigma_s": _r(c.time_to_sigma_s, 1), "nexp": c.nexp,
         "exposure_s": _r(c.exposure_s, 1), "n_detected": len(c.detected), "n_targets": len(c.targets),
-        "detected": list(c.detected)}
+        "detected": list(c.detected), "telescope": c.telescope,
+        "kind": "detection" if c.detected else "classification", "snr_at": _r(c.snr_at, 3)}
+    doc["choices"] = [{"telescope": o.telescope, "setup": o.setup, "score": _r(o.score, 3),
+                       "feature": o.feature, "significance": _r(o.significance, 3), "detected": list(o.detected),
+                       "kind": "detection" if o.detected else "classification"} for o in p.choices]
     return doc
 
 
@@ -596,8 +676,11 @@ def plan_document(plan: Plan, files: dict | None = None, references=None, assump
     sites = [{"id": s.id, "name": s.name, "latitude_deg": s.latitude_deg, "longitude_deg": s.longitude_deg,
               "elevation_m": s.elevation_m, "setups": [sid for sid in plan.settings["setups"]
                                                        if sid.split("/")[0] == s.id]} for s in plan.sites]
+    from kncast.planner.plan.blocks import block_record
+
     return document("plan", event=plan.event.summary(), settings=dict(plan.settings, score=choice_rule(
                         plan.settings["sigma"], plan.settings["min_depth"], plan.settings["bin_kms"])),
                     model=plan.model, sites=sites, nights=[night_summary(p, plan.settings["sigma"]) for p in plan.nights],
                     campaign=plan.campaign, candidates=[c.summary() for c in plan.candidates], files=files or {}, assumptions=list(assumptions or []),
-                    references=list(references or []), cautions=list(CAUTIONS))
+                    references=list(references or []), cautions=list(CAUTIONS),
+                    blocks=[block_record(plan, b) for b in plan.blocks])

@@ -64,6 +64,13 @@ def _exposure_words(choice: dict) -> str:
     return _fmt(choice.get("time_to_sigma_s"), ".0f") + " s"
 
 
+def _feature_cell(choice: dict) -> str:
+    """'ba2-red (5158 A, visible)' or, for a classification spectrum, its continuum S/N."""
+    if choice.get("feature") is None or choice.get("trough_obs_A") is None:
+        return f"classification (continuum S/N {_fmt(choice.get('snr_at'), '.0f')})"
+    return f"{choice['feature']} ({choice['trough_obs_A']:.0f} A, {choice.get('arm') or '-'})"
+
+
 def _sigma_words(choice: dict | None) -> str:
     return "-" if not choice else _fmt(choice.get("significance"), ".1f")
 
@@ -74,6 +81,8 @@ def build_blocks(doc: dict, figures: list[dict]) -> list[Block]:
     blocks = [Block("h1", f"Spectroscopy campaign plan for {ev['id']}")]
     blocks.append(Block("note", CAUTION_LINE))
     blocks += _summary(doc)
+    blocks += _changes(doc)
+    blocks += _anchoring(doc)
     blocks += _night_table(doc)
     blocks += _campaign(doc)
     blocks += _candidates(doc)
@@ -117,6 +126,34 @@ def _summary(doc: dict) -> list[Block]:
     return out
 
 
+def _anchoring(doc: dict) -> list[Block]:
+    """The model rescaled to measured photometry: the scales and the model against each anchor."""
+    fit = (doc.get("model") or {}).get("anchoring")
+    if not fit:
+        return []
+    words = (f"The photosphere model was rescaled to {fit['n_anchors']} measured AB magnitude(s) before planning: "
+             f"luminosity x {fit['luminosity_scale']:.3g} ({fit['delta_mag']:+.2f} mag)"
+             + (f", temperature x {fit['temperature_scale']:.3f}" if fit["temperature_fitted"] else "")
+             + f"; rms residual {fit['rms_mag']:.2f} mag (least squares; docs/methods.md).")
+    rows = [[a["band"], f"{a['phase_d']:.2f}", f"{a['mag_ab']:.2f}", f"{a['prior_mag_ab']:.2f}",
+             f"{a['model_mag_ab']:.2f}", f"{a['residual_mag']:+.2f}"] for a in fit["anchors"]]
+    return [Block("h2", "Model against the measured photometry"), Block("p", words),
+            Block("table", header=["Band", "Day", "Measured (AB)", "Model before", "Model after", "Residual"],
+                  items=rows)]
+
+
+def _changes(doc: dict) -> list[Block]:
+    """What this re-plan changed against the previous plan in the same folder (plan.previous.json)."""
+    ch = doc.get("changes")
+    if not ch:
+        return []
+    items = [f"gained: {c['site']}, night of {c['night']}" for c in ch["gained"]]
+    items += [f"lost: {c['site']}, night of {c['night']}" for c in ch["lost"]]
+    items += [f"{c['site']}, night of {c['night']}: {c['before']} -> {c['now']}" for c in ch["setup_changed"]]
+    items += [f"{c['telescope']}, night of {c['night']}: {c['before']} -> {c['now']}" for c in ch["exposure_changed"]]
+    return [Block("h2", "What changed"), Block("p", ch["summary"] + ".")] + ([Block("ul", items=items)] if items else [])
+
+
 def _moon_words(ep: dict) -> str:
     if ep["moon_altitude_deg"] is not None and ep["moon_altitude_deg"] <= 0:
         return "down"
@@ -137,7 +174,7 @@ def _night_table(doc: dict) -> list[Block]:
     if useful:
         rows = [[f"{n['epoch']['phase_d']:.2f}", n["site"], n["night"], _window_words(n["epoch"]),
                  f"{n['epoch']['airmass']:.2f}", _moon_words(n["epoch"]), n["choice"]["setup"],
-                 f"{n['choice']['feature']} ({n['choice']['trough_obs_A']:.0f} A, {n['choice']['arm'] or '-'})",
+                 _feature_cell(n["choice"]),
                  _exposure_words(n["choice"]), _sigma_words(n["choice"]), ", ".join(n["detected"])] for n in useful]
         out.append(Block("table", header=["Day", "Site", "Night", "Window (UTC)", "Airmass", "Moon", "Setup",
                                           "Feature (trough, arm)", "Exposure", "Sigma in window", "Detected"],

@@ -67,9 +67,30 @@ EPOCH = _obj({
 
 CHOICE = _obj({
     "setup": {"type": "string"}, "score": _num, "feature": _str_or_null, "species": _str_or_null,
-    "trough_obs_A": _num_or_null, "arm": _str_or_null, "significance": _num, "snr_bin": _num_or_null,
+    "trough_obs_A": _num_or_null, "arm": _str_or_null, "significance": _num_or_null, "snr_bin": _num_or_null,
     "time_to_sigma_s": _num_or_null, "nexp": _int_or_null, "exposure_s": _num_or_null,
     "n_detected": {"type": "integer"}, "n_targets": {"type": "integer"}, "detected": _strings,
+    "telescope": {"type": "string"}, "kind": {"enum": ["detection", "classification"]}, "snr_at": _num_or_null,
+})
+
+TELESCOPE_CHOICE = _obj({
+    "telescope": {"type": "string"}, "setup": {"type": "string"}, "score": _num, "feature": _str_or_null,
+    "significance": _num_or_null, "detected": _strings, "kind": {"enum": ["detection", "classification"]},
+})
+
+_three = {"type": "array", "items": _num_or_null, "minItems": 3, "maxItems": 3}
+
+BLOCK = _obj({
+    "site": {"type": "string"}, "telescope": {"type": "string"}, "setup": {"type": "string"}, "night": _date,
+    "kind": {"enum": ["detection", "classification"]}, "phase_d": _num, "start_utc": _utc, "end_utc": _utc,
+    "start_local": {"type": "string"}, "end_local": {"type": "string"},
+    "n_exp": {"type": "integer", "minimum": 1}, "exp_s": {"type": "number", "exclusiveMinimum": 0},
+    "snr": _num_or_null, "significance": _num_or_null, "feature": _str_or_null, "detected": _strings,
+    "airmass": _three, "altitude_deg": _three, "parallactic_angle_deg": _three, "adr_arcsec": _num_or_null,
+    "adr_guide_arcsec": _num_or_null, "guide_A": _num, "slit_advice": {"type": "string"},
+    "ra_hms": {"type": "string"}, "dec_dms": {"type": "string"}, "ra_deg": _num, "dec_deg": _num,
+    "target": {"type": "string"},
+    "telluric_standard": _obj({"airmass": _num_or_null, "latest_utc": _utc_or_null, "within_airmass": _num}),
 })
 
 STATUS = {"enum": ["observe", "no-window", "no-spectrograph", "too-short", "hidden", "no-targets", "too-faint"]}
@@ -79,7 +100,7 @@ NIGHT = _obj({
     "note": {"type": "string"}, "windows": {"type": "array", "items": WINDOW}, "status": STATUS,
     "reason": {"type": "string", "minLength": 1}, "epoch": {"anyOf": [EPOCH, {"type": "null"}]},
     "setups": {"type": "array", "items": SETUP_OUTCOME}, "choice": {"anyOf": [CHOICE, {"type": "null"}]},
-    "detected": _strings, "reference": REFERENCE,
+    "detected": _strings, "reference": REFERENCE, "choices": {"type": "array", "items": TELESCOPE_CHOICE},
 }, {"dark_hours": _num})
 
 POINT = {"anyOf": [{"type": "null"}, _obj({"site": {"type": "string"}, "night": _date, "phase_d": _num,
@@ -112,7 +133,9 @@ PLAN_SCHEMA = {
             "sites": _strings, "sigma": {"type": "number", "exclusiveMinimum": 0},
             "bin_kms": {"type": "number", "exclusiveMinimum": 0}, "min_depth": _num,
             "features": {"anyOf": [_strings, {"type": "null"}]}, "snr_at_A": _num_or_null,
-            "telluric_threshold": _fraction, "setups": _strings, "target": {"type": "string"},
+            "telluric_threshold": _fraction, "night_rules": {"type": "object"}, "classification_A": _num,
+            "classification_days": _num,
+"setups": _strings, "target": {"type": "string"},
             "score": {"type": "string"}}, {"mag_bands": _strings}),
         "model": _obj({"name": {"type": "string"}, "parameters": {"type": "object"}}, extra=True),
         "sites": {"type": "array", "items": _obj({
@@ -130,10 +153,13 @@ PLAN_SCHEMA = {
         "files": _obj({"plan": {"const": "plan.json"}, "windows": {"const": "windows.ecsv"},
                        "features": {"const": "features.ecsv"}, "exposures": {"const": "exposures.ecsv"},
                        "figures": _strings, "report_md": {"const": "report.md"},
-                       "report_html": {"const": "report.html"}}),
+                       "report_html": {"const": "report.html"}}, {"blocks": {"const": "blocks.txt"},
+                                                             "previous": {"const": "plan.previous.json"}}),
         "assumptions": _strings,
         "references": {"type": "array", "items": _obj({"model": {"type": "string"}, "module": {"type": "string"},
                                                        "reference": {"type": "string"}})},
         "cautions": {**_strings, "minItems": 3},
-    }),
+        "blocks": {"type": "array", "items": BLOCK},
+    }, {"changes": _obj({"summary": {"type": "string"}, "gained": {"type": "array"}, "lost": {"type": "array"},
+                         "setup_changed": {"type": "array"}, "exposure_changed": {"type": "array"}})}),
 }

@@ -126,9 +126,23 @@ def _deg(value, name: str, low: float, high: float):
     return value
 
 
+MAX_START_DAYS = 366  # a later first night at most this many days after t0
+
+
+def _check_start(start_date, t0_mjd: float) -> None:
+    """``start_date`` (local evening date of the first night) within [t0 - 1 d, t0 + MAX_START_DAYS]."""
+    if start_date is None:
+        return
+    t0 = dt.date(1858, 11, 17) + dt.timedelta(days=int(t0_mjd))
+    if not isinstance(start_date, dt.date) or not (t0 - dt.timedelta(days=1) <= start_date
+                                                     <= t0 + dt.timedelta(days=MAX_START_DAYS)):
+        raise ParameterError("start_date", str(start_date), f"a date from {t0 - dt.timedelta(days=1)} to "
+                             f"{t0 + dt.timedelta(days=MAX_START_DAYS)} (t0 - 1 d to t0 + {MAX_START_DAYS} d)")
+
+
 def compute_visibility(event, sites, nights: int = 3, twilight: str = "nautical", min_altitude_deg=None,
                        max_airmass=None, min_moon_sep_deg=None, target_index: int = 0,
-                       ephemeris: sky.Ephemeris | None = None) -> VisibilityResult:
+                       ephemeris: sky.Ephemeris | None = None, start_date: dt.date | None = None) -> VisibilityResult:
     """Dusk, dawn and observing windows of ``event`` at each site for ``nights`` local nights from t0.
 
     ``min_altitude_deg`` replaces every site's own pointing limit; ``max_airmass``
@@ -156,7 +170,8 @@ def compute_visibility(event, sites, nights: int = 3, twilight: str = "nautical"
         min_moon_sep_deg=_deg(min_moon_sep_deg, "min_moon_sep_deg", 0.0, 180.0),
         t0_mjd=float(event.t0.utc.mjd))
 
-    dates, bounds = night_bounds_mjd(sites, rules.t0_mjd, nights)
+    _check_start(start_date, rules.t0_mjd)
+    dates, bounds = night_bounds_mjd(sites, rules.t0_mjd, nights, start_date)
     span = (bounds.min() - 0.05, bounds.max() + 0.05)
     eph = ephemeris
     if eph is None or eph.mjd[0] > span[0] or eph.mjd[-1] < span[1] or eph.target_xyz.shape[0] != len(targets):

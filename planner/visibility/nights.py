@@ -39,17 +39,21 @@ def first_night_date(site, t0_mjd: float) -> dt.date:
     return (t0 - dt.timedelta(hours=12)).date()
 
 
-def night_dates(site, t0_mjd: float, nights: int) -> list[dt.date]:
-    """The ``nights`` local evening dates from the night in progress at t0."""
+def night_dates(site, t0_mjd: float, nights: int, start_date: dt.date | None = None) -> list[dt.date]:
+    """The ``nights`` local evening dates from the night in progress at t0 (or from ``start_date``, a
+    local evening date, when that is later)."""
     d0 = first_night_date(site, t0_mjd)
+    if start_date is not None and start_date > d0:
+        d0 = start_date
     return [d0 + dt.timedelta(days=i) for i in range(nights)]
 
 
-def night_bounds_mjd(sites, t0_mjd: float, nights: int):
-    """Local-noon bounds of every night: (dates per site, bounds (n_sites, nights + 1) MJD)."""
+def night_bounds_mjd(sites, t0_mjd: float, nights: int, start_date: dt.date | None = None):
+    """Local-noon bounds of every night: (dates per site, bounds (n_sites, nights + 1) MJD); the first night
+    is the one in progress at t0, or ``start_date`` (a local evening date) when that is later."""
     dates, bounds = [], np.empty((len(sites), nights + 1))
     for i, site in enumerate(sites):  # calendar arithmetic per site and night, not per time sample
-        ds = night_dates(site, t0_mjd, nights)
+        ds = night_dates(site, t0_mjd, nights, start_date)
         dates.append(ds)
         noons = [dt.datetime.combine(d, dt.time(12), tzinfo=site.tz) for d in ds]
         noons.append(dt.datetime.combine(ds[-1] + dt.timedelta(days=1), dt.time(12), tzinfo=site.tz))

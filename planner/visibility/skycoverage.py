@@ -98,7 +98,8 @@ class _Columns:
 
 def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight: str = "nautical",
                      min_altitude_deg=None, max_airmass=None, min_moon_sep_deg=None,
-                     step_min: float = DEFAULT_STEP_MIN, pixel_flags: bool = True) -> CoverageResult:
+                     step_min: float = DEFAULT_STEP_MIN, pixel_flags: bool = True,
+                     start_date=None) -> CoverageResult:
     """Observable probability, probability-weighted hours and observable 90 % area per site and night.
 
     ``pixel_flags=False`` skips keeping the per-pixel observable flags (``observable`` is then None),
@@ -111,7 +112,8 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
         raise ParameterError("step_min", step_min, "1 to 60 minutes")
     ra, dec = skymap.peak_radec_deg()
     probe = Event(id="map-peak", ra_deg=ra, dec_deg=dec, t0=t0, source=skymap.path)
-    vis = compute_visibility(probe, sites, nights=nights, twilight=twilight, min_altitude_deg=min_altitude_deg,
+    vis = compute_visibility(probe, sites, nights=nights, twilight=twilight, start_date=start_date,
+                             min_altitude_deg=min_altitude_deg,
                              max_airmass=max_airmass, min_moon_sep_deg=min_moon_sep_deg)
     sites = vis.sites
     cols, records = sample_dark_time(vis, step_min)
