@@ -64,7 +64,9 @@ def plan_blocks(plan) -> list[Block]:
 
 def _block(plan, p, o, ref) -> Block:
     w = p.window
-    on_source = o.time_to_sigma_s if o.time_to_sigma_s else p.hours_available * 3600.0
+    # a detection block holds the exposures reaching the target significance; a classification block
+    # (nothing detected yet) takes the usable time
+    on_source = o.time_to_sigma_s if (o.detected and o.time_to_sigma_s) else p.hours_available * 3600.0
     n_exp = max(1, int(np.ceil(on_source / DEFAULT_MAX_EXPOSURE_S - 1e-9)))
     length_d = min(on_source + plan.settings["overhead_s"], plan.settings["max_hours"] * 3600.0) / 86400.0
     start, end, best = w.start.utc.mjd, w.end.utc.mjd, w.best_time.utc.mjd
@@ -146,7 +148,11 @@ def _refraction(p, ref, b: Block) -> None:
     guide = [adr(lam, GUIDE_A) for lam in ends]
     b.adr_arcsec = round(abs(float(across)), 3)
     b.adr_guide_arcsec = round(max(abs(float(g)) for g in guide), 3)
-    b.slit_advice = slit_advice(b.adr_arcsec, ref.instrument.slit_width_arcsec)
+    if getattr(ref.instrument, "kind", "slit") == "fibre":
+        b.slit_advice = (f"fibre of {ref.instrument.slit_width_arcsec:g} arcsec: guide at {GUIDE_A:.0f} A; the ends "
+                         f"of the setup sit up to {b.adr_guide_arcsec:g} arcsec from the guided position")
+    else:
+        b.slit_advice = slit_advice(b.adr_arcsec, ref.instrument.slit_width_arcsec)
 
 
 def _standard_hint(plan, p, b: Block) -> None:

@@ -20,8 +20,8 @@ def blocks_text(doc: dict) -> str:
     lines = [BLOCKS_TEXT_HEADER, f"# event {doc['event']['id']}; model estimates: the observatory's own "
                                  "exposure-time tools and operating rules take precedence"]
     for b in doc.get("blocks", []):
-        what = (f"{b['feature']} {b['significance']:.1f} sigma" if b.get("feature") and b.get("significance")
-                is not None else b["kind"])
+        detection = b["kind"] == "detection" and b.get("feature") and b.get("significance") is not None
+        what = f"{b['feature']} {b['significance']:.1f} sigma" if detection else b["kind"]
         lines.append(f"{b['target']:<16s} {b['ra_hms']:>12s} {b['dec_dms']:>12s}  {_hm(b['start_utc'])} - "
                      f"{b['end_utc'][11:16]}  {b['n_exp']} x {b['exp_s']:.0f} s  {b['setup']}  ({what})")
     return "\n".join(lines) + "\n"
@@ -48,7 +48,7 @@ def blocks_ics(doc: dict) -> bytes:
         e.add("location", b["site"])
         e.add("description", f"{b['setup']}; RA {b['ra_hms']} Dec {b['dec_dms']}; airmass "
                              f"{' / '.join(_x(v) for v in b['airmass'])} (start / middle / end); "
-                             f"{b['kind']}" + (f" for {b['feature']}" if b.get("feature") else "")
+                             f"{b['kind']}" + (f" for {b['feature']}" if b["kind"] == "detection" else "")
                              + ". Model estimate: the observatory's own tools and rules take precedence.")
         cal.add_component(e)
     return cal.to_ical()
