@@ -9,7 +9,11 @@ so ``import kncast.planner`` (and the command line's start) stays light.
 """
 from importlib.metadata import PackageNotFoundError, version as _version
 
-from kncast.planner import _offline  # noqa: F401  (configures astropy/skyfield for offline use)
+from kncast.planner._early import guard_start as _guard_start
+
+_guard_start()  # the kncast command only: a Ctrl-C while astropy loads is one line, not a traceback
+
+from kncast.planner import _offline  # noqa: F401, E402  (configures astropy/skyfield for offline use)
 from kncast.forecast._lazy import lazy_exports
 
 try:

@@ -40,16 +40,15 @@ def _raise_stopped(signum, _frame):
 
 
 _handling = False  # True while main() handles the stop signals (read by forked children)
+_installed: tuple = ()  # the signals main() handles (those not ignored when it started)
 
 
 def _quiet_child() -> None:
     """In a process forked while main() runs (figure workers): Ctrl-C is the parent's to handle,
     SIGTERM/SIGHUP (the parent's pool sends SIGTERM) end the worker silently."""
     if _handling:
-        signal.signal(signal.SIGINT, signal.SIG_IGN)
-        for s in STOP_SIGNALS:
-            if s != signal.SIGINT:
-                signal.signal(s, signal.SIG_DFL)
+        for s in _installed:
+            signal.signal(s, signal.SIG_IGN if s == signal.SIGINT else signal.SIG_DFL)
 
 
 if hasattr(os, "register_at_fork"):
@@ -59,18 +58,19 @@ if hasattr(os, "register_at_fork"):
 @contextlib.contextmanager
 def stop_signals():
     """SIGINT/SIGTERM/SIGHUP raise :class:`Stopped` inside the block; the previous handlers return after it."""
-    global _handling
+    global _handling, _installed
     if threading.current_thread() is not threading.main_thread():
         yield
         return
-    previous = {s: signal.getsignal(s) for s in STOP_SIGNALS}
-    for s in STOP_SIGNALS:
+    # a signal ignored by whoever started us stays ignored (nohup: SIGHUP; a shell's background job: SIGINT)
+    previous = {s: signal.getsignal(s) for s in STOP_SIGNALS if signal.getsignal(s) is not signal.SIG_IGN}
+    for s in previous:
         signal.signal(s, _raise_stopped)
-    _handling = True
+    _handling, _installed = True, tuple(previous)
     try:
         yield
     finally:
-        _handling = False
+        _handling, _installed = False, ()
         for s, handler in previous.items():
             signal.signal(s, handler if handler is not None else signal.SIG_DFL)
 

@@ -53,8 +53,11 @@ def check_plan_folder(out, event_id: str, force: bool = False) -> None:
 
     Raises ParameterError("out") naming the folder and, for files kncast did not write, those files.
     """
+    from kncast.planner.output import sweep_stale
+
     out = Path(out)
     allowed = "a new folder, or an earlier kncast plan folder of this event"
+    sweep_stale(out)  # a folder a killed run left aside comes back first, and is checked like any other
     if os.path.islink(out):
         raise _refuse(out, allowed, "a symbolic link; give the folder it points to")
     try:
