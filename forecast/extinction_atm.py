@@ -27,7 +27,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from kncast.forecast.datafiles import field
+from kncast.forecast.datafiles import check_keys, field
 from kncast.forecast.errors import DataFileError, check_range
 from kncast.forecast.references import BURROWS_1999, HANSEN_TRAVIS_1974
 
@@ -124,9 +124,7 @@ def atmosphere_from_table(tab: dict, elevation_m: float, path="[atmosphere]") ->
     """Validated :class:`Atmosphere` from a site's raw ``[atmosphere]`` dict (may be empty)."""
     if not isinstance(tab, dict):
         raise DataFileError(path, "atmosphere", "expected a table")
-    unknown = sorted(set(tab) - set(ATMOSPHERE_FIELDS) - {"source"})
-    if unknown:
-        raise DataFileError(path, f"atmosphere.{unknown[0]}", "unknown key", " | ".join([*ATMOSPHERE_FIELDS, "source"]))
+    check_keys(tab, (*ATMOSPHERE_FIELDS, "source"), path, "atmosphere")  # names the closest key
     defaults = Atmosphere()
     values = {}
     for key, (low, high, unit, _meaning) in ATMOSPHERE_FIELDS.items():
