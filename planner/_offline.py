@@ -52,11 +52,10 @@ def iers_data_dir() -> str:
 
 @functools.lru_cache(maxsize=1)
 def iers_prediction_end_mjd() -> float:
-    """Last MJD covered by the bundled IERS-A table (observed + predicted)."""
-    from astropy.utils import iers
+    """Last MJD covered by the bundled IERS-A table (observed + predicted), as astropy's table has it."""
+    from kncast.planner.visibility.eop import table_end_mjd
 
-    table = iers.IERS_Auto.open()
-    return float(table["MJD"][-1].value)
+    return table_end_mjd()
 
 
 def warn_if_beyond_iers(latest_mjd: float) -> None:

@@ -1,9 +1,10 @@
 """Sky geometry on whole grids of sites x times, in plain numpy.
 
 The expensive, site-independent part is computed once: apparent geocentric
-Sun, Moon and target positions (true equator and equinox of date, via
-astropy) and Greenwich apparent sidereal time, all tabulated on a coarse
-time grid (:class:`Ephemeris`).  Any later time is served by interpolation
+Sun, Moon and target positions (true equator and equinox of date) and
+Greenwich apparent sidereal time, all tabulated on a coarse time grid
+(:class:`Ephemeris`) by the ERFA routines astropy's frames use
+(:mod:`kncast.planner.visibility.apparent`).  Any later time is served by interpolation
 (linear on a 30-minute grid errs by < 1 arcsec for the Moon, far less for
 the Sun and targets), so window
 edges can be refined by root finding without calling astropy again.
@@ -12,9 +13,9 @@ Altitudes are geometric (no refraction), as astropy's ``AltAz`` with zero
 pressure; the Moon is made topocentric with the site's geocentric vector.
 Angles in degrees, times as MJD (UTC) floats in the kernels.
 
-Positions and sidereal time come from astropy (Astropy Collaboration 2022, ApJ 935,
-167); its apparent sidereal time is the IAU 2006/2000A one of Wallace & Capitaine
-(2006, A&A 459, 981), evaluated by ERFA.
+Positions and sidereal time are astropy's (Astropy Collaboration 2022, ApJ 935,
+167), evaluated by ERFA; the apparent sidereal time is the IAU 2006/2000A one of
+Wallace & Capitaine (2006, A&A 459, 981).
 """
 from __future__ import annotations
 
@@ -30,6 +31,7 @@ REFERENCES = (ASTROPY_2022, WALLACE_CAPITAINE_2006)
 EARTH_EQUATORIAL_RADIUS_KM = 6378.137  # WGS84
 EARTH_FLATTENING = 1 / 298.257223563  # WGS84
 GRID_STEP_MIN = 30.0
+AU_KM = 149_597_870.7  # IAU 2012 Resolution B2 (exact)
 
 
 @dataclass(frozen=True)
@@ -50,32 +52,23 @@ class Ephemeris:
     @classmethod
     def build(cls, start_mjd: float, end_mjd: float, target_ra_deg, target_dec_deg,
               step_min: float = GRID_STEP_MIN) -> "Ephemeris":
-        """Tabulate Sun, Moon and targets from ``start_mjd`` to ``end_mjd`` (UTC)."""
-        import astropy.units as u
-        from astropy.coordinates import ICRS, TETE, get_body
-        from astropy.time import Time
+        """Tabulate Sun, Moon and targets from ``start_mjd`` to ``end_mjd`` (UTC), every ``step_min`` minutes.
 
+        Positions come from :func:`kncast.planner.visibility.apparent.compute` (ERFA, the chain
+        astropy's frames use, without building frames).
+        """
         from kncast.planner._offline import warn_if_beyond_iers
+        from kncast.planner.visibility.apparent import compute
 
         n = int(np.ceil((end_mjd - start_mjd) * 1440.0 / step_min)) + 1
         mjd = start_mjd + np.arange(n) * step_min / 1440.0
         warn_if_beyond_iers(mjd[-1])
-        times = Time(mjd, format="mjd", scale="utc")
-        frame = TETE(obstime=times)
-        # frame-level transforms: SkyCoord.transform_to would format the whole Time array into a docstring
-        sun = get_body("sun", times).frame.transform_to(frame).cartesian
-        moon = get_body("moon", times).frame.transform_to(frame).cartesian
-        ra = np.atleast_1d(np.asarray(target_ra_deg, dtype=float))
-        dec = np.atleast_1d(np.asarray(target_dec_deg, dtype=float))
-        tgt = np.empty((ra.size, 3, n))
-        for i in range(ra.size):  # loop over targets only; each call is vectorized over all grid times
-            c = ICRS(ra=ra[i] * u.deg, dec=dec[i] * u.deg).transform_to(frame).cartesian
-            tgt[i] = _unit(c.xyz.value)
-        sun_km = sun.xyz.to_value(u.km)
-        gast = times.sidereal_time("apparent", "greenwich").deg
-        return cls(mjd=mjd, gast_deg=np.degrees(np.unwrap(np.radians(gast))),
+        app = compute(mjd, target_ra_deg, target_dec_deg)
+        sun_km = app.sun_au.T * AU_KM
+        tgt = np.moveaxis(app.targets, -1, 1)  # (n_targets, 3, n_grid)
+        return cls(mjd=mjd, gast_deg=np.degrees(np.unwrap(app.gast_rad)),
                    sun_xyz=_unit(sun_km), sun_dist_km=np.linalg.norm(sun_km, axis=0),
-                   moon_xyz_km=moon.xyz.to_value(u.km), target_xyz=tgt)
+                   moon_xyz_km=app.moon_au.T * AU_KM, target_xyz=tgt / np.linalg.norm(tgt, axis=1, keepdims=True))
 
     # --- interpolation -------------------------------------------------
     def _interp(self, table: np.ndarray, mjd) -> np.ndarray:
