@@ -62,6 +62,11 @@ def add_arguments(p) -> None:
     o.add_argument("--ics", metavar="FILE", help="also write the planned blocks as an iCalendar file (RFC 5545, UTC)")
     o.add_argument("--verbose", action="store_true",
                    help="also print every night's reason and the nights without a spectrum")
+    from kncast.planner.plan.folder import FIGURE_SETS, MAX_SNR_FIGURES
+
+    o.add_argument("--figures", choices=FIGURE_SETS, default=FIGURE_SETS[0],
+                   help=f"S/N spectra for the most often chosen setups (at most {MAX_SNR_FIGURES}; default) "
+                        "or for every setup with a measured epoch")
     from kncast.planner.commands._model_options import add_model_options
 
     add_model_options(p)
@@ -99,7 +104,7 @@ def run(args) -> int:
                           features=feature_ids(args), snr_at_A=args.snr_at,
                           telluric_threshold=args.telluric_threshold, setups=_common.split_list(args.setups) or None,
                           anchors=anchors_from_args(args, event), **rules)
-        doc = write_folder(plan, out, say)
+        doc = write_folder(plan, out, say, figures=args.figures)
     if args.ics:
         from kncast.planner.output import atomic_path
         from kncast.planner.plan.exports import blocks_ics
@@ -188,8 +193,10 @@ def previous_plan(out: Path, event_id: str) -> dict | None:
     return doc if ok else None
 
 
-def write_folder(plan, out: Path, say=lambda text: None) -> dict:
-    """Write every output file of ``plan`` into ``out`` atomically; returns the plan document."""
+def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen") -> dict:
+    """Write every output file of ``plan`` into ``out`` atomically; returns the plan document.
+
+    ``figures`` picks the S/N spectra drawn (kncast.planner.plan.folder.FIGURE_SETS)."""
     from kncast.planner.plan import folder as plan_outputs
     from kncast.planner.errors import OptionError
     from kncast.planner.output import atomic_dir, write_json
@@ -202,8 +209,8 @@ def write_folder(plan, out: Path, say=lambda text: None) -> dict:
         say("tables")
         files = plan_outputs.write_tables(plan, tmp)
         say("figures")
-        figures = plan_outputs.write_figures(plan, tmp)
-        files["figures"] = [f["path"] for f in figures]
+        drawn = plan_outputs.write_figures(plan, tmp, figures)
+        files["figures"] = [f["path"] for f in drawn]
         files.update(plan="plan.json", report_md="report.md", report_html="report.html")
         files["blocks"] = "blocks.txt"
         previous = previous_plan(out, plan.event.id)
@@ -222,7 +229,7 @@ def write_folder(plan, out: Path, say=lambda text: None) -> dict:
         say("report")
         from kncast.planner.plan.report import write_report
 
-        write_report(tmp, doc, figures)
+        write_report(tmp, doc, drawn)
     return doc
 
 

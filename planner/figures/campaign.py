@@ -42,12 +42,57 @@ def _lanes(result):
             np.where(cell(dark.astype(float)) > 0.5, moonlight, np.nan))
 
 
+def _lane_edges(n: int, low: float, high: float) -> np.ndarray:
+    """Mesh row edges of a layer: [low, high] inside every lane y = 0 .. n - 1, bottom lane first."""
+    return (np.arange(n)[:, None] + np.array([low, high])).ravel()
+
+
+def _lane_rows(values: np.ndarray) -> np.ma.MaskedArray:
+    """Per-site rows (first site on top) as mesh rows bottom-up, with a masked row between lanes."""
+    n, m = values.shape
+    rows = np.full((2 * n - 1, m), np.nan)
+    rows[::2] = values[::-1]
+    return np.ma.masked_invalid(rows)
+
+
+def _window_boxes(result, x, n: int):
+    """Outlines of every window (rectangles in data units) and the marks of dark nights without one."""
+    boxes, marks = [], []
+    for i, site in enumerate(result.sites):
+        y = n - 1 - i
+        for rec in result.for_site(site.id):
+            for w in rec.windows:
+                x0, x1 = w.phase_start_d, w.phase_end_d
+                boxes.append([(x0, y + 0.12), (x1, y + 0.12), (x1, y + 0.54), (x0, y + 0.54)])
+            if not rec.windows and (rec.dusk is not None or rec.dark_hours > 0):  # dark night, no window
+                mid = (rec.dusk.mjd if rec.dusk is not None else rec.dawn.mjd) - result.t0_mjd
+                if rec.dawn is not None and rec.dusk is not None:
+                    mid = 0.5 * (rec.dusk.mjd + rec.dawn.mjd) - result.t0_mjd
+                if x[0] <= mid <= x[-1]:
+                    marks.append((mid, y + 0.33))
+    return boxes, marks
+
+
+def _fit_left_margin(fig, ax, aligned) -> None:
+    """Move the left edge of ``ax`` (and of the ``aligned`` axes) just right of its longest tick label.
+
+    A fixed layout measured once from the label text, instead of a tight bounding box (which draws
+    the whole figure twice)."""
+    renderer = fig.canvas.get_renderer()
+    width = max((t.get_window_extent(renderer).width for t in ax.get_yticklabels()), default=0.0)
+    left = min(0.4, (width + 0.15 * fig.dpi) / (fig.get_figwidth() * fig.dpi))
+    for a in [ax, *aligned]:
+        box = a.get_position()
+        a.set_position([left, box.y0, box.x1 - left, box.height])
+
+
 def campaign_figure(result):
     """A matplotlib Figure of the campaign (see module docstring)."""
     import matplotlib
 
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
+    from matplotlib.collections import PolyCollection
     from matplotlib.colors import LinearSegmentedColormap
 
     x, airmass, moon = _lanes(result)
@@ -60,22 +105,16 @@ def campaign_figure(result):
     cax_moon = fig.add_axes([0.58, 0.45 * inch, 0.4, 0.12 * inch])
     moon_cmap = LinearSegmentedColormap.from_list("moonlight", ["#1b2440", "#5d6a8f", "#f3e7a1"])
     am_cmap = plt.get_cmap("viridis_r").copy()
-    for i in range(n):  # one lane per site
-        y = n - 1 - i
-        ax.pcolormesh(x, [y + 0.58, y + 0.82], moon[i:i + 1], cmap=moon_cmap, vmin=0, vmax=1, shading="flat")
-        mesh = ax.pcolormesh(x, [y + 0.12, y + 0.54], airmass[i:i + 1], cmap=am_cmap,
-                             vmin=AIRMASS_RANGE[0], vmax=AIRMASS_RANGE[1], shading="flat")
-        for rec in result.for_site(result.sites[i].id):
-            spans = [(w.phase_start_d, w.phase_end_d - w.phase_start_d) for w in rec.windows]
-            if spans:
-                ax.broken_barh(spans, (y + 0.12, 0.42), facecolors="none", edgecolors="black", linewidth=0.6)
-            elif rec.dusk is not None or rec.dark_hours > 0:  # a dark night without a window: mark it
-                mid = (rec.dusk.mjd if rec.dusk is not None else rec.dawn.mjd) - result.t0_mjd
-                if rec.dawn is not None and rec.dusk is not None:
-                    mid = 0.5 * (rec.dusk.mjd + rec.dawn.mjd) - result.t0_mjd
-                if x[0] <= mid <= x[-1]:
-                    ax.plot(mid, y + 0.33, marker="x", color="0.55", markersize=5, linestyle="none")
+    # one image per layer for all lanes (site i in lane y = n - 1 - i; masked rows between lanes)
+    ax.pcolorfast(x, _lane_edges(n, 0.58, 0.82), _lane_rows(moon), cmap=moon_cmap, vmin=0, vmax=1)
+    mesh = ax.pcolorfast(x, _lane_edges(n, 0.12, 0.54), _lane_rows(airmass), cmap=am_cmap,
+                         vmin=AIRMASS_RANGE[0], vmax=AIRMASS_RANGE[1])
+    boxes, marks = _window_boxes(result, x, n)
+    ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors="black", linewidths=0.6))
+    if marks:
+        ax.plot(*np.array(marks).T, marker="x", color="0.55", markersize=5, linestyle="none")
     ax.set_yticks([n - 1 - i + 0.47 for i in range(n)], [s.id for s in result.sites])
+    _fit_left_margin(fig, ax, [cax_am])
     ax.set_ylim(0, n)
     ax.set_xlim(x[0], x[-1])
     ax.axvspan(x[0], 0.0, color="0.9", zorder=-1)

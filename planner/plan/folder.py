@@ -8,6 +8,7 @@ docs/commands/plan.md, section "ECSV columns".
 """
 from __future__ import annotations
 
+import functools
 import multiprocessing
 import os
 from pathlib import Path
@@ -131,11 +132,21 @@ def _save(fig, folder: Path, name: str, tight: bool = False) -> str:
     return rel
 
 
-def write_figures(plan, folder: Path) -> list[dict]:
+FIGURE_SETS = ("chosen", "all")  # S/N spectra of the most often chosen setups only, or of every setup
+# Seconds to draw and save each kind of figure (measured on the 2-core machine, demo plan; a spectral
+# figure with one panel, each further panel adds half): they decide whether the worker processes pay
+# for themselves and which figure starts first.
+FIGURE_COST_S = {"campaign": 0.17, "lightcurve": 0.19, "spectrum": 0.27, "snr": 0.10, "snr-campaign": 0.17}
+POOL_OVERHEAD_S = 0.05  # forking two workers, handing out the jobs, collecting the results (measured: 0.02-0.04)
+
+
+def write_figures(plan, folder: Path, figures: str = "chosen") -> list[dict]:
     """Campaign chart, light curve, one spectral panel per chosen epoch, S/N curves (PNG under figures/).
 
-    The figures are independent, so they are drawn by two forked worker
-    processes where the platform can fork (plain serial drawing otherwise).
+    ``figures`` (one of FIGURE_SETS): ``"chosen"`` draws S/N spectra for the most often chosen setups
+    (at most MAX_SNR_FIGURES), ``"all"`` for every setup with a measured epoch.  The figures are
+    independent: two forked worker processes draw them where the platform can fork and the estimated
+    time saved (:func:`use_pool`) exceeds the cost of the workers; otherwise they are drawn in turn.
     """
     import matplotlib
 
@@ -143,12 +154,13 @@ def write_figures(plan, folder: Path) -> list[dict]:
     import matplotlib.pyplot  # noqa: F401  (loaded once, before any fork)
 
     (folder / "figures").mkdir(exist_ok=True)
-    jobs = figure_jobs(plan)
+    jobs = figure_jobs(plan, figures)
     global _JOB_STATE
     _JOB_STATE = (plan, folder)
     try:
         workers = min(2, os.cpu_count() or 1, len(jobs))
-        if workers > 1 and "fork" in multiprocessing.get_all_start_methods():
+        if use_pool([cost for *_, cost in jobs], workers) and "fork" in multiprocessing.get_all_start_methods():
+            _line_inputs()  # read the line list once, before the fork
             heavy_first = sorted(range(len(jobs)), key=lambda k: -jobs[k][2])
             with multiprocessing.get_context("fork").Pool(workers) as pool:
                 done = pool.map(_run_job, [jobs[k][:2] for k in heavy_first], chunksize=1)
@@ -163,6 +175,18 @@ def write_figures(plan, folder: Path) -> list[dict]:
     if failed:
         raise FigureError(failed[0]["error"], failed[0]["trace"])
     return [r for r in results if r is not None]
+
+
+def use_pool(costs_s: list[float], workers: int) -> bool:
+    """True when ``workers`` processes finish the jobs sooner than one, by more than POOL_OVERHEAD_S.
+
+    The parallel time is that of longest-job-first scheduling (the order the pool is fed)."""
+    if workers < 2:
+        return False
+    loads = [0.0] * workers
+    for c in sorted(costs_s, reverse=True):
+        loads[loads.index(min(loads))] += c
+    return sum(costs_s) - max(loads) > POOL_OVERHEAD_S
 
 
 class FigureError(RuntimeError):
@@ -194,22 +218,24 @@ def _run_job(job):
         return {"error": f"figure {name!r} ({arg}): {type(err).__name__}: {err}", "trace": traceback.format_exc()}
 
 
-def figure_jobs(plan) -> list[tuple]:
-    """(figure kind, argument, relative cost) in report order."""
-    jobs = [("campaign", None, 2), ("lightcurve", None, 1)]
+def figure_jobs(plan, figures: str = "chosen") -> list[tuple]:
+    """(figure kind, argument, estimated seconds) in report order."""
+    cost = FIGURE_COST_S
+    jobs = [("campaign", None, cost["campaign"]), ("lightcurve", None, cost["lightcurve"])]
     chosen = sorted(plan.useful(), key=lambda p: p.phase_d)
-    jobs += [("spectrum", day, 1 + len(epoch_groups([p for p in chosen if int(p.phase_d) == day])))
-             for day in sorted({int(p.phase_d) for p in chosen})]
-    jobs += [("snr", sid, 1) for sid in snr_figure_setups(plan)]
+    for day in sorted({int(p.phase_d) for p in chosen}):  # one panel per epoch group; each adds half a figure
+        panels = len(epoch_groups([p for p in chosen if int(p.phase_d) == day]))
+        jobs.append(("spectrum", day, cost["spectrum"] * (1 + panels) / 2))
+    jobs += [("snr", sid, cost["snr"]) for sid in snr_figure_setups(plan, figures)]
     if any(o.significance is not None for p in plan.nights for o in p.outcomes):
-        jobs.append(("snr-campaign", None, 1))
+        jobs.append(("snr-campaign", None, cost["snr-campaign"]))
     return jobs
 
 
 def campaign_chart(plan, folder, _arg):
     from kncast.planner.figures.campaign import campaign_figure
 
-    return {"title": "Campaign", "path": _save(campaign_figure(plan.visibility), folder, "campaign", tight=True),
+    return {"title": "Campaign", "path": _save(campaign_figure(plan.visibility), folder, "campaign"),
             "caption": "Observing windows per site across the campaign, shaded by airmass, with moonlight."}
 
 
@@ -222,12 +248,21 @@ def light_curve(plan, folder, _arg):
     state = plan.transient.state(phases)
     fig = lightcurve_figure(plan.transient, state, DEFAULT_BANDS,
                             f"{plan.event.id}: {plan.model.get('name', '')} photosphere")
-    return {"title": "Light curve", "path": _save(fig, folder, "lightcurve", tight=True),
+    return {"title": "Light curve", "path": _save(fig, folder, "lightcurve"),
             "caption": "Model AB magnitudes and photospheric temperature; markers at the "
                        + ("epochs with a useful spectrum." if plan.useful() else "planned epochs.")}
 
 
 SAME_EPOCH_D = 0.05  # chosen epochs closer than this (1.2 h) share one spectral panel
+
+
+@functools.lru_cache(maxsize=1)
+def _line_inputs():
+    """The bundled line list and composition (the plan's own defaults), read once for every spectral figure."""
+    from kncast.forecast.linelist import LineList
+    from kncast.forecast.lte import Composition
+
+    return LineList.load(), Composition.load()
 
 
 def epoch_groups(nights: list) -> list[list]:
@@ -253,9 +288,10 @@ def spectral_figure(plan, folder, day):
     group_refs = list({p.choice.setup: refs[p.choice.setup] for p in members}.values())
     airmass = float(np.median([forecast_airmass(p.window) for p in members]))
     pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in members]))
-    fc = forecast_features(plan.transient, np.array([g[0].phase_d for g in groups]),
+    linelist, composition = _line_inputs()
+    fc = forecast_features(plan.transient, np.array([g[0].phase_d for g in groups]), linelist,
                            setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
-                           pwv_mm=pwv, setup_ids=[r.id for r in group_refs])
+                           pwv_mm=pwv, composition=composition, setup_ids=[r.id for r in group_refs])
     fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
                        f"Days {day}-{day + 1}", telluric_threshold=plan.settings.get("telluric_threshold"))
     words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
@@ -272,34 +308,53 @@ def spectral_figure(plan, folder, day):
 MAX_SNR_FIGURES = 4
 
 
-def snr_figure_setups(plan) -> list[str]:
-    """The chosen setups (most often chosen first, at most MAX_SNR_FIGURES) that get an S/N spectrum."""
+def snr_figure_setups(plan, figures: str = "chosen") -> list[str]:
+    """The setups that get an S/N spectrum: the chosen ones (most often chosen first, at most
+    MAX_SNR_FIGURES), or with ``figures="all"`` every planned setup that has an epoch to show."""
+    if figures not in FIGURE_SETS:
+        raise ValueError(f"figures = {figures!r}: one of {', '.join(FIGURE_SETS)}")
+    if figures == "all":
+        return [sid for sid in plan.settings["setups"] if snr_epoch(plan, sid) is not None]
     counts = {}
     for p in plan.useful():
         counts[p.choice.setup] = counts.get(p.choice.setup, 0) + 1
     return sorted(counts, key=lambda s: (-counts[s], s))[:MAX_SNR_FIGURES]
 
 
+def snr_epoch(plan, setup_id: str):
+    """(night, outcome, why) the S/N spectrum of a setup shows: the last night it is chosen, else the
+    night its best-measured trough is most significant; None when it never measures one."""
+    chosen = [n for n in plan.useful() if n.choice.setup == setup_id]
+    if chosen:
+        p = max(chosen, key=lambda n: n.phase_d)
+        return p, p.choice, "the last night this setup is chosen"
+    measured = [(n, o) for n in plan.nights for o in n.outcomes if o.setup == setup_id and o.significance is not None]
+    if not measured:
+        return None
+    p, o = max(measured, key=lambda no: no[1].significance)
+    return p, o, "never chosen: its most significant night"
+
+
 def snr_spectrum(plan, folder, setup_id):
-    """S/N against wavelength (the exposure chart) for a setup at the last night it was chosen."""
+    """S/N against wavelength (the exposure chart) for a setup at the night :func:`snr_epoch` picks."""
     from kncast.planner.figures.exposure import exposure_figure
     from kncast.planner.observation import Request, observe, window_conditions
 
-    p = max((n for n in plan.useful() if n.choice.setup == setup_id), key=lambda n: n.phase_d)
+    p, c, why = snr_epoch(plan, setup_id)
     ref = next(r for r in plan.setup_refs if r.id == setup_id)
     w = p.window
     cond = window_conditions(w, plan.atmospheres[p.site.id], f"night of {p.record.night.isoformat()} at {p.site.id}")
-    c, sigma = p.choice, plan.settings["sigma"]
+    sigma = plan.settings["sigma"]
     seconds = c.time_to_sigma_s if c.time_to_sigma_s else p.hours_available * 3600.0
     request = Request(phase_d=p.phase_d, time_s=seconds, max_exposure_s=DEFAULT_MAX_EXPOSURE_S)
     res = observe(plan.event, ref, plan.transient, cond, request, tellurics=plan.tellurics)
     fig = exposure_figure(res)
     what = (f"the time for {sigma:g} sigma on the {c.words} trough" if c.time_to_sigma_s else "the usable time")
     return {"title": f"S/N spectrum, {setup_id}",
-            "path": _save(fig, folder, "snr-" + _file_part(setup_id), tight=True),
+            "path": _save(fig, folder, "snr-" + _file_part(setup_id)),
             "caption": f"Continuum S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s "
                        f"({what}) on day {p.phase_d:.2f}, night of {p.record.night.isoformat()} at airmass "
-                       f"{forecast_airmass(w):.2f}: the last night this setup is chosen."}
+                       f"{forecast_airmass(w):.2f}: {why}."}
 
 
 def _file_part(text: str) -> str:
@@ -319,8 +374,17 @@ FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": sp
 
 
 def snr_campaign_figure(plan):
-    """Significance of the best-measured diagnostic trough in the usable window vs epoch, one line per setup."""
+    """Significance of the best-measured diagnostic trough in the usable window vs epoch, one line per setup.
+
+    All lines are one collection and the chosen nights one scatter layer; fixed layout, plain-number
+    log ticks (no mathtext), so the figure draws once when saved.
+    """
     import matplotlib.pyplot as plt
+    from matplotlib.collections import LineCollection
+    from matplotlib.lines import Line2D
+    from matplotlib.ticker import FuncFormatter, NullLocator
+
+    from kncast.planner.figures.text import plain
 
     fig, ax = plt.subplots(figsize=(9, 4.6))
     fig.subplots_adjust(left=0.09, right=0.98, bottom=0.12, top=0.92)
@@ -331,20 +395,30 @@ def snr_campaign_figure(plan):
             if o.significance is not None:
                 series.setdefault(o.setup, []).append((p.phase_d, max(o.significance, 1e-2), o is p.choice))
     colours = plt.cm.tab20(np.linspace(0, 1, max(len(series), 2)))
+    lines, dots, dot_colours, handles = [], [], [], []
     for (sid, pts), colour in zip(sorted(series.items()), colours):
         pts.sort()
         x, y, chosen = (np.array(v) for v in zip(*pts))
-        ax.plot(x, y, "-", color=colour, lw=1.1, alpha=0.85, label=sid)
-        ax.plot(x[chosen.astype(bool)], y[chosen.astype(bool)], "o", color=colour, ms=5, mec="black", mew=0.6)
+        lines.append(np.column_stack([x, y]))
+        chosen = chosen.astype(bool)
+        dots += list(zip(x[chosen], y[chosen]))
+        dot_colours += [colour] * int(chosen.sum())
+        handles.append(Line2D([], [], color=colour, lw=1.1, alpha=0.85, label=plain(sid)))
+    ax.add_collection(LineCollection(lines, colors=colours[:len(lines)], linewidths=1.1, alpha=0.85))
+    if dots:
+        ax.scatter(*np.array(dots).T, s=25, c=dot_colours, edgecolors="black", linewidths=0.6, zorder=3)
     ax.axhline(target, color="0.2", ls="--", lw=1)
     ax.set_yscale("log")
+    ax.autoscale_view()
+    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    ax.yaxis.set_minor_locator(NullLocator())
     ax.set_xlabel("days since t0")
     ax.set_ylabel("significance of the best trough (sigma)")
     ax.set_title("Detection significance per setup in the usable time (circled: the setup chosen that night)",
-                 fontsize=10)
-    ax.grid(alpha=0.3, which="both")
+                 fontsize=10, y=1.01)
+    ax.grid(alpha=0.3)
     if series:
-        ax.legend(fontsize=6.5, ncol=2, loc="upper right", frameon=False)
+        ax.legend(handles=handles, fontsize=6.5, ncol=2, loc="upper right", frameon=False)
     return fig
 
 

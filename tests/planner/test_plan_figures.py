@@ -1,0 +1,83 @@
+"""Which figures a plan folder gets, and when the figure workers are used.
+
+* ``--figures chosen`` (default): S/N spectra for the most often chosen setups only (at most
+  MAX_SNR_FIGURES); ``--figures all``: one for every setup with a measured epoch.
+* The worker pool is used only when two workers finish sooner than one by more than the pool's
+  own cost (longest-job-first schedule of the estimated drawing times).
+"""
+from __future__ import annotations
+
+import json
+
+import pytest
+
+from kncast.planner.plan import folder
+
+
+@pytest.fixture(scope="module")
+def demo_plan():
+    from kncast.planner.commands.demo import demo_event_path
+    from kncast.planner.events.eventfile import load_event
+    from kncast.planner.plan.core import build_plan
+    from kncast.planner.sites import SiteRegistry
+
+    registry = SiteRegistry.load()
+    return build_plan(load_event(demo_event_path()), registry.select(None), nights=4, registry=registry)
+
+
+def test_default_snr_figures_are_the_most_often_chosen_setups(demo_plan):
+    chosen = [p.choice.setup for p in demo_plan.useful()]
+    setups = folder.snr_figure_setups(demo_plan)
+    assert 0 < len(setups) <= folder.MAX_SNR_FIGURES
+    assert set(setups) <= set(chosen)
+    counts = [chosen.count(s) for s in setups]
+    assert counts == sorted(counts, reverse=True)
+    assert min(counts) >= max((chosen.count(s) for s in set(chosen) - set(setups)), default=0)
+
+
+def test_all_snr_figures_cover_every_setup_with_a_measured_epoch(demo_plan):
+    measured = {o.setup for p in demo_plan.nights for o in p.outcomes if o.significance is not None}
+    setups = folder.snr_figure_setups(demo_plan, "all")
+    assert set(setups) == measured | {p.choice.setup for p in demo_plan.useful()}
+    assert len(setups) > folder.MAX_SNR_FIGURES
+    for sid in setups:  # a never-chosen setup is shown on its most significant night
+        night, outcome, _why = folder.snr_epoch(demo_plan, sid)
+        assert outcome.setup == sid and night.window is not None
+        if sid not in {p.choice.setup for p in demo_plan.useful()}:
+            best = max(o.significance for p in demo_plan.nights for o in p.outcomes
+                       if o.setup == sid and o.significance is not None)
+            assert outcome.significance == best
+    with pytest.raises(ValueError, match="chosen, all"):
+        folder.snr_figure_setups(demo_plan, "some")
+
+
+def test_figure_jobs_follow_the_figure_set(demo_plan):
+    kinds = lambda which: [j[1] for j in folder.figure_jobs(demo_plan, which) if j[0] == "snr"]  # noqa: E731
+    assert kinds("chosen") == folder.snr_figure_setups(demo_plan)
+    assert kinds("all") == folder.snr_figure_setups(demo_plan, "all")
+    assert all(cost > 0 for *_, cost in folder.figure_jobs(demo_plan))
+
+
+@pytest.mark.parametrize("costs,workers,expected", [
+    ([], 2, False),                      # nothing to draw
+    ([0.3], 2, False),                   # one figure: a second worker cannot help
+    ([0.2, 0.2, 0.2], 1, False),         # one core
+    ([0.01, 0.01], 2, False),            # saving 0.01 s is less than the pool costs
+    ([0.25] * 10 + [0.15, 0.2], 2, True),  # the demo's figure set: about half the time saved
+])
+def test_pool_only_when_it_pays(costs, workers, expected):
+    assert folder.use_pool(costs, workers) is expected
+
+
+def test_plan_command_draws_every_setup_with_figures_all(tmp_path, run_cli, demo_event_path):
+    out = tmp_path / "plan"
+    status, _, err = run_cli("plan", "--event", demo_event_path, "--sites", "paranal", "--nights", "2",
+                             "--figures", "all", "--out", out)
+    assert status == 0, err
+    doc = json.loads((out / "plan.json").read_text())
+    snr = sorted(f for f in doc["files"]["figures"] if f.startswith("figures/snr-") and f != "figures/snr-campaign.png")
+    measured = {s["setup"] for n in doc["nights"] for s in n["setups"] if s["significance"] is not None}
+    assert len(snr) == len(measured) > 1
+    assert all((out / f).stat().st_size > 0 for f in snr)
+    status, _, err = run_cli("plan", "--event", demo_event_path, "--figures", "every", "--out", tmp_path / "x")
+    assert status == 2 and "--figures" in err and not (tmp_path / "x").exists()
