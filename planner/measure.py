@@ -53,13 +53,21 @@ class Measurements:
     telluric_loss_emission: np.ndarray   # fraction of the emission peak in opaque bands (on the detector)
     below_cutoff: np.ndarray             # (n_rows, n_features) bool
     settings: dict = field(default_factory=dict)
+    # with ``flux_scale``: per draw (n_draws, n_rows, n_features, n_cols)
+    draw_significance: np.ndarray | None = None
+    draw_snr_bin: np.ndarray | None = None
+    draw_time_to_sigma_s: np.ndarray | None = None
 
 
 def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s, tellurics, atmosphere,
             sigma=DEFAULT_SIGMA, bin_kms=DEFAULT_BIN_KMS, max_exposure_s=DEFAULT_MAX_EXPOSURE_S,
-            telluric_threshold=CORRECTABLE_TRANSMISSION) -> Measurements:
+            telluric_threshold=CORRECTABLE_TRANSMISSION, flux_scale=None) -> Measurements:
     """Per-feature measurements of forecast epochs ``rows`` in setups ``cols`` (indices into ``refs``,
     the forecast's setup order), all under one ``atmosphere``.
+
+    ``flux_scale`` (n_draws,): the source flux multiplied by each factor (e.g. (D / D_draw)^2 for distance
+    draws), evaluated in one broadcast call; the per-draw significance, S/N per bin and time to sigma
+    are returned in ``draw_*`` (the sky, background and detector terms do not change).
 
     ``conditions``: kncast.forecast.exposure.Conditions whose arrays have one value per row (or scalars);
     ``airmass``, ``pwv_mm``, ``time_s`` (total on the target, s): scalars or arrays (n_rows,).
@@ -100,6 +108,16 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
                  np.moveaxis(usable, -1, 0).reshape(n_cols, -1), sigma=sigma, bin_kms=bin_kms,
                  max_exposure_s=max_exposure_s)
     back = lambda a: np.moveaxis(np.asarray(a).reshape(n_cols, n_rows, n_feat), 0, -1)  # noqa: E731
+    draws = {}
+    if flux_scale is not None:
+        scale = np.asarray(flux_scale, dtype=float)
+        r_d = _scaled(r, scale)
+        d = detect(r_d, ex.expose(r_d, t_flat, nexp), depth.ravel()[None, :], lo.ravel()[None, :],
+                   hi.ravel()[None, :], np.moveaxis(usable, -1, 0).reshape(n_cols, -1), sigma=sigma,
+                   bin_kms=bin_kms, max_exposure_s=max_exposure_s)
+        per_draw = lambda a: np.moveaxis(np.asarray(a).reshape(scale.size, n_cols, n_rows, n_feat), 1, -1)  # noqa: E731
+        draws = {"draw_significance": per_draw(d.significance), "draw_snr_bin": per_draw(d.snr_bin),
+                 "draw_time_to_sigma_s": per_draw(d.time_to_sigma_s)}
     arms = np.stack([_take(_arm_names(g).reshape(-1, k), pick[j]) for j, g in enumerate(grids)])
     arms = np.where(r.on_detector, arms, "")
     return Measurements(
@@ -109,7 +127,25 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
         nexp_to_sigma=back(det.nexp_to_sigma), usable_trough=usable,
         telluric_loss_trough=losses["opaque_trough"], telluric_correctable_trough=losses["correctable_trough"],
         telluric_loss_emission=losses["opaque_emission"], below_cutoff=cutoff,
-        settings={"sigma": float(sigma), "bin_kms": float(bin_kms)})
+        settings={"sigma": float(sigma), "bin_kms": float(bin_kms)}, **draws)
+
+
+def _scaled(r, scale):
+    """Rates with the source (and the brightest pixel's source part) multiplied by each of ``scale``
+    (n_draws,): arrays gain a leading draws axis."""
+    import dataclasses
+
+    s = scale.reshape((-1,) + (1,) * r.source_e_per_s.ndim)
+    src = r.source_e_per_s[None] * s
+    return dataclasses.replace(r, source_e_per_s=src,
+                               peak_e_per_s_pix=r.peak_e_per_s_pix[None] + (s - 1.0) * _source_peak(r)[None],
+                               wavelength_A=np.broadcast_to(r.wavelength_A, src.shape),
+                               on_detector=np.broadcast_to(r.on_detector, src.shape))
+
+
+def _source_peak(r):
+    """The source's share of the brightest pixel's rate (peak minus sky and dark)."""
+    return np.clip(r.peak_e_per_s_pix - r.sky_e_per_s_pix - r.dark_e_per_s_pix, 0.0, None)
 
 
 def _take(a, pick):
@@ -135,11 +171,24 @@ def trough_window(windows, rows):
     return lo, np.maximum(windows.trough_A[rows], lo + 1e-3)
 
 
+TROUGH_BLOCK_ROWS = 32  # rows per model call in _trough_flux: memory ~ block x rows, not rows^2
+
+
 def _trough_flux(transient, phase_d, lam):
-    """Observed continuum F_lambda at each row's own troughs (rows x features), one model call."""
+    """Observed continuum F_lambda at each row's own troughs (rows x features).
+
+    One model call per block of rows, each block's rows at the block's troughs (the diagonal kept):
+    time and memory grow linearly with the rows (epochs), not with their square.
+    """
     n, nf = lam.shape
-    every = transient.flux_flam(np.asarray(phase_d, float), lam.ravel()).reshape(n, n, nf)
-    return every[np.arange(n), np.arange(n)]
+    phase_d = np.asarray(phase_d, float)
+    out = np.empty((n, nf))
+    for lo in range(0, n, TROUGH_BLOCK_ROWS):
+        hi = min(lo + TROUGH_BLOCK_ROWS, n)
+        m = hi - lo
+        every = transient.flux_flam(phase_d[lo:hi], lam[lo:hi].ravel()).reshape(m, m, nf)
+        out[lo:hi] = every[np.arange(m), np.arange(m)]
+    return out
 
 
 def _flat_conditions(cond, n_rows: int, n_feat: int):

@@ -2,7 +2,7 @@
 from __future__ import annotations
 
 from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
-                                      event_from_args, finite_float, parse_phases, split_list)
+                                      event_from_args, finite_float, parse_phases, positive_int, split_list)
 from kncast.forecast.defaults import DEFAULT_BANDS
 from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 
@@ -22,6 +22,13 @@ def add_arguments(p) -> None:
                    help=f"observer-frame days since t0 (default {DEFAULT_PHASES})")
     p.add_argument("--bands", action="append", metavar="BAND,...",
                    help="speclite band names, comma separated (default: Bessell UBVRI and 2MASS JHKs)")
+    from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+
+    p.add_argument("--draws", type=positive_int("--draws", high=5000), default=DEFAULT_DRAWS, metavar="N",
+                   help="realisations of the distance (distance_err_mpc) and of the [model] ranges for the 16-84%% "
+                        f"magnitude ranges (default {DEFAULT_DRAWS})")
+    p.add_argument("--seed", type=positive_int("--seed", high=2**31 - 1), default=DEFAULT_SEED, metavar="S",
+                   help=f"seed of the draws (default {DEFAULT_SEED})")
     add_output_options(p)
 
 
@@ -38,7 +45,7 @@ def bands_from_args(args) -> tuple[str, ...]:
 
 
 def compute(args):
-    """(event, transient, state, bands, AB mags, Vega mags) for the parsed options."""
+    """(event, transient, state, bands, AB mags, Vega mags, AB-magnitude percentiles over the draws or None)."""
     import dataclasses
 
     from kncast.forecast.photometry import vega_zero_points
@@ -53,12 +60,20 @@ def compute(args):
     transient = transient_for_event(event, overrides=overrides_from_args(args))
     state = transient.state(phases)
     mags = transient.mag_ab(phases, bands)
+    if args.draws:
+        from kncast.planner.plan.ensemble import magnitude_draws, percentiles
+
+        draws = magnitude_draws(event, transient, phases, bands, args.draws, args.seed,
+                                model_overridden=bool(overrides_from_args(args)))
+        ranges = {b: [percentiles(draws[b][:, i]) for i in range(len(phases))] for b in bands}
+    else:
+        ranges = None
     vega_bands = [b for b in bands if b in vega_zero_points()]
     vega = transient.mag_vega(phases, vega_bands) if vega_bands else {}
-    return event, transient, state, bands, mags, vega
+    return event, transient, state, bands, mags, vega, ranges
 
 
-def document_for(event, transient, state, bands, mags, vega) -> dict:
+def document_for(event, transient, state, bands, mags, vega, ranges=None, draws: int = 0) -> dict:
     """The ``lightcurve`` JSON document (schema in docs/json.md, section "lightcurve")."""
     from kncast.planner.output import document
 
@@ -71,6 +86,7 @@ def document_for(event, transient, state, bands, mags, vega) -> dict:
             "luminosity_erg_s": float(state.luminosity_erg_s[i]), "v_phot_c": float(state.v_phot_c[i]),
             "v_max_c": float(state.v_max_c[i]),
             "mag_ab": {b: float(mags[b][i]) for b in bands},
+            **({"mag_ab_range": {b: ranges[b][i] for b in bands}} if ranges else {}),
             "mag_vega": {b: float(m[i]) for b, m in vega.items()},
         }
         if multi:
@@ -89,12 +105,12 @@ def document_for(event, transient, state, bands, mags, vega) -> dict:
         source={"distance_mpc": transient.distance_mpc, "redshift": transient.redshift,
                 "ebv_mw": transient.ebv_mw, "ebv_host": transient.ebv_host, "cosmology": "Planck18",
                 "extinction_law": "Fitzpatrick 1999, R_V = 3.1"},
-        bands=list(bands), epochs=epochs, caution=CAUTION)
+        bands=list(bands), epochs=epochs, draws=draws, caution=CAUTION)
 
 
 def run(args) -> int:
-    event, transient, state, bands, mags, vega = compute(args)
-    doc = document_for(event, transient, state, bands, mags, vega)
+    event, transient, state, bands, mags, vega, ranges = compute(args)
+    doc = document_for(event, transient, state, bands, mags, vega, ranges, draws=args.draws if ranges else 0)
     if args.plot:
         from kncast.planner.figures.lightcurve import lightcurve_figure
         from kncast.planner.output import save_figure

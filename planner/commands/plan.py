@@ -26,6 +26,13 @@ def add_arguments(p) -> None:
     g.add_argument("--anchor", action="append", metavar="BAND=MAG@UTC",
                    help="measured AB magnitude to rescale the photosphere model to before planning (repeatable; "
                         "band names as kncast lightcurve lists them), e.g. bessell-R=20.8@2027-03-15T01:10:00Z")
+    from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+
+    g.add_argument("--draws", type=_common.positive_int("--draws", high=5000), default=DEFAULT_DRAWS, metavar="N",
+                   help="realisations of the distance (distance_err_mpc) and of the [model] ranges for the "
+                        f"16-84%% ranges and how often a night is useful (default {DEFAULT_DRAWS})")
+    g.add_argument("--seed", type=_common.positive_int("--seed", high=2**31 - 1), default=DEFAULT_SEED, metavar="S",
+                   help=f"seed of the draws (default {DEFAULT_SEED}: the same numbers every run)")
     g.add_argument("--setups", action="append", metavar="ID,...",
                    help="only these setups (SITE/TELESCOPE/INSTRUMENT[:SETUP], as kncast setups lists them)")
     from kncast.forecast.defaults import DEFAULT_BIN_KMS, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA
@@ -103,7 +110,7 @@ def run(args) -> int:
                           overrides=overrides, progress=say, sigma=args.sigma, bin_kms=args.bin_kms,
                           features=feature_ids(args), snr_at_A=args.snr_at,
                           telluric_threshold=args.telluric_threshold, setups=_common.split_list(args.setups) or None,
-                          anchors=anchors_from_args(args, event), **rules)
+                          anchors=anchors_from_args(args, event), draws=args.draws, seed=args.seed, **rules)
         doc = write_folder(plan, out, say, figures=args.figures)
     if args.ics:
         from kncast.planner.output import atomic_path
@@ -279,16 +286,19 @@ def blocks_table(plan, blocks: list):
     t = Table(title=f"Planned spectra of {plan.event.id}: S/N per {plan.settings['bin_kms']:g} km/s bin at the "
                     f"trough for that exposure; detected at >= {sigma:g} sigma", title_justify="left",
               box=box.SIMPLE_HEAD, pad_edge=False)
-    for col, kw in (("day", {"justify": "right"}), ("setup", {"min_width": 12}), ("UTC", {"min_width": 11}),
+    longest = max((len(w) for b in blocks for w in b["setup"].replace("/", " ").split()), default=8)
+    for col, kw in (("day", {"justify": "right"}), ("setup", {"min_width": longest}), ("UTC", {"min_width": 11}),
                     ("X", {"justify": "right"}), ("N x t", {}), ("S/N", {"justify": "right"}),
-                    ("detected", {"ratio": 1, "min_width": 12})):
+                    ("detected", {"ratio": 1, "min_width": 14})):
         t.add_column(col, overflow="fold", **kw)
     for b in blocks:
         x = b["airmass"][1]
         found = [names.get(f, f) for f in b["detected"]]
         what = (found[0] + (f" +{len(found) - 1}" if len(found) > 1 else "")) if found else b["kind"]
+        rng = b.get("exposure_range_s")
+        span = f"\n({rng['p16']:.0f}-{rng['p84']:.0f})" if rng else ""
         t.add_row(f"{b['phase_d']:.2f}", b["setup"].replace("/", " "), _block_utc(b),
-                  "-" if x is None else f"{x:.2f}", f"{b['n_exp']}x{b['exp_s']:.0f}s",
+                  "-" if x is None else f"{x:.2f}", f"{b['n_exp']}x{b['exp_s']:.0f}s{span}",
                   "-" if b["snr"] is None else f"{b['snr']:.1f}", what)
     return t
 

@@ -199,6 +199,14 @@ def _round(v, nd):
     return None if v is None or not np.isfinite(v) else round(float(v), nd)
 
 
+def _exposure_range(p, b: Block) -> dict | None:
+    """16/50/84 percentiles over the ensemble of the time reaching the target significance (detections)."""
+    ens = getattr(p, "ensemble", None)
+    if b.kind != "detection" or not ens or not ens.get("time_to_sigma_s"):
+        return None
+    return {k: round(v, 1) for k, v in ens["time_to_sigma_s"].items()}
+
+
 def block_record(plan, b: Block) -> dict:
     """The plan.json record of one block (keys in docs/json.md, section "blocks")."""
     p, o = b.night, b.outcome
@@ -215,6 +223,7 @@ def block_record(plan, b: Block) -> dict:
         "parallactic_angle_deg": b.parallactic_angle_deg, "adr_arcsec": b.adr_arcsec,
         "adr_guide_arcsec": b.adr_guide_arcsec, "guide_A": GUIDE_A, "slit_advice": b.slit_advice,
         "ra_hms": ra_hms, "dec_dms": dec_dms, "ra_deg": target.ra_deg, "dec_deg": target.dec_deg,
+        "exposure_range_s": _exposure_range(p, b),
         "target": target.id,
         "telluric_standard": {"airmass": b.standard_airmass, "latest_utc": _iso(b.standard_latest_mjd),
                               "within_airmass": STANDARD_DAIRMASS},

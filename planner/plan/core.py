@@ -40,6 +40,7 @@ from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, D
                                       SNR_BASIS)
 from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
 from kncast.planner.observation import batched_conditions, forecast_airmass
+from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
 
 __all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
            "campaign_summary", "MAG_BANDS"]
@@ -106,6 +107,7 @@ class NightPlan:
     choice: SetupOutcome | None = None             # the best of ``choices``
     choices: list = field(default_factory=list)    # the chosen setup of each telescope that is useful, best first
     detected: list = field(default_factory=list)   # feature ids the chosen setup detects
+    ensemble: dict | None = None                   # percentiles over the draws (kncast.planner.plan.ensemble)
     status: str = "no-window"
     reason: str = ""
 
@@ -136,6 +138,7 @@ class Plan:
     atmospheres: dict = field(default_factory=dict)  # site id -> kncast.forecast.extinction_atm.Atmosphere
     candidates: list = field(default_factory=list)  # kncast.planner.visibility.candidates.CandidateNight, when the event lists several
     blocks: list = field(default_factory=list)      # kncast.planner.plan.blocks.Block, one per chosen telescope and night
+    ensemble: dict = field(default_factory=dict)    # draws summary (kncast.planner.plan.ensemble)
 
     def useful(self) -> list[NightPlan]:
         return [n for n in self.nights if n.choice is not None]
@@ -171,7 +174,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                progress=None, sigma: float = DEFAULT_SIGMA, bin_kms: float = DEFAULT_BIN_KMS,
                features=None, min_depth: float = DEFAULT_MIN_DEPTH, snr_at_A: float | None = None,
                telluric_threshold: float = CORRECTABLE_TRANSMISSION, setups=None, min_altitude_deg=None,
-               max_airmass=None, min_moon_sep_deg=None, start_date=None, anchors=None) -> Plan:
+               max_airmass=None, min_moon_sep_deg=None, start_date=None, anchors=None,
+               draws: int = DEFAULT_DRAWS, seed: int | None = DEFAULT_SEED) -> Plan:
     """Plan spectroscopy of ``event`` from ``sites`` over ``nights`` local nights after t0.
 
     A night is useful when a diagnostic feature reaches ``sigma`` (detection significance of its
@@ -183,7 +187,9 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     detected yet.  ``setups`` (ids) restricts the setups; ``min_altitude_deg``, ``max_airmass``,
     ``min_moon_sep_deg`` and ``start_date`` are the night rules of
     :func:`kncast.planner.visibility.core.compute_visibility`.  ``anchors`` ((band, AB mag, phase_d)
-    items) rescale the photosphere model to measured photometry first (:mod:`kncast.forecast.anchor`).  ``max_hours`` caps the time per
+    items) rescale the photosphere model to measured photometry first (:mod:`kncast.forecast.anchor`).
+    ``draws`` realisations of the distance and of the ``[model]`` ranges (:mod:`kncast.planner.plan.ensemble`;
+    0: none) give every night 16/50/84 percentiles and the fraction of draws in which it is useful.  ``max_hours`` caps the time per
     night (h); ``overhead_s`` is the acquisition + readout overhead per night
     (s).  ``registry`` (a SiteRegistry) supplies the setups; by default the
     registry of the given sites.  ``model``/``overrides`` choose the
@@ -225,7 +231,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                 "telluric_threshold": float(telluric_threshold),
                 "night_rules": {k: (str(v) if k == "start_date" and v is not None else v) for k, v in rules.items()},
                 "classification_A": float(snr_at_A) if snr_at_A is not None else CLASSIFICATION_A,
-                "classification_days": CLASSIFICATION_DAYS}
+                "classification_days": CLASSIFICATION_DAYS, "draws": int(draws), "seed": seed,
+                "model_overridden": bool(model or overrides)}
     t0_mjd = float(event.t0.utc.mjd)
     plans = [_night_plan(rec, t0_mjd, max_hours, overhead_s) for rec in vis.nights]
     epochs = [p for p in plans if p.window is not None]
@@ -247,6 +254,9 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     evaluate_setups(plan, epochs, by_site, say)
     for p in plans:
         choose(p, settings, overhead_s)
+    if draws:
+        say("ensemble")
+        _apply_ensemble(plan, epochs, by_site, draws, seed)
     plan.campaign = campaign_summary(plan)
     if event.candidates:
         from kncast.planner.visibility.candidates import rank_candidates
@@ -258,6 +268,20 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
 
     plan.blocks = plan_blocks(plan)
     return plan
+
+
+def _apply_ensemble(plan: Plan, epochs: list, by_site: dict, draws: int, seed) -> None:
+    """Percentiles and the useful fraction of every planned night from ``draws`` realisations of the source."""
+    from kncast.planner.plan.ensemble import run_ensemble
+
+    if not epochs or not any(by_site.values()):
+        return
+    ens = run_ensemble(plan, epochs, by_site, draws, seed, MAG_BANDS, feature_forecast)
+    plan.ensemble = {k: v for k, v in ens.items() if k != "nights"}
+    for p in epochs:
+        p.ensemble = ens["nights"][id(p)]
+        if p.choice is not None:
+            p.reason += f"; useful in {100 * p.ensemble['useful_fraction']:.0f}% of {draws} draws"
 
 
 def restrict_setups(refs: list, setups) -> list:
@@ -369,19 +393,20 @@ def site_conditions(site):
     return atmosphere_for_site(site)
 
 
-def feature_forecast(plan: Plan, epochs: list, refs: list):
-    """The feature forecast at every epoch for every setup (airmass, PWV of each epoch's night)."""
+def feature_forecast(plan: Plan, epochs: list, refs: list, transient=None):
+    """The feature forecast at every epoch for every setup (airmass, PWV of each epoch's night), for the
+    plan's transient or ``transient`` (an ensemble node)."""
     from kncast.forecast.features import forecast_features
     from kncast.forecast.tellurics import TelluricModel
 
     phases = np.array([p.phase_d for p in epochs])
     airmass = np.array([forecast_airmass(p.window) for p in epochs])[:, None, None]
-    atm = {s.id: site_conditions(s) for s in plan.sites}
-    pwv = np.array([atm[p.site.id].pwv_mm for p in epochs])[:, None, None]
-    plan.tellurics = TelluricModel.load()
-    plan.atmospheres = atm
-    return forecast_features(plan.transient, phases, setups=[r.setup for r in refs], tellurics=plan.tellurics,
-                             airmass=airmass, pwv_mm=pwv, setup_ids=[r.id for r in refs])
+    if plan.tellurics is None:
+        plan.tellurics = TelluricModel.load()
+        plan.atmospheres = {s.id: site_conditions(s) for s in plan.sites}
+    pwv = np.array([plan.atmospheres[p.site.id].pwv_mm for p in epochs])[:, None, None]
+    return forecast_features(transient or plan.transient, phases, setups=[r.setup for r in refs],
+                             tellurics=plan.tellurics, airmass=airmass, pwv_mm=pwv, setup_ids=[r.id for r in refs])
 
 
 def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> SetupOutcome:
@@ -656,6 +681,7 @@ def night_summary(p: NightPlan, sigma: float) -> dict:
         "exposure_s": _r(c.exposure_s, 1), "n_detected": len(c.detected), "n_targets": len(c.targets),
         "detected": list(c.detected), "telescope": c.telescope,
         "kind": "detection" if c.detected else "classification", "snr_at": _r(c.snr_at, 3)}
+    doc["ensemble"] = p.ensemble
     doc["choices"] = [{"telescope": o.telescope, "setup": o.setup, "score": _r(o.score, 3),
                        "feature": o.feature, "significance": _r(o.significance, 3), "detected": list(o.detected),
                        "kind": "detection" if o.detected else "classification"} for o in p.choices]
@@ -683,4 +709,4 @@ def plan_document(plan: Plan, files: dict | None = None, references=None, assump
                     model=plan.model, sites=sites, nights=[night_summary(p, plan.settings["sigma"]) for p in plan.nights],
                     campaign=plan.campaign, candidates=[c.summary() for c in plan.candidates], files=files or {}, assumptions=list(assumptions or []),
                     references=list(references or []), cautions=list(CAUTIONS),
-                    blocks=[block_record(plan, b) for b in plan.blocks])
+                    blocks=[block_record(plan, b) for b in plan.blocks], ensemble=plan.ensemble or None)

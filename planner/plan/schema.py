@@ -90,6 +90,7 @@ BLOCK = _obj({
     "adr_guide_arcsec": _num_or_null, "guide_A": _num, "slit_advice": {"type": "string"},
     "ra_hms": {"type": "string"}, "dec_dms": {"type": "string"}, "ra_deg": _num, "dec_deg": _num,
     "target": {"type": "string"},
+    "exposure_range_s": {"anyOf": [{"type": "null"}, _obj({"p16": _num, "p50": _num, "p84": _num})]},
     "telluric_standard": _obj({"airmass": _num_or_null, "latest_utc": _utc_or_null, "within_airmass": _num}),
 })
 
@@ -101,6 +102,7 @@ NIGHT = _obj({
     "reason": {"type": "string", "minLength": 1}, "epoch": {"anyOf": [EPOCH, {"type": "null"}]},
     "setups": {"type": "array", "items": SETUP_OUTCOME}, "choice": {"anyOf": [CHOICE, {"type": "null"}]},
     "detected": _strings, "reference": REFERENCE, "choices": {"type": "array", "items": TELESCOPE_CHOICE},
+    "ensemble": {"anyOf": [{"type": "null"}, {"type": "object"}]},
 }, {"dark_hours": _num})
 
 POINT = {"anyOf": [{"type": "null"}, _obj({"site": {"type": "string"}, "night": _date, "phase_d": _num,
@@ -134,6 +136,8 @@ PLAN_SCHEMA = {
             "bin_kms": {"type": "number", "exclusiveMinimum": 0}, "min_depth": _num,
             "features": {"anyOf": [_strings, {"type": "null"}]}, "snr_at_A": _num_or_null,
             "telluric_threshold": _fraction, "night_rules": {"type": "object"}, "classification_A": _num,
+            "draws": {"type": "integer", "minimum": 1}, "seed": {"type": ["integer", "null"]},
+            "model_overridden": {"type": "boolean"},
             "classification_days": _num,
 "setups": _strings, "target": {"type": "string"},
             "score": {"type": "string"}}, {"mag_bands": _strings}),
@@ -160,6 +164,6 @@ PLAN_SCHEMA = {
                                                        "reference": {"type": "string"}})},
         "cautions": {**_strings, "minItems": 3},
         "blocks": {"type": "array", "items": BLOCK},
-    }, {"changes": _obj({"summary": {"type": "string"}, "gained": {"type": "array"}, "lost": {"type": "array"},
+    }, {"ensemble": {"anyOf": [{"type": "null"}, {"type": "object"}]}, "changes": _obj({"summary": {"type": "string"}, "gained": {"type": "array"}, "lost": {"type": "array"},
                          "setup_changed": {"type": "array"}, "exposure_changed": {"type": "array"}})}),
 }
