@@ -18,7 +18,6 @@ from dataclasses import dataclass
 
 import astropy.units as u
 import numpy as np
-from astropy.cosmology import Planck18
 
 from kncast.forecast.blackbody import C_CGS, SIGMA_SB_CGS, planck_sum_flam
 from kncast.forecast.distance import (DISTANCE_RANGE_MPC, MPC_CM, REDSHIFT_RANGE, distance_for_redshift,
@@ -65,13 +64,13 @@ class Transient:
     """A photosphere model placed at a distance, redshifted and reddened.
 
     Give ``distance_mpc`` (luminosity distance) or ``redshift`` (or both,
-    used as given); the other follows from ``cosmology`` (Planck18 by
-    default).  ``ebv_mw``/``ebv_host`` are colour excesses E(B-V) in mag.
+    used as given); the other follows from ``cosmology`` (None: Planck18,
+    by :mod:`kncast.forecast.distance`; else an astropy ``Cosmology``).  ``ebv_mw``/``ebv_host`` are colour excesses E(B-V) in mag.
     From Python, give the distance as a Quantity with ``distance=`` (e.g. ``40 * u.Mpc``).
     """
 
     def __init__(self, photosphere, distance_mpc=None, redshift=None, ebv_mw=0.0, ebv_host=0.0,
-                 cosmology=Planck18, *, distance=None):
+                 cosmology=None, *, distance=None):
         if distance is not None:
             if distance_mpc is not None:
                 raise ForecastInputError("distance and distance_mpc: give one of them, not both")
