@@ -133,10 +133,16 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
 def _scaled(r, scale):
     """Rates with the source (and the brightest pixel's source part) multiplied by each of ``scale``
     (n_draws,): arrays gain a leading draws axis."""
+    return scaled_rates(r, np.asarray(scale, dtype=float).reshape((-1,) + (1,) * np.ndim(r.source_e_per_s)))
+
+
+def scaled_rates(r, scale):
+    """Rates (kncast.forecast.exposure.Rates) with the source multiplied by ``scale``, an array whose shape
+    broadcasts as (n_draws, *rates shape) (a leading draws axis); sky, dark and read noise unchanged."""
     import dataclasses
 
-    s = scale.reshape((-1,) + (1,) * r.source_e_per_s.ndim)
-    src = r.source_e_per_s[None] * s
+    s = np.asarray(scale, dtype=float)
+    src = r.source_e_per_s[None] * s if s.ndim > np.ndim(r.source_e_per_s) else r.source_e_per_s * s
     return dataclasses.replace(r, source_e_per_s=src,
                                peak_e_per_s_pix=r.peak_e_per_s_pix[None] + (s - 1.0) * _source_peak(r)[None],
                                wavelength_A=np.broadcast_to(r.wavelength_A, src.shape),

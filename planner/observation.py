@@ -50,6 +50,9 @@ class Request:
     ideal: bool = False
     profile: str = "moffat"
     samples: int = DEFAULT_SAMPLES
+    draws: int = 0                      # realisations of the source for 16/50/84 percentiles (0: none)
+    seed: int | None = 1
+    model_overridden: bool = False      # model options replaced the event's [model]: its ranges are not drawn
 
 
 @dataclass(frozen=True)
@@ -258,12 +261,41 @@ def observe(event, ref, transient, cond: dict, request: Request, sky_file=None, 
     if target:
         target["snr_check"] = _snr(res_pts, points.size - 1)
         target["systematics_limited"] = bool(res_pts.systematics_limited[-1])
-    return {"event": event, "ref": ref, "phase_d": request.phase_d, "conditions": cond, "ideal": request.ideal,
+    ranges = _draw_ranges(event, transient, request, points, r_pts, time_s, nexp, target, nf) if request.draws else None
+    if ranges:
+        for i, f in enumerate(feats):
+            f["snr_per_resel_range"] = ranges["points"][i]
+    return {"ranges": ranges, "event": event, "ref": ref, "phase_d": request.phase_d, "conditions": cond, "ideal": request.ideal,
             "time_s": time_s, "nexp": nexp, "max_exposure_s": request.max_exposure_s, "grid": grid, "rates": r,
             "result": res, "features": feats, "reference": refs, "target": target,
             "warnings": _warnings(res, target, time_s, nexp, feats), "profile": request.profile,
             "tellurics": tellurics, "sky": "user file " + sky_file.source if sky_file else
             ("none (ideal)" if request.ideal else DARK_SKY_MODEL)}
+
+
+def _draw_ranges(event, transient, request: Request, points, r_pts, time_s, nexp, target, n_feats) -> dict:
+    """16/50/84 percentiles over the draws of the source (kncast.planner.plan.ensemble) of the S/N at the sample
+    points and of the time for the target: the rates at the points scaled per draw, one call per model node."""
+    from kncast.forecast import exposure as ex
+    from kncast.planner.measure import scaled_rates
+    from kncast.planner.plan.ensemble import percentiles, source_draws
+
+    distances, nodes, node_of, _ranges = source_draws(event, transient, request.draws, request.seed,
+                                                      request.model_overridden)
+    snr = np.full((request.draws, points.size), np.nan)
+    need = np.full(request.draws, np.nan)
+    base = transient.flux_flam(np.array([request.phase_d]), points)[0]
+    for j, node in enumerate(nodes):  # at most MAX_NODES parameter sets; the draws are an array axis
+        mine = np.flatnonzero(node_of == j)
+        shape = node.flux_flam(np.array([request.phase_d]), points)[0] / np.where(base > 0, base, 1.0)
+        scale = (transient.distance_mpc / distances[mine])[:, None] ** 2 * shape[None, :]
+        r_d = scaled_rates(r_pts, scale)
+        snr[mine] = np.where(r_pts.on_detector, ex.expose(r_d, time_s, nexp).snr_per_resel, np.nan)
+        if target:
+            t, _n = ex.time_for_snr(r_d, target["snr_per_resel"], request.max_exposure_s)
+            need[mine] = np.where(np.isfinite(t[:, -1]), t[:, -1], np.nan)
+    return {"points": [percentiles(snr[:, i]) for i in range(points.size)],
+            "time_for_target_s": percentiles(need) if target else None, "draws": request.draws}
 
 
 def _exposure_plan(request: Request, feats: list, ref, rates_on):

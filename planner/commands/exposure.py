@@ -63,6 +63,13 @@ def add_arguments(p) -> None:
     c.add_argument("--profile", choices=("moffat", "gaussian"), default="moffat",
                    help="seeing profile for the slit losses (default moffat)")
     add_output_options(p)
+    from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+
+    p.add_argument("--draws", type=positive_int("--draws", high=5000), default=DEFAULT_DRAWS, metavar="N",
+                   help="realisations of the distance (distance_err_mpc) and of the [model] ranges for the 16-84%% "
+                        f"ranges of the S/N and of the time for --snr (default {DEFAULT_DRAWS})")
+    p.add_argument("--seed", type=positive_int("--seed", high=2**31 - 1), default=DEFAULT_SEED, metavar="S",
+                   help=f"seed of the draws (default {DEFAULT_SEED})")
     p.add_argument("--samples", type=positive_int("--samples", high=100_000), default=DEFAULT_SAMPLES, metavar="N",
                    help=f"wavelength samples across the arms in --json and --plot (default {DEFAULT_SAMPLES})")
 
@@ -110,7 +117,8 @@ def request_from_args(args):
 
     request = Request(phase_d=args.phase, time_s=args.time, nexp=args.nexp, snr_target=args.snr, at=args.at,
                       max_exposure_s=args.max_exposure, ideal=args.ideal, profile=args.profile,
-                      samples=args.samples)
+                      samples=args.samples, draws=args.draws, seed=args.seed,
+                      model_overridden=bool(overrides_from_args(args)))
     given = Given(airmass=args.airmass, seeing_arcsec=args.seeing, moon_illumination=args.moon_illumination,
                   moon_sep_deg=args.moon_sep, moon_altitude_deg=args.moon_alt, pwv_mm=args.pwv)
     return request, given
@@ -176,12 +184,16 @@ def exposure_document(res: dict) -> dict:
         exposure={"time_s": round(res["time_s"], 3), "nexp": res["nexp"],
                   "single_exposure_s": round(res["time_s"] / res["nexp"], 3), "max_exposure_s": res["max_exposure_s"]},
         samples=samples,
-        features=[{k: f[k] for k in ("feature", "species", "tau_sobolev", "trough_obs_A", "snr_per_resel",
-                                     "emission_peak_obs_A", "snr_per_resel_emission")} for f in res["features"]],
+        features=[{**{k: f[k] for k in ("feature", "species", "tau_sobolev", "trough_obs_A", "snr_per_resel",
+                                        "emission_peak_obs_A", "snr_per_resel_emission")},
+                   "snr_per_resel_range": f.get("snr_per_resel_range")} for f in res["features"]],
         reference=res["reference"],
     )
+    ranges = res.get("ranges")
+    doc["draws"] = ranges["draws"] if ranges else 0
     if res["target"] is not None:
         doc["time_for_target_s"] = round(res["time_s"], 3)
+        doc["time_for_target_range_s"] = ranges["time_for_target_s"] if ranges else None
         doc["target"] = {k: res["target"][k] for k in ("snr_per_resel", "at", "wavelength_A")}
     doc["warnings"] = res["warnings"]
     doc["caution"] = CAUTION
@@ -212,8 +224,12 @@ def print_tables(res: dict) -> None:
     if res["target"] is not None:
         t = res["target"]
         where = t["at"] if t["at"].endswith(" A") else f"{t['at']} ({t['wavelength_A']:.0f} A)"
+        ranges = res.get("ranges") or {}
+        span = ranges.get("time_for_target_s")
+        spread = (f" (16-84% over {ranges['draws']} draws of the source: {span['p16']:.0f}-{span['p84']:.0f} s)"
+                  if span else "")
         out.print(f"[bold]time for S/N {t['snr_per_resel']:g} per resolution element at {escape(where)}: "
-                  f"{res['time_s']:.0f} s = {res['nexp']} x {single:.0f} s[/bold]")
+                  f"{res['time_s']:.0f} s = {res['nexp']} x {single:.0f} s[/bold]{spread}")
     else:
         out.print(f"exposure: {res['nexp']} x {single:.0f} s = {res['time_s']:.0f} s")
     if res["features"]:
