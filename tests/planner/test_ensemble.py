@@ -94,3 +94,22 @@ def test_plan_nights_carry_percentiles_and_the_useful_fraction(south):
 def test_zero_draws_is_refused(run_cli, tmp_path):
     status, _, err = run_cli("plan", "--event", SOUTH, "--nights", "1", "--draws", "0", "--out", tmp_path / "p")
     assert status == 2 and "--draws" in err and not (tmp_path / "p").exists()
+
+
+def test_exposure_ranges_bracket_the_central_time(run_cli, tmp_path):
+    import json
+
+    from kncast.planner.setups import all_setups
+    from kncast.planner.sites import SiteRegistry
+
+    setup = next(r.id for r in all_setups(SiteRegistry.load([])) if r.id.startswith("paranal/"))
+    out = tmp_path / "e.json"
+    status, _, err = run_cli("exposure", "--event", SOUTH, "--setup", setup, "--phase", "2", "--snr", "10",
+                             "--at", "8000", "--airmass", "1.2", "--moon-illumination", "0", "--moon-sep", "90",
+                             "--draws", "100", "--json", out)
+    assert status == 0, err
+    doc = json.loads(out.read_text())
+    r = doc["time_for_target_range_s"]
+    assert doc["draws"] == 100 and r["p16"] <= r["p50"] <= r["p84"]
+    # a farther draw needs more time, a nearer one less: the central distance's time lies inside the range
+    assert r["p16"] < doc["time_for_target_s"] < r["p84"]
