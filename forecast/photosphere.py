@@ -197,13 +197,14 @@ class EjectaComponent:
         return {"name": self.name, **{key: getattr(self, key) for key, *_ in COMPONENT_RANGES}}
 
 
-# Typical values (common practice for two-component kilonova fits): a fast lanthanide-poor "blue"
-# component with a low grey opacity and a slower lanthanide-rich "red" one with kappa ~ 10 cm^2/g.
-# The floors follow the recombination temperatures used in such fits (~2500 K lanthanide-rich,
-# a little warmer for lanthanide-poor matter; common practice).
+# Invented round values of our own (no fit to any real event; the same as the demo events): a light
+# "fast" lanthanide-poor component with a low grey opacity and a heavier "slow" lanthanide-rich one
+# with a high opacity (the two-component picture is common practice).  The floors follow the
+# recombination temperatures used in such models (~2500 K lanthanide-rich, a little warmer for
+# lanthanide-poor matter; common practice).
 DEFAULT_COMPONENTS = (
-    EjectaComponent("blue", 0.025, 0.25, 0.5, 3000.0),
-    EjectaComponent("red", 0.04, 0.15, 10.0, 2500.0),
+    EjectaComponent("fast", 0.015, 0.3, 1.0, 3000.0),
+    EjectaComponent("slow", 0.06, 0.12, 8.0, 2500.0),
 )
 
 

@@ -68,7 +68,7 @@ METZGER_2019 = Citation("Metzger", 2019, "Living Rev. Relativ.", "23", "1",
 TANAKA_2020 = Citation("Tanaka, Kato, Gaigalas & Kawaguchi", 2020, "MNRAS", "496", "1369",
                        "grey opacities of kilonova ejecta, ~1 cm^2/g for lanthanide-free matter (citation checked; "
                        "the opacity value from memory)")
-DOMOTO_2021 = Citation("Domoto, Tanaka, Wanajo & Kato", 2021, "ApJ", "913", "26",
+DOMOTO_2021 = Citation("Domoto, Tanaka, Wanajo & Kawaguchi", 2021, "ApJ", "913", "26",
                        "ejecta density rho ~ v^-3 between 0.05 c and the outer edge; from memory")
 WAXMAN_2018 = Citation("Waxman, Ofek, Kushnir & Gal-Yam", 2018, "MNRAS", "481", "3423",
                        "kilonova bolometric light curve near the thermalized radioactive deposition; "

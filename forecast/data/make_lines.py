@@ -13,6 +13,10 @@ Inputs, in ``forecast/data/candidates/`` (read by this script only, not installe
     whose data cannot be sourced is left out.
 ``solar_r_pattern.toml``
     the solar-system r-process abundance pattern (N_r = N_sun f_r, with its sources).
+``high_ye_light.toml``
+    the light elements (not r-process) made in the high-electron-fraction part of merger ejecta,
+    each with its mass fraction of the ejecta and its source (Ca: co-produced with Sr at high
+    electron fraction, Domoto, Tanaka, Wanajo & Kawaguchi 2021, ApJ 913, 26).
 
 Step 1 (:func:`regenerate`) recomputes the candidates' vacuum column ``wavelength_A`` from the
 published values with the IAU air-to-vacuum conversion (Morton 2000, ApJS 130, 403;
@@ -24,18 +28,21 @@ Step 2 (:func:`select`), the rule (docs/methods.md, "Line selection"): a candida
 sharing a ``feature`` id) is shipped when
 
 1. LTE gives it a strength: every member is an LTE line (``lte``) with a published g f;
-2. its element is in the r-process pattern;
+2. its element is in the ejecta composition: the r-process pattern, or one of the light elements
+   of high-electron-fraction ejecta (``high_ye_light.toml``);
 3. its rest vacuum wavelengths lie in ``LINE_RULE_WAVELENGTH_A`` (3000-25000 A);
 4. its strongest member reaches a Sobolev optical depth ``STRONG_TAU`` (1) at some photospheric
    temperature in ``LINE_RULE_TEMPERATURE_K`` (2500-6000 K) along the default power-law
    photosphere (its age, line-forming velocity, outer velocity and ejecta mass at that
-   temperature), for the pattern's composition (the pattern elements that have candidate lines
-   with a strength, as the electron donors) and the density profile below, with kncast's own
-   Saha-Boltzmann and partition functions (``kncast.forecast.lte``).
+   temperature), for the composition (the light elements at their mass fractions, the pattern
+   elements that have candidate lines with a strength in the pattern's proportions making up the
+   rest; all of them the electron donors) and the density profile below, with kncast's own
+   Saha-Boltzmann and partition functions (``kncast.forecast.lte``).  For a light element the
+   decision also states the smallest mass fraction at which the feature would still be kept.
 
 Step 3 writes ``lines.ecsv`` (the shipped features, candidate rows unchanged, the rule and every
-decision in its comments) and ``abundances.toml`` (the pattern's mass fractions of the elements
-that have a shipped feature, and the density profile).  Elements without a shipped feature are not
+decision in its comments) and ``abundances.toml`` (the mass fractions of the elements that have a
+shipped feature, as in step 2, and the density profile).  Elements without a shipped feature are not
 in either file.
 """
 from __future__ import annotations
@@ -55,13 +62,14 @@ from kncast.forecast.linelist import NON_LTE_E_LOW_EV, LineList, lte_applies
 HERE = Path(__file__).resolve().parent
 CANDIDATES = HERE / "candidates" / "line_candidates.ecsv"
 PATTERN = HERE / "candidates" / "solar_r_pattern.toml"
+LIGHT = HERE / "candidates" / "high_ye_light.toml"
 ATOMS = HERE / "atoms.toml"
 LINES_OUT = HERE / "lines.ecsv"
 ABUNDANCES_OUT = HERE / "abundances.toml"
 
 # Ejecta density profile of the rule and of the shipped composition (forecast/lte.py):
 # rho ~ v^-3 from 0.05 c to the outer edge, flat inside, as in the kilonova spectral models of
-# Domoto, Tanaka, Wanajo & Kato 2021 (ApJ 913, 26; from memory: rho ~ r^-3 from 0.05 c outwards).
+# Domoto, Tanaka, Wanajo & Kawaguchi 2021 (ApJ 913, 26; from memory: rho ~ r^-3 from 0.05 c outwards).
 DENSITY_INDEX = 3.0
 INNER_VELOCITY_C = 0.05
 RULE_POINTS = 36            # temperatures sampled, log-spaced over LINE_RULE_TEMPERATURE_K
@@ -127,13 +135,24 @@ def _describe(table: Table) -> None:
     table["A_ul_s"].unit = "1 / s"
 
 
-def pattern_mass_fractions(elements, pattern_path: Path = PATTERN, atoms_path: Path = ATOMS) -> dict:
-    """Mass fractions of ``elements`` in the r-process pattern: N_sun f_r times the atomic mass, renormalized."""
+def light_mass_fractions(light_path: Path = LIGHT) -> dict:
+    """Element -> mass fraction of the ejecta for the light elements of high-electron-fraction ejecta."""
+    light = tomllib.loads(light_path.read_text())["light"]["element"]
+    return {el: float(row["mass_fraction"]) for el, row in light.items()}
+
+
+def pattern_mass_fractions(elements, pattern_path: Path = PATTERN, atoms_path: Path = ATOMS,
+                           light_path: Path = LIGHT) -> dict:
+    """Mass fractions of ``elements``: the light ones at their own mass fractions, the r-process ones in the
+    pattern's proportions (N_sun f_r times the atomic mass) sharing the rest, so that they sum to 1."""
     pattern = tomllib.loads(pattern_path.read_text())["pattern"]["element"]
     atoms = tomllib.loads(atoms_path.read_text())["element"]
-    mass = {el: pattern[el]["n_sun"] * pattern[el]["r_fraction"] * atoms[el]["mass_u"] for el in elements}
+    light = {el: x for el, x in light_mass_fractions(light_path).items() if el in elements}
+    mass = {el: pattern[el]["n_sun"] * pattern[el]["r_fraction"] * atoms[el]["mass_u"]
+            for el in elements if el not in light}
     total = sum(mass.values())
-    return {el: m / total for el, m in mass.items()}
+    rest = 1.0 - sum(light.values())
+    return {el: light[el] if el in light else mass[el] / total * rest for el in elements}
 
 
 def rule_photosphere():
@@ -157,15 +176,17 @@ def _abundance_text(fractions: dict, source: str) -> str:
 # change the numbers and give it to `kncast lines` (docs/commands/lines.md, option abundances).
 #
 # The elements are those of the bundled line list (the line-selection rule, docs/methods.md,
-# section "Line selection"), in the proportions of the solar-system r-process pattern
-# (N_r = N_sun f_r times the atomic mass, renormalized; forecast/data/candidates/solar_r_pattern.toml).
-# They stand for the whole ejecta: they are its only electron donors and carry all its mass.  In a
-# full r-process mixture they are a minority, so the line strengths are upper estimates.  Mass
-# fractions are relative and renormalized to sum to 1.  Every element named in the line list needs
-# an entry here and in atoms.toml.
+# section "Line selection"): the light elements of high-electron-fraction ejecta at their mass
+# fractions (forecast/data/candidates/high_ye_light.toml; Ca), the r-process elements sharing the
+# rest in the proportions of the solar-system r-process pattern (N_r = N_sun f_r times the atomic
+# mass; forecast/data/candidates/solar_r_pattern.toml).  They stand for the whole ejecta: they are
+# its only electron donors and carry all its mass.  In a full r-process mixture the r-process
+# elements listed are a minority, so their line strengths are upper estimates.  Mass fractions are
+# relative and renormalized to sum to 1.  Every element named in the line list needs an entry here
+# and in atoms.toml.
 
 [abundances]
-description = "solar-system r-process pattern of the line-list elements"
+description = "light elements of high-electron-fraction ejecta plus the solar-system r-process pattern, for the line-list elements"
 source = "{source}"
 
 [abundances.mass_fraction]
@@ -174,7 +195,7 @@ source = "{source}"
 # Density profile (homologous): rho(v, t) = A v^-n / t^3 between inner_velocity_c and the model's
 # v_max, flat (rho = A v_in^-n / t^3) inside inner_velocity_c; it holds the model's ejecta mass and
 # is evaluated at the photosphere.  n = 3 from 0.05 c outwards as in the kilonova spectral models of
-# Domoto, Tanaka, Wanajo & Kato 2021 (ApJ 913, 26; from memory).
+# Domoto, Tanaka, Wanajo & Kawaguchi 2021 (ApJ 913, 26; from memory).
 density_index = {DENSITY_INDEX!r}
 inner_velocity_c = {INNER_VELOCITY_C!r}
 '''
@@ -187,11 +208,12 @@ def _feature_rows(table: Table) -> dict:
     return out
 
 
-def select(table: Table, pattern_path: Path = PATTERN) -> tuple[list[str], list[str]]:
+def select(table: Table, pattern_path: Path = PATTERN, light_path: Path = LIGHT) -> tuple[list[str], list[str]]:
     """(shipped feature ids in file order, one line per candidate feature saying why) -- the rule."""
     from kncast.forecast.lte import Composition, line_optical_depths, lte_state
 
     pattern = set(tomllib.loads(pattern_path.read_text())["pattern"]["element"])
+    light = light_mass_fractions(light_path)
     lo_a, hi_a = LINE_RULE_WAVELENGTH_A
     element = np.asarray(table["element"]).astype(str)
     gf_known = np.isfinite(np.asarray(table["log_gf"], dtype=float))
@@ -205,8 +227,9 @@ def select(table: Table, pattern_path: Path = PATTERN) -> tuple[list[str], list[
             reasons[fid] = f"left out {fid}: non-LTE line, no LTE strength"
         elif not gf_known[rows].all():
             reasons[fid] = f"left out {fid}: no published g f (forbidden line, or none in our sources)"
-        elif el not in pattern:
-            reasons[fid] = f"left out {fid}: {el} is not an r-process element (not in the pattern)"
+        elif el not in pattern and el not in light:
+            reasons[fid] = (f"left out {fid}: {el} is in neither the r-process pattern nor the light "
+                            "elements of high-electron-fraction ejecta")
         elif not ((lam[rows] >= lo_a) & (lam[rows] <= hi_a)).all():
             reasons[fid] = f"left out {fid}: outside {lo_a:g}-{hi_a:g} A"
         else:
@@ -214,7 +237,8 @@ def select(table: Table, pattern_path: Path = PATTERN) -> tuple[list[str], list[
     donors = sorted({element[features[f][0]] for f in ranked}, key=list(dict.fromkeys(element)).index)
     with tempfile.TemporaryDirectory() as tmp:
         path = Path(tmp) / "pattern.toml"
-        path.write_text(_abundance_text(pattern_mass_fractions(donors, pattern_path), "rule"))
+        fractions = pattern_mass_fractions(donors, pattern_path, light_path=light_path)
+        path.write_text(_abundance_text(fractions, "rule"))
         comp = Composition.load(path)
     temp, age, v_line, v_max, mass = rule_photosphere()
     state = lte_state(temp, age, v_line, v_max, mass, comp)
@@ -230,6 +254,10 @@ def select(table: Table, pattern_path: Path = PATTERN) -> tuple[list[str], list[
         at = int(np.argmax(best))
         verdict = "kept" if best[at] >= STRONG_TAU else "left out"
         reasons[fid] = f"{verdict} {fid}: max tau {best[at]:.2g} at {temp[at]:.0f} K"
+        el = element[features[fid][0]]
+        if el in light:     # a minority element: tau scales with its mass fraction
+            reasons[fid] += (f" ({el} mass fraction {fractions[el]:.2g}; kept down to about "
+                             f"{fractions[el] * STRONG_TAU / best[at]:.1g})")
         if best[at] >= STRONG_TAU:
             shipped.append(fid)
     return shipped, [reasons[f] for f in features]
@@ -241,10 +269,11 @@ def _lines_comments(decisions) -> list[str]:
     return [
         "kncast diagnostic line list (schema: docs/formats.md, Line list), WRITTEN BY forecast/data/make_lines.py",
         "from forecast/data/candidates/line_candidates.ecsv: rows are candidate rows, unchanged.",
-        "Rule (docs/methods.md, Line selection): features of r-process elements (solar-system pattern,",
-        "candidates/solar_r_pattern.toml) with an LTE strength (permitted lines, published g f) at",
-        f"{lo_a:g}-{hi_a:g} A rest whose strongest member reaches Sobolev tau >= {STRONG_TAU:g} at some",
-        f"temperature in {low:g}-{high:g} K along the default power-law photosphere, for the pattern's",
+        "Rule (docs/methods.md, Line selection): features of the ejecta's elements (the solar-system",
+        "r-process pattern, candidates/solar_r_pattern.toml, plus the light elements of high-electron-",
+        "fraction ejecta, candidates/high_ye_light.toml: Ca) with an LTE strength (permitted lines,",
+        f"published g f) at {lo_a:g}-{hi_a:g} A rest whose strongest member reaches Sobolev tau >= {STRONG_TAU:g}",
+        f"at some temperature in {low:g}-{high:g} K along the default power-law photosphere, for that",
         "composition.  Decisions:",
         *decisions,
         "Wavelengths are vacuum (IAU conversion of the published air values, Morton 2000, ApJS 130, 403).",
@@ -262,7 +291,11 @@ def main() -> int:
     out.write(LINES_OUT, format="ascii.ecsv", overwrite=True)
     elements = list(dict.fromkeys(np.asarray(out["element"]).astype(str)))
     pattern = tomllib.loads(PATTERN.read_text())["pattern"]
-    ABUNDANCES_OUT.write_text(_abundance_text(pattern_mass_fractions(elements), pattern["source"]))
+    light = tomllib.loads(LIGHT.read_text())["light"]
+    source = pattern["source"]
+    if set(elements) & set(light["element"]):
+        source = f"{light['source']}; r-process elements: {source}"
+    ABUNDANCES_OUT.write_text(_abundance_text(pattern_mass_fractions(elements), source))
     LineList.load(LINES_OUT)
     print(f"{LINES_OUT}: {len(out)} lines in {len(shipped)} features of {', '.join(elements)}")
     print("\n".join(decisions))

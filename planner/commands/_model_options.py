@@ -42,7 +42,7 @@ def add_model_options(p: argparse.ArgumentParser) -> None:
                    metavar="NAME:MASS,V,KAPPA[,FLOOR]",
                    help="heating: one ejecta component (repeatable; replaces the file's components): "
                         "mass in Msun, velocity in c, grey opacity in cm^2/g, temperature floor in K "
-                        f"(default {COMPONENT_FLOOR_DEFAULT_K:g}), e.g. blue:0.025,0.25,0.5,3000")
+                        f"(default {COMPONENT_FLOOR_DEFAULT_K:g}), e.g. fast:0.015,0.3,1,3000")
 
 
 def parse_component(text: str) -> dict:
@@ -51,7 +51,7 @@ def parse_component(text: str) -> dict:
     values = rest.split(",") if sep else []
     if not sep or not name.strip() or len(values) not in (3, 4):
         raise argparse.ArgumentTypeError(f"{text!r}: expected NAME:MASS_MSUN,VELOCITY_C,OPACITY_CM2_G[,FLOOR_K], "
-                                         f"e.g. red:0.04,0.15,10,2500")
+                                         f"e.g. slow:0.06,0.12,8,2500")
     try:
         numbers = [float(v) for v in values]
     except ValueError:

@@ -1,64 +1,116 @@
 """Figure for ``kncast exposure``: S/N per resolution element against wavelength for one setup.
 
-One line per arm; strong features' absorption windows as light bands with their
-troughs marked; telluric bands as grey bands with opacity following their depth;
-the target S/N as a dashed line when one was asked for.
+One line per arm on an axis of observed vacuum wavelength in Angstrom; the strong features'
+absorption windows as bars along the top with their troughs marked, each named by species and
+rest wavelength (``kncast.planner.measure.feature_words``); telluric bands as hatched columns in
+the style of the feature map (``kncast.planner.figures.lines``): cross-hatched where the sky
+transmits less than the telluric threshold (lost), single hatching where the band is correctable;
+the target S/N as a dashed line when one was asked for.  Drawn with collections and a fixed layout
+(no tight layout per call); all text at least ``FONT_PT``.
 """
 from __future__ import annotations
 
-import matplotlib
+from functools import lru_cache
 
-matplotlib.use("Agg")
-import matplotlib.pyplot as plt  # noqa: E402
-import numpy as np  # noqa: E402
+import numpy as np
 
-from kncast.planner.figures.text import plain  # noqa: E402
+from kncast.planner.figures.lines import CORRECTABLE_COLOR, FONT_PT, LOST_COLOR, _hatched_columns, _telluric_regions
+from kncast.planner.figures.text import plain
+
+FEATURE_COLOR = "tab:red"
+SHOWN_FEATURES = 8
+
+
+@lru_cache(maxsize=1)
+def _bundled_words() -> dict:
+    """Feature id -> reader's name ('Sr II 10039 A') for the bundled line list."""
+    from kncast.forecast.linelist import LineList
+    from kncast.planner.measure import feature_words
+
+    return {f.id: feature_words(f) for f in LineList.load().features()}
+
+
+def _feature_name(f: dict) -> str:
+    return _bundled_words().get(f["feature"], f"{f.get('species', '')} ({f['feature']})".strip())
+
+
+def _tellurics(ax, res, lo, hi, top):
+    """Hatched lost / correctable columns; returns legend proxies."""
+    from matplotlib.patches import Patch
+
+    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+
+    tell = res.get("tellurics")
+    if tell is None:
+        return []
+    threshold = float(res.get("telluric_threshold") or CORRECTABLE_TRANSMISSION)
+    lam = np.linspace(lo, hi, 2000)
+    cond = res["conditions"]
+    _, lost, correctable = _telluric_regions(tell, lam, cond["airmass"] or 1.0, cond["pwv_mm"], threshold)
+    _hatched_columns(ax, lost, 0.0, top, LOST_COLOR, "xx")
+    _hatched_columns(ax, correctable, 0.0, top, CORRECTABLE_COLOR, "//")
+    return [Patch(facecolor="none", edgecolor=LOST_COLOR, hatch="xx", lw=0,
+                  label=f"telluric, lost (transmission < {threshold:g})"),
+            Patch(facecolor="none", edgecolor=CORRECTABLE_COLOR, hatch="//", lw=0, label="telluric, correctable")]
+
+
+def _features(ax, res, lo, hi, top):
+    """Absorption bars along the top, trough lines and names; returns legend proxies."""
+    from matplotlib.collections import LineCollection, PolyCollection
+    from matplotlib.patches import Patch
+
+    shown = sorted((f for f in res["features"][:SHOWN_FEATURES] if lo <= f["trough_obs_A"] <= hi),
+                   key=lambda f: f["trough_obs_A"])
+    if not shown:
+        return []
+    a0, a1 = (np.array([f["absorption_obs_A"][i] for f in shown]) for i in (0, 1))
+    y0, y1 = 0.95 * top, top
+    ax.add_collection(PolyCollection([[(a, y0), (b, y0), (b, y1), (a, y1)] for a, b in zip(a0, a1)],
+                                     facecolors=FEATURE_COLOR, alpha=0.4, edgecolors="none", zorder=3))
+    trough = np.array([f["trough_obs_A"] for f in shown])
+    ax.add_collection(LineCollection([[(x, 0.0), (x, y1)] for x in trough], colors=FEATURE_COLOR,
+                                     linewidths=0.8, linestyles=":", zorder=3))
+    for i, f in enumerate(shown):
+        ax.text(f["trough_obs_A"], top * (0.93 - 0.2 * (i % 4)), _feature_name(f), rotation=90,
+                fontsize=FONT_PT, ha="right", va="top", color=FEATURE_COLOR, zorder=6,
+                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.7, "pad": 0.5})
+    return [Patch(facecolor=FEATURE_COLOR, alpha=0.4, lw=0, label="feature absorption windows (dotted: trough)")]
 
 
 def exposure_figure(res: dict):
     """A matplotlib Figure from the dict returned by ``kncast.planner.commands.exposure.compute``."""
+    import matplotlib
+    from matplotlib.figure import Figure
+    from matplotlib.ticker import FuncFormatter
+
     e, grid = res["result"], res["grid"]
-    fig, ax = plt.subplots(figsize=(10, 4.8))
-    lam_um = e.wavelength_A / 1e4
-    colours = plt.get_cmap("viridis")(np.linspace(0.1, 0.85, max(1, len(grid.arm_names))))
+    fig = Figure(figsize=(11, 5.2))
+    ax = fig.add_axes((0.07, 0.12, 0.63, 0.72))   # fixed layout; the key on the right
+    lam = np.asarray(e.wavelength_A, dtype=float)
+    colours = matplotlib.colormaps["viridis"](np.linspace(0.1, 0.85, max(1, len(grid.arm_names))))
     for k, name in enumerate(grid.arm_names):
         sel = grid.arm_index == k
         y = np.where(e.on_detector[sel], e.snr_per_resel[sel], np.nan)
-        ax.plot(lam_um[sel], y, color=colours[k], lw=1.4, label=f"arm {name}")
+        ax.plot(lam[sel], y, color=colours[k], lw=1.4, label=f"arm {plain(name)}", zorder=4)
     top = np.nanmax(np.where(e.on_detector, e.snr_per_resel, np.nan)) if np.any(e.on_detector) else 1.0
     top = max(top, res["target"]["snr_per_resel"] if res["target"] else 0.0, 1.0) * 1.15
-    lo, hi = lam_um.min(), lam_um.max()
-    tell = res.get("tellurics")
-    if tell is not None:
-        b = tell.bands
-        for lo_A, hi_A, depth in zip(np.asarray(b["min_A"], float), np.asarray(b["max_A"], float),
-                                     np.asarray(b["depth"], float)):
-            if hi_A / 1e4 > lo and lo_A / 1e4 < hi:
-                ax.axvspan(lo_A / 1e4, hi_A / 1e4, color="0.5", alpha=0.1 + 0.35 * float(depth), lw=0)
-        ax.axvspan(np.nan, np.nan, color="0.5", alpha=0.3, label="telluric bands")
-    shown = sorted((f for f in res["features"][:8] if lo <= f["trough_obs_A"] / 1e4 <= hi),
-                   key=lambda f: f["trough_obs_A"])
-    for i, f in enumerate(shown):
-        a0, a1 = f["absorption_obs_A"]
-        ax.axvspan(a0 / 1e4, a1 / 1e4, ymin=0.93, ymax=1.0, color="tab:red", alpha=0.35, lw=0)
-        ax.axvline(f["trough_obs_A"] / 1e4, color="tab:red", lw=0.8, ls=":")
-        ax.text(f["trough_obs_A"] / 1e4, top * (0.9 - 0.2 * (i % 4)), f" {f['feature']}", rotation=90,
-                fontsize=7, ha="right", va="top", color="tab:red",
-                bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.6, "pad": 0.5})
-    if res["features"]:
-        ax.axvspan(np.nan, np.nan, color="tab:red", alpha=0.35, label="feature absorption windows")
+    lo, hi = float(lam.min()), float(lam.max())
+    proxies = _tellurics(ax, res, lo, hi, top) + _features(ax, res, lo, hi, top)
     if res["target"]:
         ax.axhline(res["target"]["snr_per_resel"], color="k", ls="--", lw=0.9,
-                   label=f"target S/N at {res['target']['at']}")
+                   label=f"target S/N at {plain(str(res['target']['at']))}")
     ax.set_xlim(lo, hi)
     ax.set_ylim(0, top)
-    ax.set_xlabel("observed vacuum wavelength (micron)")
-    ax.set_ylabel("S/N per resolution element")
+    ax.tick_params(labelsize=FONT_PT)
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda x, _: f"{x:,.0f}"))
+    ax.set_xlabel("observed vacuum wavelength (\u00c5)", fontsize=FONT_PT + 1)
+    ax.set_ylabel("S/N per resolution element", fontsize=FONT_PT + 1)
     single = res["time_s"] / res["nexp"]
     mode = "ideal (photon noise only)" if res["ideal"] else f"airmass {res['conditions']['airmass']:.2f}"
     ax.set_title(f"{plain(res['event'].id)}  {plain(res['ref'].id)}  phase {res['phase_d']:g} d  "
                  f"{res['nexp']} x {single:.0f} s  {mode}\nS/N per resolution element (model estimate; "
-                 "the observatory's own tools take precedence)", fontsize=9)
-    ax.legend(loc="upper right", fontsize=7, framealpha=0.8)
+                 "the observatory's own tools take precedence)", fontsize=FONT_PT + 1)
+    handles = ax.get_legend_handles_labels()[0] + proxies
+    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=FONT_PT, framealpha=0.85)
     ax.grid(alpha=0.25)
     return fig
