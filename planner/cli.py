@@ -20,7 +20,7 @@ import signal
 import sys
 import threading
 
-COMMANDS = ["demo", "plan", "visibility", "lightcurve", "setups", "lines", "exposure", "coverage"]
+COMMANDS = ["demo", "plan", "visibility", "lightcurve", "setups", "lines", "exposure", "coverage", "semester"]
 
 EXIT_OK, EXIT_INTERNAL, EXIT_USAGE = 0, 1, 2
 EXIT_SIGNAL_BASE = 128  # a run stopped by signal N exits with 128 + N, as shells report it
