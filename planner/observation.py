@@ -278,7 +278,7 @@ def _draw_ranges(event, transient, request: Request, points, r_pts, time_s, nexp
     points and of the time for the target: the rates at the points scaled per draw, one call per model node."""
     from kncast.forecast import exposure as ex
     from kncast.planner.measure import scaled_rates
-    from kncast.planner.plan.ensemble import percentiles, source_draws
+    from kncast.planner.draws import percentiles, source_draws
 
     distances, nodes, node_of, _ranges = source_draws(event, transient, request.draws, request.seed,
                                                       request.model_overridden)

@@ -63,7 +63,7 @@ def add_arguments(p) -> None:
     c.add_argument("--profile", choices=("moffat", "gaussian"), default="moffat",
                    help="seeing profile for the slit losses (default moffat)")
     add_output_options(p)
-    from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+    from kncast.planner.draws import DEFAULT_DRAWS, DEFAULT_SEED
 
     p.add_argument("--draws", type=positive_int("--draws", high=5000), default=DEFAULT_DRAWS, metavar="N",
                    help="realisations of the distance (distance_err_mpc) and of the [model] ranges for the 16-84%% "

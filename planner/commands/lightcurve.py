@@ -22,7 +22,7 @@ def add_arguments(p) -> None:
                    help=f"observer-frame days since t0 (default {DEFAULT_PHASES})")
     p.add_argument("--bands", action="append", metavar="BAND,...",
                    help="speclite band names, comma separated (default: Bessell UBVRI and 2MASS JHKs)")
-    from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+    from kncast.planner.draws import DEFAULT_DRAWS, DEFAULT_SEED
 
     p.add_argument("--draws", type=positive_int("--draws", high=5000), default=DEFAULT_DRAWS, metavar="N",
                    help="realisations of the distance (distance_err_mpc) and of the [model] ranges for the 16-84%% "
@@ -61,7 +61,7 @@ def compute(args):
     state = transient.state(phases)
     mags = transient.mag_ab(phases, bands)
     if args.draws:
-        from kncast.planner.plan.ensemble import magnitude_draws, percentiles
+        from kncast.planner.draws import magnitude_draws, percentiles
 
         draws = magnitude_draws(event, transient, phases, bands, args.draws, args.seed,
                                 model_overridden=bool(overrides_from_args(args)))

@@ -26,7 +26,7 @@ def add_arguments(p) -> None:
     g.add_argument("--anchor", action="append", metavar="BAND=MAG@UTC",
                    help="measured AB magnitude to rescale the photosphere model to before planning (repeatable; "
                         "band names as kncast lightcurve lists them), e.g. bessell-R=20.8@2027-03-15T01:10:00Z")
-    from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+    from kncast.planner.draws import DEFAULT_DRAWS, DEFAULT_SEED
 
     g.add_argument("--draws", type=_common.positive_int("--draws", high=5000), default=DEFAULT_DRAWS, metavar="N",
                    help="realisations of the distance (distance_err_mpc) and of the [model] ranges for the "

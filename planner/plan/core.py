@@ -40,7 +40,7 @@ from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, D
                                       SNR_BASIS)
 from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
 from kncast.planner.observation import batched_conditions, forecast_airmass
-from kncast.planner.plan.ensemble import DEFAULT_DRAWS, DEFAULT_SEED
+from kncast.planner.draws import DEFAULT_DRAWS, DEFAULT_SEED
 
 __all__ = ["build_plan", "Plan", "NightPlan", "SetupOutcome", "plan_document", "score", "choose",
            "campaign_summary", "MAG_BANDS"]

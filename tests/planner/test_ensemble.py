@@ -19,7 +19,7 @@ def south():
 
 
 def test_distance_draws_are_truncated_normal(south):
-    from kncast.planner.plan.ensemble import draw_distances
+    from kncast.planner.draws import draw_distances
 
     rng = np.random.default_rng(3)
     d = draw_distances(50.0, 40.0, 20000, rng)
@@ -34,7 +34,7 @@ def test_distance_draws_are_truncated_normal(south):
 def test_distance_only_magnitude_percentiles_are_the_distance_modulus_of_the_distance_percentiles(south):
     # m(D') = m(D) + 5 log10(D'/D) (inverse-square law, AB magnitudes: Oke & Gunn 1983); percentiles of
     # order statistics commute with this monotonic map
-    from kncast.planner.plan.ensemble import magnitude_draws, percentiles, source_draws
+    from kncast.planner.draws import magnitude_draws, percentiles, source_draws
 
     event, transient = south
     phases = [1.0, 3.0]
@@ -50,7 +50,7 @@ def test_distance_only_magnitude_percentiles_are_the_distance_modulus_of_the_dis
 
 
 def test_model_ranges_are_drawn_uniform_in_log_from_latin_nodes():
-    from kncast.planner.plan.ensemble import latin_nodes
+    from kncast.planner.draws import latin_nodes
 
     nodes = latin_nodes({("mass_msun",): (0.01, 0.1)}, 16, np.random.default_rng(5))
     x = np.log10([n[("mass_msun",)] for n in nodes])
