@@ -211,8 +211,7 @@ def _sites_figure(res, plt):
     per = res["by_site"] / max(res["n"], 1)
     order = np.argsort(per)
     fig, ax = plt.subplots(figsize=(6.4, 0.45 * len(st.sites) + 1.2))
-    ax.barh([plain(st.sites[i].name if len(st.sites[i].name) < 40 else st.sites[i].id) for i in order], per[order],
-            color="#3b7d4f")
+    ax.barh([plain(st.sites[i].id) for i in order], per[order], color="#3b7d4f")
     ax.set_xlabel("useful epochs per merger")
     ax.set_title("Which sites deliver the useful epochs")
     ax.grid(axis="x", alpha=0.3)

@@ -96,3 +96,15 @@ def test_bad_input_one_line_exit_2(bad, tmp_path, capsys):
     assert code == 2
     assert len(err.strip().splitlines()) == 1 and "Traceback" not in err
     assert not out.exists()
+
+
+def test_dask_option_takes_a_scheduler_address(folder, tmp_path, capsys):
+    pytest.importorskip("dask.distributed")
+    from dask.distributed import LocalCluster
+
+    with LocalCluster(n_workers=1, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+        code = _main("semester", *SMALL, "--out", tmp_path / "d", "--json", "-", "--dask", cluster.scheduler_address)
+    assert code == 0
+    doc = json.loads(capsys.readouterr().out)
+    single = json.loads((folder / "semester.json").read_text())
+    assert doc["expected"] == single["expected"] and doc["per_event"] == single["per_event"]
