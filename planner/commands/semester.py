@@ -119,7 +119,7 @@ def run(args) -> int:
     if args.json:
         _common.emit_json(args.json, doc)
     if args.json != "-":
-        print_summary(doc, out)
+        print_summary(doc, out, quiet=quiet)
     return 0
 
 
@@ -153,10 +153,14 @@ def check_out(out: Path) -> None:
                                              "the files its semester.json lists")
 
 
-def print_summary(doc: dict, out: Path) -> None:
+def print_summary(doc: dict, out: Path, quiet: bool = False) -> None:
+    """The expected numbers as a rich table (not when ``quiet``), the report path and the cautions."""
     from rich.table import Table
 
     con = _common.console()
+    if quiet:
+        con.print(f"Report: {out / 'report.html'}")
+        return
     e = doc["expected"]
     t = Table(title=f"Semester {doc['settings']['start']} to {doc['settings']['end']}: expected numbers",
               title_justify="left")

@@ -113,19 +113,28 @@ def justification(res: dict) -> str:
     sig3 = float(g["significance"][k3, k100, j]) if g["setup"] else 0.0
     snr3 = float(g["snr_bin"][k3, k100, j]) if g["setup"] else 0.0
     frac = float((res["epochs_per_event"] > 0).mean())
-    return (f"For a binary-neutron-star merger rate of {st.rate[0]:g}-{st.rate[1]:g} Gpc^-3 yr^-1 (GWTC-3 "
-            f"population analysis, Phys. Rev. X 13, 011048, 2023), a network horizon of {st.horizon_mpc:g} Mpc "
-            f"and a duty cycle of {st.duty:.0%}, we expect {e['gw_events']['median']:.0f} "
-            f"(90 % interval {e['gw_events']['p05']:.0f}-{e['gw_events']['p95']:.0f}) mergers between "
-            f"{st.start} and {st.end}. Simulating {res['n']} mergers against our {len(st.sites)} sites, "
-            f"{frac:.0%} give at least one spectrum detecting a diagnostic r-process feature at "
-            f"{st.sigma:g} sigma within {st.nights} nights, so we expect {e['events']['median']:.0f} "
-            f"(90 %: {e['events']['p05']:.0f}-{e['events']['p95']:.0f}) such events and "
-            f"{e['useful_epochs']['median']:.0f} (90 %: {e['useful_epochs']['p05']:.0f}-"
-            f"{e['useful_epochs']['p95']:.0f}) useful spectroscopic epochs this semester, "
+    from kncast.planner.semester.run import DEFAULT_RATE
+
+    rate = f"{st.rate[0]:g}" if st.rate[0] == st.rate[1] else f"{st.rate[0]:g}-{st.rate[1]:g}"
+    source = (" (GWTC-3 population analysis, Phys. Rev. X 13, 011048, 2023)" if tuple(st.rate) == DEFAULT_RATE
+              else "")
+    return (f"For a binary-neutron-star merger rate of {rate} Gpc^-3 yr^-1{source}, a network horizon of "
+            f"{st.horizon_mpc:g} Mpc "
+            f"and a duty cycle of {st.duty:.0%}, we expect {_q(e['gw_events'])} mergers between "
+            f"{st.start} and {st.end}. Simulating {res['n']} mergers against our {len(st.sites)} "
+            f"site{'s' if len(st.sites) != 1 else ''}, {frac:.0%} give at least one spectrum detecting a diagnostic "
+            f"absorption feature at {st.sigma:g} sigma within {st.nights} night{'s' if st.nights != 1 else ''}, "
+            f"so we expect {_q(e['events'])} such events and {_q(e['useful_epochs'])} useful spectroscopic "
+            f"epochs in this period, "
             f"{res['epochs_per_event'][res['epochs_per_event'] > 0].mean() if frac else 0:.1f} per followed "
-            f"event on average. At 100 Mpc and 3 days, {run_hours()} h with {best} reach a continuum S/N of "
+            f"event on average (upper bounds: weather, moonlight and the time to identify the counterpart are not "
+            f"included). At 100 Mpc and 3 days, {run_hours()} h with {best} reaches a continuum S/N of "
             f"{snr3:.0f} per 1500 km/s bin and a {sig3:.0f} sigma detection of the strongest trough.")
+
+
+def _q(s: dict) -> str:
+    """'4 (mean 25.5, 90 % interval 0-111)' from a summary of the semester Monte Carlo."""
+    return f"{s['median']:.0f} (mean {s['mean']:.2g}, 90 % interval {s['p05']:.0f}-{s['p95']:.0f})"
 
 
 def run_hours() -> str:
