@@ -17,110 +17,12 @@ import numpy as np
 
 from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S
 from kncast.planner.observation import forecast_airmass
+from kncast.planner.plan.tables import (  # noqa: F401  (the ECSV tables: their own module)
+    EXPOSURE_COLUMNS, FEATURE_COLUMNS, WINDOW_COLUMNS, exposure_rows, window_rows, write_tables,
+)
+from kncast.planner.plan.tables import write_table as _write_table  # noqa: F401  (used by kncast semester)
 
 FIGURE_DPI = 90
-
-
-def _write_table(columns: dict, units: dict, path: Path, description: str) -> None:
-    from astropy.table import Table
-
-    from kncast.planner.output import atomic_path
-
-    t = Table(columns)
-    for name, unit in units.items():
-        if name in t.colnames and unit:
-            t[name].unit = unit
-    t.meta["description"] = description
-    with atomic_path(path, suffix=".ecsv") as tmp:
-        t.write(tmp, format="ascii.ecsv", overwrite=True)
-
-
-def _col(rows: list[dict], name: str, kind=float):
-    values = [r[name] for r in rows]
-    if kind is float:
-        return np.array([np.nan if v is None else v for v in values], dtype=float)
-    if kind is int:
-        return np.array([-1 if v is None else v for v in values], dtype=int)
-    if kind is bool:
-        return np.array(values, dtype=bool)
-    return np.array(["" if v is None else str(v) for v in values], dtype=str)
-
-
-WINDOW_COLUMNS = {  # name: (kind, unit)
-    "site": (str, None), "night": (str, None), "window": (int, None), "used": (bool, None),
-    "start_utc": (str, None), "end_utc": (str, None), "hours": (float, "h"), "best_utc": (str, None),
-    "best_airmass": (float, None), "best_altitude_deg": (float, "deg"), "moon_illumination": (float, None),
-    "moon_sep_deg": (float, "deg"), "moon_altitude_deg": (float, "deg"), "phase_start_d": (float, "d"),
-    "phase_end_d": (float, "d"),
-}
-FEATURE_COLUMNS = {
-    "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
-    "id": (str, None), "species": (str, None), "trough_A": (float, "Angstrom"), "measured_A": (float, "Angstrom"),
-    "arm": (str, None),
-    "depth": (float, None), "snr_bin": (float, None), "snr_resel": (float, None), "n_bins": (float, None),
-    "significance": (float, None), "time_to_sigma_s": (float, "s"), "usable_trough": (float, None),
-    "telluric_loss_trough": (float, None), "telluric_correctable_trough": (float, None),
-    "telluric_loss_emission": (float, None), "below_cutoff": (bool, None), "lte": (bool, None),
-    "target": (bool, None),
-}
-EXPOSURE_COLUMNS = {
-    "site": (str, None), "night": (str, None), "phase_d": (float, "d"), "setup": (str, None),
-    "airmass": (float, None), "moon_illumination": (float, None), "moon_sep_deg": (float, "deg"),
-    "available_s": (float, "s"), "n_targets": (int, None), "n_detected": (int, None), "feature": (str, None),
-    "trough_obs_A": (float, "Angstrom"), "arm": (str, None), "significance": (float, None),
-    "snr_bin": (float, None), "time_to_sigma_s": (float, "s"), "nexp": (int, None), "exposure_s": (float, "s"),
-    "detects": (bool, None), "score": (float, None), "chosen": (bool, None),
-}
-
-
-def _table(rows, spec, path, description):
-    cols = {name: _col(rows, name, kind) for name, (kind, _) in spec.items()}
-    _write_table(cols, {n: u for n, (_, u) in spec.items()}, path, description)
-
-
-def window_rows(plan) -> list[dict]:
-    from kncast.planner.output import iso_utc
-
-    rows = []
-    for p in plan.nights:
-        for k, w in enumerate(p.record.windows):
-            rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "window": k,
-                         "used": k == p.window_index, "start_utc": iso_utc(w.start), "end_utc": iso_utc(w.end),
-                         "hours": w.hours, "best_utc": iso_utc(w.best_time), "best_airmass": w.best_airmass,
-                         "best_altitude_deg": w.best_altitude_deg, "moon_illumination": w.moon_illumination,
-                         "moon_sep_deg": w.moon_sep_deg, "moon_altitude_deg": w.moon_altitude_deg,
-                         "phase_start_d": w.phase_start_d, "phase_end_d": w.phase_end_d})
-    return rows
-
-
-def exposure_rows(plan) -> list[dict]:
-    rows = []
-    for p in plan.nights:
-        w = p.window
-        for o in p.outcomes:
-            rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
-                         "setup": o.setup, "airmass": forecast_airmass(w), "moon_illumination": w.moon_illumination,
-                         "moon_sep_deg": w.moon_sep_deg, "available_s": p.hours_available * 3600.0,
-                         "n_targets": len(o.targets), "n_detected": len(o.detected), "feature": o.feature,
-                         "trough_obs_A": o.trough_obs_A, "arm": o.arm, "significance": o.significance,
-                         "snr_bin": o.snr_bin, "time_to_sigma_s": o.time_to_sigma_s, "nexp": o.nexp,
-                         "exposure_s": o.exposure_s, "detects": bool(o.detected), "score": o.score,
-                         "chosen": o is p.choice})
-    return rows
-
-
-def write_tables(plan, folder: Path) -> dict:
-    """``windows.ecsv``, ``features.ecsv``, ``exposures.ecsv`` in ``folder``; returns their names."""
-    _table(window_rows(plan), WINDOW_COLUMNS, folder / "windows.ecsv",
-           "kncast plan: every observing window per site and night (used = the window the plan uses)")
-    _table(plan.features, FEATURE_COLUMNS, folder / "features.ecsv",
-           "kncast plan: what each feature will show per site-night epoch and setup in the usable time "
-           f"(significance of the trough, continuum S/N per {plan.settings['bin_kms']:g} km/s bin; target: a "
-           "diagnostic feature of that epoch)")
-    _table(exposure_rows(plan), EXPOSURE_COLUMNS, folder / "exposures.ecsv",
-           "kncast plan: per site-night epoch and setup, the best-measured diagnostic trough: its significance "
-           f"in the usable time and the exposure reaching {plan.settings['sigma']:g} sigma")
-    return {"windows": "windows.ecsv", "features": "features.ecsv", "exposures": "exposures.ecsv"}
 
 
 # ---------------------------------------------------------------------------- figures

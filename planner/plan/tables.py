@@ -1,0 +1,206 @@
+"""The ECSV tables of a plan folder: ``windows.ecsv``, ``features.ecsv``, ``exposures.ecsv``.
+
+Written with astropy's ECSV writer so ``astropy.table.Table.read(path)`` gives them back with units,
+column descriptions, ``Time`` columns (UTC, ISO) and the table meta: the kncast version, the event
+(id, t0, RA/Dec, distance), the photosphere model and the settings that made the plan.  One
+missing-value convention everywhere: a missing value is masked (an empty field in the file).
+Column lists: docs/commands/plan.md, section "ECSV columns".
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from kncast.planner.observation import forecast_airmass
+
+__all__ = ["WINDOW_COLUMNS", "FEATURE_COLUMNS", "EXPOSURE_COLUMNS", "write_tables", "write_table",
+           "table_meta", "window_rows", "exposure_rows"]
+
+TIME = "time"  # column kind: an ISO UTC string in the rows, an astropy Time (scale utc, format isot) in the file
+
+WINDOW_COLUMNS = {  # name: (kind, unit, description)
+    "site": (str, None, "site id"),
+    "night": (str, None, "local date of the evening the night starts"),
+    "window": (int, None, "index of the window in the night"),
+    "used": (bool, None, "the window the plan uses that night"),
+    "start_utc": (TIME, None, "window start (UTC)"),
+    "end_utc": (TIME, None, "window end (UTC)"),
+    "hours": (float, "h", "window length"),
+    "best_utc": (TIME, None, "time of the best airmass in the window (UTC)"),
+    "best_airmass": (float, None, "best airmass in the window"),
+    "best_altitude_deg": (float, "deg", "target altitude at the best-airmass time"),
+    "moon_illumination": (float, None, "illuminated fraction of the Moon (0-1)"),
+    "moon_sep_deg": (float, "deg", "Moon-target separation at the best-airmass time"),
+    "moon_altitude_deg": (float, "deg", "Moon altitude at the best-airmass time"),
+    "phase_start_d": (float, "d", "days since t0 at the window start"),
+    "phase_end_d": (float, "d", "days since t0 at the window end"),
+}
+FEATURE_COLUMNS = {
+    "site": (str, None, "site id"),
+    "night": (str, None, "local date of the evening the night starts"),
+    "phase_d": (float, "d", "epoch: days since t0 at the middle of the observing block"),
+    "setup": (str, None, "setup id (site/telescope/instrument mode)"),
+    "id": (str, None, "feature id"),
+    "species": (str, None, "ion producing the feature"),
+    "trough_A": (float, "Angstrom", "observed wavelength of the absorption trough"),
+    "measured_A": (float, "Angstrom", "wavelength where the trough is measured (masked: off the detector)"),
+    "arm": (str, None, "spectrograph arm covering the trough (masked: none)"),
+    "depth": (float, None, "expected fractional depth of the trough (masked: no LTE estimate)"),
+    "snr_bin": (float, None, "continuum S/N per velocity bin at the trough in the usable time"),
+    "snr_resel": (float, None, "continuum S/N per resolution element at the trough in the usable time"),
+    "n_bins": (float, None, "usable velocity bins across the trough"),
+    "significance": (float, None, "detection significance of the trough in the usable time (sigma)"),
+    "time_to_sigma_s": (float, "s", "on-source time for the target significance (masked: unreachable)"),
+    "usable_trough": (float, None, "fraction of the trough on the detector and usable"),
+    "telluric_loss_trough": (float, None, "fraction of the trough lost to telluric bands"),
+    "telluric_correctable_trough": (float, None, "fraction of the trough in correctable telluric bands"),
+    "telluric_loss_emission": (float, None, "fraction of the emission peak lost to telluric bands"),
+    "below_cutoff": (bool, None, "the trough lies below the atmospheric cutoff"),
+    "lte": (bool, None, "the feature has an LTE depth estimate"),
+    "target": (bool, None, "a diagnostic feature of that epoch"),
+}
+EXPOSURE_COLUMNS = {
+    "site": (str, None, "site id"),
+    "night": (str, None, "local date of the evening the night starts"),
+    "phase_d": (float, "d", "epoch: days since t0 at the middle of the observing block"),
+    "setup": (str, None, "setup id (site/telescope/instrument mode)"),
+    "airmass": (float, None, "forecast airmass of the block"),
+    "moon_illumination": (float, None, "illuminated fraction of the Moon (0-1)"),
+    "moon_sep_deg": (float, "deg", "Moon-target separation"),
+    "available_s": (float, "s", "usable time of the night (window capped, minus overhead)"),
+    "n_targets": (int, None, "diagnostic features of the epoch"),
+    "n_detected": (int, None, "diagnostic features detected at the target significance"),
+    "feature": (str, None, "reference feature: the best-measured diagnostic trough (masked: none)"),
+    "trough_obs_A": (float, "Angstrom", "observed wavelength of the reference trough"),
+    "arm": (str, None, "spectrograph arm covering the reference trough"),
+    "significance": (float, None, "significance of the reference trough in the usable time (sigma)"),
+    "snr_bin": (float, None, "continuum S/N per velocity bin at the reference trough"),
+    "time_to_sigma_s": (float, "s", "on-source time for the target significance"),
+    "nexp": (int, None, "number of single exposures (masked: none)"),
+    "exposure_s": (float, "s", "length of each single exposure"),
+    "detects": (bool, None, "at least one diagnostic feature at the target significance"),
+    "score": (float, None, "features detected (the ranking score)"),
+    "chosen": (bool, None, "the night's best choice (plan.json nights[].choice)"),
+}
+
+
+def _missing(v) -> bool:
+    return v is None or (isinstance(v, float) and np.isnan(v))
+
+
+def _column(rows: list[dict], name: str, kind, unit, description):
+    """A masked column (or a Time column) of ``rows[*][name]``; None and NaN are masked."""
+    from astropy.table import MaskedColumn
+    from astropy.time import Time
+
+    values = [r[name] for r in rows]
+    mask = np.array([_missing(v) for v in values], dtype=bool)
+    if kind is TIME:
+        t = Time([("2000-01-01T00:00:00" if m else str(v).rstrip("Z")) for v, m in zip(values, mask)] or [],
+                 format="isot", scale="utc", precision=0)
+        if mask.any():
+            t[mask] = np.ma.masked
+        t.info.description = description
+        return t
+    fill = {float: np.nan, int: 0, bool: False, str: ""}[kind]
+    dtype = {float: float, int: np.int64, bool: bool, str: str}[kind]
+    data = np.array([fill if m else v for v, m in zip(values, mask)], dtype=dtype)
+    return MaskedColumn(data, mask=mask, unit=unit, description=description)
+
+
+def table_meta(plan) -> dict:
+    """What made the table: kncast version, event (id, t0, RA/Dec, distance), model and settings."""
+    from kncast.planner import __version__
+
+    ev = plan.event.summary()
+    model = plan.model or {}
+    return {"kncast": __version__, "event_id": ev["id"], "t0_utc": ev["t0_utc"], "ra_deg": ev["ra_deg"],
+            "dec_deg": ev["dec_deg"], "distance_mpc": ev["distance_mpc"], "distance_err_mpc": ev.get("distance_err_mpc"),
+            "redshift": ev["redshift"], "ebv_mw": ev.get("ebv_mw"),
+            "model": {"name": model.get("name"), "parameters": model.get("parameters") or {}},
+            "settings": _plain(dict(plan.settings))}
+
+
+def _plain(value):
+    """``value`` with numpy scalars and tuples made plain (YAML in the ECSV header)."""
+    if isinstance(value, dict):
+        return {str(k): _plain(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_plain(v) for v in value]
+    if isinstance(value, np.generic):
+        return value.item()
+    return value
+
+
+def write_table(columns: dict, units: dict, path: Path, description: str, meta: dict | None = None) -> None:
+    """Write ``columns`` (name: array or column) as ECSV at ``path`` with ``units``, a description and ``meta``."""
+    from astropy.table import Table
+
+    from kncast.planner.output import atomic_path
+
+    t = Table(columns)
+    for name, unit in units.items():
+        if name in t.colnames and unit:
+            t[name].unit = unit
+    t.meta["description"] = description
+    t.meta.update(meta or {})
+    with atomic_path(path, suffix=".ecsv") as tmp:
+        t.write(tmp, format="ascii.ecsv", overwrite=True)
+
+
+def _table(rows, spec, path, description, meta):
+    cols = {name: _column(rows, name, *rest) for name, rest in spec.items()}
+    write_table(cols, {}, path, description, meta)
+
+
+def window_rows(plan) -> list[dict]:
+    from kncast.planner.output import iso_utc
+
+    rows = []
+    for p in plan.nights:
+        for k, w in enumerate(p.record.windows):
+            rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "window": k,
+                         "used": k == p.window_index, "start_utc": iso_utc(w.start), "end_utc": iso_utc(w.end),
+                         "hours": w.hours, "best_utc": iso_utc(w.best_time), "best_airmass": w.best_airmass,
+                         "best_altitude_deg": w.best_altitude_deg, "moon_illumination": w.moon_illumination,
+                         "moon_sep_deg": w.moon_sep_deg, "moon_altitude_deg": w.moon_altitude_deg,
+                         "phase_start_d": w.phase_start_d, "phase_end_d": w.phase_end_d})
+    return rows
+
+
+def exposure_rows(plan) -> list[dict]:
+    rows = []
+    for p in plan.nights:
+        w = p.window
+        for o in p.outcomes:
+            rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
+                         "setup": o.setup, "airmass": forecast_airmass(w), "moon_illumination": w.moon_illumination,
+                         "moon_sep_deg": w.moon_sep_deg, "available_s": p.hours_available * 3600.0,
+                         "n_targets": len(o.targets), "n_detected": len(o.detected), "feature": o.feature or None,
+                         "trough_obs_A": o.trough_obs_A, "arm": o.arm or None, "significance": o.significance,
+                         "snr_bin": o.snr_bin, "time_to_sigma_s": o.time_to_sigma_s,
+                         "nexp": o.nexp if o.nexp is not None and o.nexp >= 0 else None,
+                         "exposure_s": o.exposure_s, "detects": bool(o.detected), "score": o.score,
+                         "chosen": o is p.choice})
+    return rows
+
+
+def _feature_rows(plan) -> list[dict]:
+    """plan.features with empty text (no arm, say) as missing."""
+    return [{k: (None if v == "" else v) for k, v in r.items()} for r in plan.features]
+
+
+def write_tables(plan, folder: Path) -> dict:
+    """``windows.ecsv``, ``features.ecsv``, ``exposures.ecsv`` in ``folder``; returns their names."""
+    meta = table_meta(plan)
+    _table(window_rows(plan), WINDOW_COLUMNS, folder / "windows.ecsv",
+           "kncast plan: every observing window per site and night (used = the window the plan uses)", meta)
+    _table(_feature_rows(plan), FEATURE_COLUMNS, folder / "features.ecsv",
+           "kncast plan: what each feature will show per site-night epoch and setup in the usable time "
+           f"(significance of the trough, continuum S/N per {plan.settings['bin_kms']:g} km/s bin; target: a "
+           "diagnostic feature of that epoch)", meta)
+    _table(exposure_rows(plan), EXPOSURE_COLUMNS, folder / "exposures.ecsv",
+           "kncast plan: per site-night epoch and setup, the best-measured diagnostic trough: its significance "
+           f"in the usable time and the exposure reaching {plan.settings['sigma']:g} sigma", meta)
+    return {"windows": "windows.ecsv", "features": "features.ecsv", "exposures": "exposures.ecsv"}
