@@ -24,7 +24,7 @@ def add_arguments(p) -> None:
                    help="first day of the semester (UTC)")
     g.add_argument("--end", type=_common.iso_date("--end"), required=True, metavar="YYYY-MM-DD",
                    help="end of the semester (UTC, exclusive)")
-    g.add_argument("--horizon-mpc", type=_common.finite_float("--horizon-mpc", 0, 5000, low_open=True),
+    g.add_argument("--horizon-mpc", type=_common.finite_float("--horizon-mpc", 0, r.HORIZON_MAX_MPC, low_open=True),
                    default=r.DEFAULT_HORIZON_MPC, metavar="D",
                    help=f"luminosity distance out to which the gravitational-wave network detects the merger class, "
                         f"Mpc (default {r.DEFAULT_HORIZON_MPC:g}: low end of the planned 160-190 Mpc range of the "

@@ -122,7 +122,7 @@ def _detect(pop, table, ns, hours, phase, airmass) -> dict:
 
     n_e, n_s, _ = hours.shape
     usable_s = np.clip(np.minimum(hours, ns.max_hours) * 3600.0 - ns.overhead_s, 0.0, None)
-    scale = (table.ref_distance_mpc / pop.distance_mpc)[:, None, None] ** 2
+    scale = ((table.ref_distance_mpc / pop.distance_mpc) ** 2 * (1 + table.ref_redshift) / (1 + pop.redshift))[:, None, None]
     credited = np.full((n_e, n_s, ns.nights), -1)
     best_sig = np.zeros((n_e, n_s, ns.nights))
     for s, cols in enumerate(ns.site_cols):  # a loop over sites only

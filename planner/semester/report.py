@@ -20,8 +20,8 @@ CAUTIONS = (
     "check it against the paper before a proposal quotes it.",
     "No weather, no Moon (dark sky), no telescope time-allocation or trigger delays: the counts are upper "
     "bounds for the nights a proposal can actually use.",
-    "The (1 + z) dilation of the source-frame rate and the redshift of the features over 0 < z < 0.07 are "
-    "neglected (both below 7 % inside 300 Mpc).",
+    "The (1 + z) dilation of the source-frame rate and the shift of the features and of the age with redshift "
+    "are neglected (below 7 % inside 300 Mpc, 12 % at the 600 Mpc limit); the flux carries its 1 / (D_L^2 (1 + z)).",
     "Forecasts are model estimates: the photosphere and line strengths come from simplified models; the "
     "observatory's own exposure-time tools and rules take precedence.",
 )

@@ -30,6 +30,7 @@ DEFAULT_DUTY = 0.7              # Abbott et al. 2020, Living Rev. Relativ. 23, 3
 DEFAULT_MASS_MSUN = (0.01, 0.1)  # Metzger 2019, Living Rev. Relativ. 23, 1, from memory
 DEFAULT_VELOCITY_C = (0.1, 0.3)  # Metzger 2019, Living Rev. Relativ. 23, 1, from memory
 DEFAULT_EVENTS = 10_000
+HORIZON_MAX_MPC = 600.0         # z = 0.12: the table's one spectral shape stays within 12 % of a trough width
 DEFAULT_NIGHTS = 7
 MODEL_REALISATIONS = 6          # ejecta draws tabulated; each merger takes one at random
 PHASE_NODES = 20                # phase nodes of the table, log-spaced from FIRST_PHASE_D to the last night
@@ -71,8 +72,8 @@ def check(st: Settings) -> None:
     lo, hi = st.rate
     if not (np.isfinite(lo) and np.isfinite(hi) and 0.0 < lo <= hi <= 1e6):
         raise ParameterError("rate", f"{lo:g}" if lo == hi else f"{lo:g},{hi:g}", "a rate or LO,HI with 0 < LO <= HI <= 1e6 Gpc^-3 yr^-1")
-    if not (np.isfinite(st.horizon_mpc) and 1.0 <= st.horizon_mpc <= 5000.0):
-        raise ParameterError("horizon_mpc", st.horizon_mpc, "a luminosity distance in [1, 5000] Mpc")
+    if not (np.isfinite(st.horizon_mpc) and 1.0 <= st.horizon_mpc <= HORIZON_MAX_MPC):
+        raise ParameterError("horizon_mpc", st.horizon_mpc, f"a luminosity distance in [1, {HORIZON_MAX_MPC:g}] Mpc")
     if not (np.isfinite(st.duty) and 0.0 < st.duty <= 1.0):
         raise ParameterError("duty", st.duty, "a fraction in (0, 1]")
     if not st.end > st.start:
@@ -183,7 +184,10 @@ def proposal_grid(refs, sigma_kw) -> dict:
     n_p, n_d, cols = phases.size, dist.size, np.arange(len(refs))
     p = np.broadcast_to(np.arange(n_p)[:, None], (n_p, n_d))
     zero = np.zeros((n_p, n_d), int)
-    scale = np.broadcast_to((100.0 / dist)[None, :] ** 2, (n_p, n_d))
+    from kncast.forecast.distance import redshift_for_distance
+
+    z = np.array([redshift_for_distance(d) for d in dist])  # nine grid distances
+    scale = np.broadcast_to(((100.0 / dist) ** 2 * (1 + tab.ref_redshift) / (1 + z))[None, :], (n_p, n_d))
     t = GRID_HOURS * 3600.0
     sig = significance(tab, zero, p, zero, cols, scale, np.full((n_p, n_d), t))        # (P, D, F, C)
     best = sig.argmax(axis=-2)                                                           # (P, D, C)

@@ -5,12 +5,13 @@ and each airmass node, :func:`kncast.planner.measure.measure` finds, per diagnos
 where the trough's continuum is measured (on the detector, outside opaque telluric bands, above the
 atmospheric cut-off), its expected depth and its usable velocity bins; the electron rates there
 (:func:`kncast.forecast.exposure.rates`, dark sky) are stored at a reference distance.  A simulated
-event at luminosity distance D then has source rates scaled by (D_ref / D)^2 and its significance
+event at luminosity distance D and redshift z then has source rates scaled by (D_ref / D)^2 (1 + z_ref) / (1 + z)
+(F_lambda of :class:`kncast.forecast.source.Transient`) and its significance
 follows from the CCD equation for its usable time (:func:`significance`), as in
 :mod:`kncast.forecast.detect`: significance = depth x snr_bin x sqrt(n_bins).
 
-Stated approximations: the spectrum's shape is the one at D_ref (the redshift of the features between
-z ~ 0.01 and ~ 0.07 moves a trough by < 6 % of its 0.1-0.3 c width); the dark sky (no Moon).
+Stated approximations: the spectrum's shape and the age are those at D_ref (inside the largest horizon
+allowed, 600 Mpc or z = 0.12, the features move by < 12 % of their 0.1-0.3 c width); the dark sky (no Moon).
 """
 from __future__ import annotations
 
@@ -45,6 +46,7 @@ class Table:
     dark: np.ndarray
     read_var: np.ndarray
     ppb: np.ndarray          # detector pixels per velocity bin (at least 1)
+    ref_redshift: float = 0.0  # redshift at ref_distance_mpc (Planck18)
 
     def node(self, phase_d, airmass):
         """Indices of the nearest phase node and of the first airmass node at or above ``airmass``."""
@@ -96,7 +98,7 @@ def build_table(photospheres, refs, phases_d, airmass, ref_distance_mpc, sigma, 
             _site_rows(out, k, tr, fc, refs, cols, phases_d, airmass, tellurics, sigma, bin_kms, min_depth,
                        telluric_threshold)
     return Table(phases_d=phases_d, airmass=airmass, setup_ids=[r.id for r in refs], feature_ids=features,
-                 ref_distance_mpc=float(ref_distance_mpc), **out)
+                 ref_distance_mpc=float(ref_distance_mpc), ref_redshift=float(tr.redshift), **out)
 
 
 def _site_rows(out, k, tr, fc, refs, cols, phases_d, airmass, tellurics, sigma, bin_kms, min_depth, threshold):
