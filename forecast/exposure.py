@@ -208,6 +208,22 @@ def rates(flux_flam, grid: SetupGrid, conditions: Conditions, telluric=1.0, *, i
                  grid.full_well_e, grid.on_detector, frac * np.ones_like(lam), fwhm * np.ones_like(lam))
 
 
+def scale_source(r: Rates, scale) -> Rates:
+    """``r`` with the source multiplied by ``scale`` (e.g. (D / D_draw)^2 for a distance draw), an array
+    broadcasting as (n_draws, *rates shape) when it has more axes than the rates (a leading draws axis);
+    the sky, dark and read-noise terms are unchanged, the brightest pixel gains the source's share."""
+    import dataclasses
+
+    s = np.asarray(scale, dtype=float)
+    src = r.source_e_per_s[None] * s if s.ndim > np.ndim(r.source_e_per_s) else r.source_e_per_s * s
+    lead = (None,) if s.ndim > np.ndim(r.source_e_per_s) else ()
+    source_peak = np.clip(r.peak_e_per_s_pix - r.sky_e_per_s_pix - r.dark_e_per_s_pix, 0.0, None)
+    return dataclasses.replace(r, source_e_per_s=src,
+                               peak_e_per_s_pix=r.peak_e_per_s_pix[lead] + (s - 1.0) * source_peak[lead],
+                               wavelength_A=np.broadcast_to(r.wavelength_A, src.shape),
+                               on_detector=np.broadcast_to(r.on_detector, src.shape))
+
+
 def _zenith_deg(airmass):
     from kncast.forecast.airmass import zenith_from_airmass
 

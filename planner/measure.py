@@ -131,27 +131,10 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
 
 
 def _scaled(r, scale):
-    """Rates with the source (and the brightest pixel's source part) multiplied by each of ``scale``
-    (n_draws,): arrays gain a leading draws axis."""
-    return scaled_rates(r, np.asarray(scale, dtype=float).reshape((-1,) + (1,) * np.ndim(r.source_e_per_s)))
+    """Rates with the source multiplied by each of ``scale`` (n_draws,): arrays gain a leading draws axis."""
+    from kncast.forecast.exposure import scale_source
 
-
-def scaled_rates(r, scale):
-    """Rates (kncast.forecast.exposure.Rates) with the source multiplied by ``scale``, an array whose shape
-    broadcasts as (n_draws, *rates shape) (a leading draws axis); sky, dark and read noise unchanged."""
-    import dataclasses
-
-    s = np.asarray(scale, dtype=float)
-    src = r.source_e_per_s[None] * s if s.ndim > np.ndim(r.source_e_per_s) else r.source_e_per_s * s
-    return dataclasses.replace(r, source_e_per_s=src,
-                               peak_e_per_s_pix=r.peak_e_per_s_pix[None] + (s - 1.0) * _source_peak(r)[None],
-                               wavelength_A=np.broadcast_to(r.wavelength_A, src.shape),
-                               on_detector=np.broadcast_to(r.on_detector, src.shape))
-
-
-def _source_peak(r):
-    """The source's share of the brightest pixel's rate (peak minus sky and dark)."""
-    return np.clip(r.peak_e_per_s_pix - r.sky_e_per_s_pix - r.dark_e_per_s_pix, 0.0, None)
+    return scale_source(r, np.asarray(scale, dtype=float).reshape((-1,) + (1,) * np.ndim(r.source_e_per_s)))
 
 
 def _take(a, pick):
@@ -177,24 +160,9 @@ def trough_window(windows, rows):
     return lo, np.maximum(windows.trough_A[rows], lo + 1e-3)
 
 
-TROUGH_BLOCK_ROWS = 32  # rows per model call in _trough_flux: memory ~ block x rows, not rows^2
-
-
 def _trough_flux(transient, phase_d, lam):
-    """Observed continuum F_lambda at each row's own troughs (rows x features).
-
-    One model call per block of rows, each block's rows at the block's troughs (the diagonal kept):
-    time and memory grow linearly with the rows (epochs), not with their square.
-    """
-    n, nf = lam.shape
-    phase_d = np.asarray(phase_d, float)
-    out = np.empty((n, nf))
-    for lo in range(0, n, TROUGH_BLOCK_ROWS):
-        hi = min(lo + TROUGH_BLOCK_ROWS, n)
-        m = hi - lo
-        every = transient.flux_flam(phase_d[lo:hi], lam[lo:hi].ravel()).reshape(m, m, nf)
-        out[lo:hi] = every[np.arange(m), np.arange(m)]
-    return out
+    """Observed continuum F_lambda at each row's own troughs (rows x features), linear in the rows."""
+    return transient.flux_flam_rows(np.asarray(phase_d, float), lam)
 
 
 def _flat_conditions(cond, n_rows: int, n_feat: int):
@@ -335,3 +303,25 @@ def feature_short_names() -> dict:
     from kncast.forecast.linelist import LineList
 
     return {f.id: feature_short(f) for f in LineList.load().features()}
+
+
+def measure_sites(plan, fc, epochs: list, by_site: dict, refs: list, transient, flux_scale=None):
+    """Yield (site id, its setups, row indices, usable seconds, Measurements) for every site with planned
+    epochs: one batched :func:`measure` per site with each epoch's window conditions and usable time."""
+    from kncast.planner.observation import batched_conditions, forecast_airmass
+
+    st = plan.settings
+    column = {r.id: k for k, r in enumerate(refs)}
+    site_of = np.array([p.site.id for p in epochs])
+    for site_id, site_refs in by_site.items():  # one batched evaluation per site (a handful of sites)
+        rows = np.flatnonzero(site_of == site_id)
+        if not (site_refs and rows.size):
+            continue
+        windows = [epochs[i].window for i in rows]
+        atm = plan.atmospheres[site_id]
+        seconds = np.array([max(epochs[i].hours_available, 0.0) * 3600.0 for i in rows])
+        m = measure(transient, fc, rows, [column[r.id] for r in site_refs], refs, batched_conditions(windows, atm),
+                    np.array([forecast_airmass(w) for w in windows]), atm.pwv_mm, np.maximum(seconds, 1.0),
+                    plan.tellurics, atm, sigma=st["sigma"], bin_kms=st["bin_kms"],
+                    telluric_threshold=st["telluric_threshold"], flux_scale=flux_scale)
+        yield site_id, site_refs, rows, seconds, m

@@ -277,7 +277,6 @@ def _draw_ranges(event, transient, request: Request, points, r_pts, time_s, nexp
     """16/50/84 percentiles over the draws of the source (kncast.planner.plan.ensemble) of the S/N at the sample
     points and of the time for the target: the rates at the points scaled per draw, one call per model node."""
     from kncast.forecast import exposure as ex
-    from kncast.planner.measure import scaled_rates
     from kncast.planner.draws import percentiles, source_draws
 
     distances, nodes, node_of, _ranges = source_draws(event, transient, request.draws, request.seed,
@@ -289,7 +288,7 @@ def _draw_ranges(event, transient, request: Request, points, r_pts, time_s, nexp
         mine = np.flatnonzero(node_of == j)
         shape = node.flux_flam(np.array([request.phase_d]), points)[0] / np.where(base > 0, base, 1.0)
         scale = (transient.distance_mpc / distances[mine])[:, None] ** 2 * shape[None, :]
-        r_d = scaled_rates(r_pts, scale)
+        r_d = ex.scale_source(r_pts, scale)
         snr[mine] = np.where(r_pts.on_detector, ex.expose(r_d, time_s, nexp).snr_per_resel, np.nan)
         if target:
             t, _n = ex.time_for_snr(r_d, target["snr_per_resel"], request.max_exposure_s)

@@ -351,7 +351,7 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, say) -> None:
     :func:`kncast.planner.measure.measure` for all its epochs and setups (the usable time of each
     epoch, its airmass and Moon), at the trough of every feature.
     """
-    from kncast.planner.measure import measure
+    from kncast.planner.measure import measure_sites
 
     refs = [r for site_refs in by_site.values() for r in site_refs]
     if not epochs or not refs:
@@ -359,25 +359,13 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, say) -> None:
     fc = feature_forecast(plan, epochs, refs)
     say("exposure times")
     st = plan.settings
-    column = {r.id: k for k, r in enumerate(refs)}
-    site_of = np.array([p.site.id for p in epochs])
-    for site_id, site_refs in by_site.items():  # one batched evaluation per site (a handful of sites)
-        rows = np.flatnonzero(site_of == site_id)
-        if not (site_refs and rows.size):
-            continue
-        windows = [epochs[i].window for i in rows]
-        atm = plan.atmospheres[site_id]
-        seconds = np.array([max(epochs[i].hours_available, 0.0) * 3600.0 for i in rows])
-        m = measure(plan.transient, fc, rows, [column[r.id] for r in site_refs], refs,
-                    batched_conditions(windows, atm), np.array([forecast_airmass(w) for w in windows]),
-                    atm.pwv_mm, np.maximum(seconds, 1.0), plan.tellurics, atm,
-                    sigma=st["sigma"], bin_kms=st["bin_kms"], telluric_threshold=st["telluric_threshold"])
+    for site_id, site_refs, rows, _seconds, m in measure_sites(plan, fc, epochs, by_site, refs, plan.transient):
         targets = _targets(m, fc, st)
         for k, i in enumerate(rows):
             p = epochs[i]
             p.outcomes = [_outcome(plan, p, fc, m, targets, k, j, ref) for j, ref in enumerate(site_refs)]
             if st.get("snr_at_A") is not None or p.phase_d < CLASSIFICATION_DAYS:
-                _continuum_at(plan, p, site_refs, atm, st["classification_A"])
+                _continuum_at(plan, p, site_refs, plan.atmospheres[site_id], st["classification_A"])
 
 
 def _targets(m, fc, st) -> np.ndarray:

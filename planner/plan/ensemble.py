@@ -31,8 +31,7 @@ def run_ensemble(plan, epochs: list, by_site: dict, n_draws: int, seed: int | No
 
     ``bands``: the magnitude bands quoted per epoch; ``feature_forecast(plan, epochs, refs, transient)``: the
     plan's feature forecast (passed in so that this module does not import the plan's core)."""
-    from kncast.planner.measure import diagnostic_mask, measure
-    from kncast.planner.observation import batched_conditions, forecast_airmass
+    from kncast.planner.measure import diagnostic_mask, measure_sites
     ev, st = plan.event, plan.settings
     d0 = plan.transient.distance_mpc
     sigma_d = getattr(ev, "distance_err_mpc", None)
@@ -40,8 +39,6 @@ def run_ensemble(plan, epochs: list, by_site: dict, n_draws: int, seed: int | No
                                                           bool(st.get("model_overridden")))
     n_nodes = len(transients)
     refs = [r for site_refs in by_site.values() for r in site_refs]
-    column = {r.id: k for k, r in enumerate(refs)}
-    site_of = np.array([p.site.id for p in epochs])
     phases = np.array([p.phase_d for p in epochs])
     useful = np.zeros((n_draws, len(epochs)), dtype=bool)
     chosen_sig = np.full((n_draws, len(epochs)), np.nan)
@@ -57,17 +54,8 @@ def run_ensemble(plan, epochs: list, by_site: dict, n_draws: int, seed: int | No
             mags[b][mine] = np.asarray(node_mags[b])[None, :] + shift
         fc = feature_forecast(plan, epochs, refs, transient)
         ids = [f.id for f in fc.features]
-        for site_id, site_refs in by_site.items():
-            rows = np.flatnonzero(site_of == site_id)
-            if not (site_refs and rows.size):
-                continue
-            windows = [epochs[i].window for i in rows]
-            atm = plan.atmospheres[site_id]
-            seconds = np.array([max(epochs[i].hours_available, 0.0) * 3600.0 for i in rows])
-            m = measure(transient, fc, rows, [column[r.id] for r in site_refs], refs, batched_conditions(windows, atm),
-                        np.array([forecast_airmass(w) for w in windows]), atm.pwv_mm, np.maximum(seconds, 1.0),
-                        plan.tellurics, atm, sigma=st["sigma"], bin_kms=st["bin_kms"],
-                        telluric_threshold=st["telluric_threshold"], flux_scale=(d0 / distances[mine]) ** 2)
+        for _site, site_refs, rows, seconds, m in measure_sites(plan, fc, epochs, by_site, refs, transient,
+                                                                 flux_scale=(d0 / distances[mine]) ** 2):
             targets = diagnostic_mask(m, st.get("features"), ids, st["min_depth"])         # (R, F)
             hit = (m.draw_significance >= st["sigma"]) & targets[None, :, :, None]          # (n, R, F, C)
             ok = hit.any(axis=(2, 3)) & (seconds > 0)[None, :]
