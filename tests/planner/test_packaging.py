@@ -36,3 +36,16 @@ def test_wheel_ships_forecast_data():
     for path in sorted((ROOT / "forecast" / "data").glob("*")):
         if path.suffix in (".toml", ".ecsv"):
             assert f"kncast/forecast/data/{path.name}" in files
+
+
+def test_every_package_folder_is_installed():
+    # a sub-package missing from pyproject's explicit list would be absent from the wheel
+    import tomllib
+
+    listed = set(tomllib.loads((ROOT / "pyproject.toml").read_text())["tool"]["setuptools"]["packages"])
+    found = set()
+    for folder, dotted in (("planner", "kncast.planner"), ("forecast", "kncast.forecast")):
+        for init in (ROOT / folder).rglob("__init__.py"):
+            rel = init.parent.relative_to(ROOT / folder)
+            found.add(".".join([dotted, *rel.parts]))
+    assert found <= listed, sorted(found - listed)
