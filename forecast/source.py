@@ -29,6 +29,14 @@ from kncast.forecast.units import FLAM, value_in
 
 
 @dataclass(frozen=True)
+class _StateRows:
+    """The per-component temperatures and radii of some epochs: what the spectrum needs of a state."""
+
+    comp_temperature_K: np.ndarray
+    comp_radius_cm: np.ndarray
+
+
+@dataclass(frozen=True)
 class PhotosphereState:
     """The photosphere at a set of epochs (arrays over epochs; per-component arrays (n_comp, n_epoch)).
 
@@ -58,6 +66,9 @@ class PhotosphereState:
     comp_v_phot_c: np.ndarray
     v_line_c: np.ndarray
     comp_v_line_c: np.ndarray
+
+
+ROWS_BLOCK = 32  # epochs per spectrum call in Transient.flux_flam_rows
 
 
 class Transient:
@@ -133,6 +144,27 @@ class Transient:
         check_range("wavelength_A", lam_obs, 0.0, None, low_open=True, unit=" A")
         st = self.state(phase)
         return self._flux_from_state(st, lam_obs)
+
+    def flux_flam_rows(self, phase_d, wavelength_A) -> np.ndarray:
+        """Observed F_lambda at each epoch's own wavelengths: ``wavelength_A`` (n_epoch, n_wave) -> (n_epoch, n_wave).
+
+        The photosphere is evaluated once for all epochs; the spectrum block by block of ROWS_BLOCK epochs
+        (each block at the block's wavelengths, the diagonal kept), so time and memory grow linearly with
+        the epochs, and every value equals ``flux_flam`` at the same epochs.
+        """
+        phase = self._phases(phase_d)
+        lam = np.asarray(wavelength_A, dtype=float)
+        if lam.ndim != 2 or lam.shape[0] != phase.size:
+            raise ForecastInputError(f"wavelength_A: shape {lam.shape}, expected ({phase.size}, n_wave)")
+        check_range("wavelength_A", lam, 0.0, None, low_open=True, unit=" A")
+        st = self.state(phase)
+        out = np.empty(lam.shape)
+        for lo in range(0, phase.size, ROWS_BLOCK):
+            hi = min(lo + ROWS_BLOCK, phase.size)
+            part = _StateRows(st.comp_temperature_K[:, lo:hi], st.comp_radius_cm[:, lo:hi])
+            every = self._flux_from_state(part, lam[lo:hi].ravel()).reshape(hi - lo, hi - lo, -1)
+            out[lo:hi] = every[np.arange(hi - lo), np.arange(hi - lo)]
+        return out
 
     def _flux_from_state(self, st: PhotosphereState, lam_obs: np.ndarray) -> np.ndarray:
         z1 = 1.0 + self.redshift
