@@ -9,7 +9,6 @@ docs/commands/plan.md, section "ECSV columns".
 from __future__ import annotations
 
 import functools
-import multiprocessing
 import os
 from pathlib import Path
 
@@ -26,11 +25,12 @@ FIGURE_DPI = 90
 
 
 # ---------------------------------------------------------------------------- figures
-def _save(fig, folder: Path, name: str, tight: bool = False) -> str:
+def _save(fig, folder: Path, name: str) -> str:
+    """Save ``fig`` as figures/NAME.png at its own fixed layout (no tight bounding box: one draw)."""
     from kncast.planner.output import save_figure
 
     rel = f"figures/{name}.png"
-    save_figure(fig, folder / rel, dpi=FIGURE_DPI, bbox_inches="tight" if tight else None)
+    save_figure(fig, folder / rel, dpi=FIGURE_DPI, bbox_inches=None)
     return rel
 
 
@@ -50,6 +50,8 @@ def write_figures(plan, folder: Path, figures: str = "chosen") -> list[dict]:
     independent: two forked worker processes draw them where the platform can fork and the estimated
     time saved (:func:`use_pool`) exceeds the cost of the workers; otherwise they are drawn in turn.
     """
+    import multiprocessing
+
     import matplotlib
 
     matplotlib.use("Agg")
