@@ -105,17 +105,23 @@ def run(args) -> int:
     check_out(out)
     if args.json and args.json != "-":
         _common.check_output_file("--json", args.json)
+    client = None
     if args.dask:
-        from kncast.planner.semester.cluster import check_available
+        from kncast.planner.semester.cluster import connect
 
-        check_available()
+        client = connect(args.dask)  # before the work: an unreachable scheduler fails at once
     quiet = bool(args.json)
-    with _common.progress(disable=quiet) as bar:
-        task = bar.add_task("semester", total=5)
-        res = simulate_semester(st, dask_address=args.dask, progress=lambda t: bar.update(task, description=t, advance=1))
-        from kncast.planner.semester.report import write_folder
+    try:
+        with _common.progress(disable=quiet) as bar:
+            task = bar.add_task("semester", total=5)
+            res = simulate_semester(st, dask_address=client,
+                                    progress=lambda t: bar.update(task, description=t, advance=1))
+    finally:
+        if client is not None:
+            client.close()
+    from kncast.planner.semester.report import write_folder
 
-        doc = write_folder(res, out)
+    doc = write_folder(res, out)
     if args.json:
         _common.emit_json(args.json, doc)
     if args.json != "-":
