@@ -56,7 +56,7 @@ def add_arguments(p) -> None:
                    help="highest airmass (Kasten & Young 1989), in (1, 38]")
     n.add_argument("--sigma", type=_common.finite_float("--sigma", 0, 100, low_open=True), default=DEFAULT_SIGMA,
                    metavar="N", help=f"significance a diagnostic feature must reach for a useful epoch "
-                                     f"(default {DEFAULT_SIGMA:g})")
+                                     f"(default {DEFAULT_SIGMA:g}, common practice)")
     n.add_argument("--max-hours", type=_common.finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
                    metavar="H", help="at most this many hours per night on the target (default 4)")
     n.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
