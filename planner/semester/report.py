@@ -145,7 +145,7 @@ def run_hours() -> str:
 
 def write_tables(res: dict, folder: Path) -> dict:
     """grid.ecsv, setups.ecsv, epochs.ecsv; returns their names."""
-    from kncast.planner.plan.folder import _write_table
+    from kncast.planner.plan.tables import write_table as _write_table
 
     g = res["grid"]
     n_p, n_d, n_c = g["significance"].shape
