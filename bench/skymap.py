@@ -21,6 +21,14 @@ pixels with |altitude| <= 80 deg (the kernel neglects annual aberration,
 
 Last line: ``RESULT seconds=<load + coverage> baseline_seconds=<scaled astropy> speedup=<baseline/ours>
 max_alt_diff_arcsec=...``.
+
+``--full``: a full-resolution alert, nside 1024 (12.6 M pixels) x 8 sites x FULL_NIGHTS nights with the
+Moon rule, as ``kncast coverage`` runs it (load, coverage, the map summary).  The map is written by a
+child process, so the printed peak resident memory (``ru_maxrss``) is kncast's.  Goal: under
+FULL_GOAL_S seconds and FULL_GOAL_MIB MiB.  Agreement: the closed-form count against the
+sample-by-sample kernel (``_accumulate_direct``) on every FULL_CHECK_STEP-th pixel, all sites and
+nights: per site/night probabilities within 1e-6.  Last line: ``RESULT seconds=... peak_mib=...
+max_prob_diff=...``.
 """
 from __future__ import annotations
 
@@ -37,6 +45,7 @@ N_SITES = 8
 BASE_SAMPLES = 4  # sample times of the astropy baseline, scaled to all samples
 ALT_TOL_ARCSEC = 30.0  # agreement required of kncast's altitudes with astropy's (|alt| <= 80 deg)
 T0 = "2027-04-10T00:00:00Z"  # leaves the most dark time after t0 in night 1 over the 8 sites (66 h)
+FULL_NSIDE, FULL_NIGHTS, FULL_GOAL_S, FULL_GOAL_MIB, FULL_CHECK_STEP = 1024, 7, 15.0, 600.0, 16
 
 
 def invented_map(nside: int):
@@ -138,5 +147,56 @@ def main() -> int:
                   f"max_alt_diff_arcsec={alt_diff:.1f}")
 
 
+def full_run() -> int:
+    """nside 1024 x 8 sites x FULL_NIGHTS nights: time, peak memory, agreement with the direct kernel."""
+    import dataclasses
+    import resource
+    import subprocess
+
+    from kncast.planner.events.model import parse_time_utc
+    from kncast.planner.events.skymap import load_skymap
+    from kncast.planner.sites import SiteRegistry
+    from kncast.planner.visibility import skycoverage as cov
+
+    sites = SiteRegistry.load().select()[:N_SITES]
+    t0 = parse_time_utc(T0, "--t0")
+    with tempfile.TemporaryDirectory() as d:
+        path = Path(d) / "bench-map.fits"
+        subprocess.run([sys.executable, "-c", f"import sys; sys.path.insert(0, {str(Path(__file__).parent)!r}); "
+                        f"import skymap; skymap.write_map(__import__('pathlib').Path({str(path)!r}), {FULL_NSIDE})"],
+                       check=True)
+        start = time.perf_counter()
+        skymap = load_skymap(path)
+        loaded = time.perf_counter()
+        result = cov.compute_coverage(skymap, sites, t0, nights=FULL_NIGHTS, min_moon_sep_deg=30.0, pixel_flags=False)
+        summary = skymap.summary()
+        done = time.perf_counter()
+    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
+    print(f"map: nside {FULL_NSIDE}, {skymap.npix} pixels; {len(sites)} sites x {FULL_NIGHTS} nights, "
+          f"{sum(n.samples for n in result.nights)} samples, Moon rule 30 deg; 90% area {summary['area90_deg2']} deg2")
+    print(f"load {loaded - start:.2f} s, coverage + summary {done - loaded:.2f} s, peak {peak:.0f} MiB "
+          f"(goal < {FULL_GOAL_S:g} s, < {FULL_GOAL_MIB:g} MiB)")
+    sub = np.arange(0, skymap.npix, FULL_CHECK_STEP)
+    part = dataclasses.replace(skymap, xyz=skymap.xyz[:, sub], prob=skymap.prob[sub], level=skymap.level[sub],
+                               ipix=skymap.ipix[sub], distmu_mpc=None, distsigma_mpc=None, distnorm_per_mpc2=None)
+    runs = []
+    for kernel in (cov._accumulate, cov._accumulate_direct):
+        saved, cov._accumulate = cov._accumulate, kernel
+        try:
+            t = time.perf_counter()
+            runs.append((cov.compute_coverage(part, sites, t0, nights=FULL_NIGHTS, min_moon_sep_deg=30.0,
+                                              pixel_flags=False), time.perf_counter() - t))
+        finally:
+            cov._accumulate = saved
+    diff = max(abs(a.observable_probability - b.observable_probability) for a, b in zip(runs[0][0].nights, runs[1][0].nights))
+    print(f"agreement on every {FULL_CHECK_STEP}th pixel ({sub.size}): closed form {runs[0][1]:.2f} s, "
+          f"sample by sample {runs[1][1]:.2f} s, max |P_obs difference| {diff:.2e} (tolerance 1e-6)")
+    ok = diff <= 1e-6
+    if not ok:
+        print("DISAGREEMENT: the closed-form count and the direct kernel differ", file=sys.stderr)
+    print(f"RESULT seconds={done - start:.2f} peak_mib={peak:.0f} max_prob_diff={diff:.2e}")
+    return 0 if ok else 1
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(full_run() if "--full" in sys.argv[1:] else main())

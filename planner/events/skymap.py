@@ -27,6 +27,7 @@ import io
 import math
 import warnings
 from dataclasses import dataclass
+from functools import cached_property
 from pathlib import Path
 
 import numpy as np
@@ -59,7 +60,8 @@ class SkyMap:
     """A probability sky map as pixels: ICRS centres, probabilities (sum 1), areas.
 
     Flat and multi-order maps share this form: every pixel carries its HEALPix
-    ``level`` and NESTED index ``ipix`` (so ``nside = 2**level``).
+    ``level`` and NESTED index ``ipix`` (so ``nside = 2**level``).  Whole-map quantities
+    (density, credible regions, peak, distance moments, summary) are computed once and kept.
     """
 
     path: str
@@ -83,12 +85,12 @@ class SkyMap:
     def max_level(self) -> int:
         return int(self.level.max())
 
-    @property
+    @cached_property
     def area_sr(self) -> np.ndarray:
         """Solid angle of every pixel, steradian (4 pi / (12 * 4^level))."""
         return 4.0 * math.pi / (12.0 * 4.0 ** self.level)
 
-    @property
+    @cached_property
     def density_per_sr(self) -> np.ndarray:
         return self.prob / self.area_sr
 
@@ -102,20 +104,30 @@ class SkyMap:
 
         The pixel that carries the cumulative probability across ``level`` is included.
         """
+        return self._probability_denser < level
+
+    @cached_property
+    def _probability_denser(self) -> np.ndarray:
+        """Per pixel: the probability of the pixels before it in decreasing density (stable order)."""
         order = np.argsort(-self.density_per_sr, kind="stable")
-        before = np.cumsum(self.prob[order]) - self.prob[order]
-        mask = np.zeros(self.npix, dtype=bool)
-        mask[order[before < level]] = True
-        return mask
+        p = self.prob[order]
+        before = np.empty(self.npix)
+        before[order] = np.cumsum(p) - p
+        return before
 
     def credible_area_deg2(self, level: float = 0.9) -> float:
         return float(np.sum(self.area_sr[self.credible_mask(level)]) * SR_TO_DEG2)
 
     def peak_radec_deg(self):
         """(ra, dec) in degrees of the pixel of highest probability density."""
-        ra, dec = self.ra_dec_deg
+        return self._peak
+
+    @cached_property
+    def _peak(self):
         k = int(np.argmax(self.density_per_sr))
-        return float(ra[k]), float(dec[k])
+        x, y, z = self.xyz[:, k:k + 1]
+        return (float(np.degrees(np.arctan2(y, x))[0] % 360.0),
+                float(np.degrees(np.arcsin(np.clip(z, -1.0, 1.0)))[0]))
 
     def distance_moments_mpc(self):
         """Mean and standard deviation (Mpc) of the all-sky distance, or (None, None).
@@ -123,6 +135,10 @@ class SkyMap:
         From the per-pixel ansatz p(r | pixel) ~ r^2 N(r; DISTMU, DISTSIGMA) on r > 0
         (Singer et al. 2016), marginalised over pixels; else the DISTMEAN/DISTSTD keywords.
         """
+        return self._distance_moments
+
+    @cached_property
+    def _distance_moments(self):
         if self.distmu_mpc is None or self.distsigma_mpc is None:
             return self.header_distance_mpc
         mu, sigma = self.distmu_mpc, self.distsigma_mpc
@@ -162,6 +178,10 @@ class SkyMap:
 
     def summary(self) -> dict:
         """JSON-ready description (the ``map`` member of the coverage document)."""
+        return dict(self._summary)
+
+    @cached_property
+    def _summary(self) -> dict:
         mean, std = self.distance_moments_mpc()
         return {"path": self.path, "ordering": self.ordering, "coordsys": self.coordsys,
                 "nside": 2 ** self.max_level, "npix": self.npix, "multi_order": self.ordering == "NUNIQ",

@@ -44,6 +44,10 @@ REFERENCES = (CAPITAINE_WALLACE_2006,)
 DEFAULT_STEP_MIN = 10.0
 CHUNK_ELEMENTS = 4_000_000  # pixels x samples per block: bounds memory to a few tens of MB
 CREDIBLE_LEVEL = 0.9
+HIER_DEPTH = 4  # coarse-to-fine test: parents 4 orders above the map (256 children each)
+HIER_MIN_LEVEL = 8  # ... for flat maps from nside 256 (coarser maps: every pixel tested)
+HIER_EPS_RAD = 1e-5  # 2 arcsec: more than float32 rounding of the child-by-child test
+HIER_CHUNK_PIXELS = 1 << 18  # children per block: bounds memory to a few tens of MB
 
 
 @dataclass
@@ -172,10 +176,19 @@ def _record(rec, note, dark_hours, samples) -> CoverageNight:
                          dark_hours=float(dark_hours), samples=int(samples))
 
 
-def frame_vectors(vis, cols: _Columns):
-    """ICRS unit vectors (3, n_samples) of the zenith, north, east and topocentric Moon at each sample."""
+def _night_rotations(vis, cols: _Columns) -> np.ndarray:
+    """One precession-nutation matrix (GCRS -> true equator and equinox of date) per night index, (n, 3, 3)."""
     import erfa
 
+    n_nights = vis.night_bounds_mjd.shape[1] - 1
+    mid = np.array([cols.mjd[cols.night == j].mean() if np.any(cols.night == j) else cols.mjd[0]
+                    for j in range(n_nights)])
+    tt = Time(mid, format="mjd", scale="utc").tt
+    return erfa.pnm06a(tt.jd1, tt.jd2)
+
+
+def frame_vectors(vis, cols: _Columns):
+    """ICRS unit vectors (3, n_samples) of the zenith, north, east and topocentric Moon at each sample."""
     eph = vis.ephemeris
     arrays = sky.SiteArrays.of(vis.sites)
     lat = np.radians(arrays.lat_deg[cols.site, 0])
@@ -185,18 +198,142 @@ def frame_vectors(vis, cols: _Columns):
     north = np.stack([-np.sin(lat) * np.cos(lst), -np.sin(lat) * np.sin(lst), np.cos(lat)])
     east = np.stack([-np.sin(lst), np.cos(lst), np.zeros_like(lst)])
     moon = sky.moon_topocentric(eph, here, cols.mjd)[0]
-    # one precession-nutation matrix (GCRS -> true equator and equinox of date) per night index
-    n_nights = vis.night_bounds_mjd.shape[1] - 1
-    mid = np.array([cols.mjd[cols.night == j].mean() if np.any(cols.night == j) else cols.mjd[0]
-                    for j in range(n_nights)])
-    tt = Time(mid, format="mjd", scale="utc").tt
-    rot = erfa.pnm06a(tt.jd1, tt.jd2)[cols.night]  # (n_samples, 3, 3)
+    rot = _night_rotations(vis, cols)[cols.night]  # (n_samples, 3, 3)
     back = lambda v: np.einsum("cji,jc->ic", rot, v)  # noqa: E731  -- R^T v: of date -> ICRS
     return back(zen), back(north), back(east), back(moon)
 
 
 def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | None) -> None:
-    """Fill the per-record totals and the per-pixel observable flags, chunk by chunk of pixels.
+    """Fill the per-record totals and the per-pixel observable flags.
+
+    Flat maps of HEALPix order >= HIER_MIN_LEVEL are tested coarse to fine: in NESTED order the
+    4^HIER_DEPTH children of a parent pixel are contiguous, and all lie within an angle r (measured
+    on the map) of the parent's centre.  At a sample, a parent whose centre stands more than r (+
+    HIER_EPS_RAD) above the floor and away from the Moon limit passes all its children; one more than
+    r below them fails them all; only the other (parent, sample) pairs are tested child by child,
+    exactly as :func:`_accumulate_direct` tests every pixel.  Other maps go to that function.
+    """
+    level = _hier_level(skymap)
+    if level is None or level < HIER_MIN_LEVEL:
+        _accumulate_direct(skymap, vis, cols, records, obs)
+        return
+    rules = vis.rules
+    zen, north, east, moon = (np.ascontiguousarray(v.T) for v in frame_vectors(vis, cols))  # (n_samples, 3)
+    f32 = lambda v: v.astype(np.float32)  # noqa: E731
+    floor = np.maximum(rules.min_altitude_deg[cols.site], rules.airmass_altitude_deg)
+    top = np.array([-90.0 if hz is None else float(hz.altitude_deg.max()) for hz in rules.horizons])[cols.site]
+    hz_site = [hz for hz in rules.horizons]
+    seg_start = np.flatnonzero(np.r_[True, cols.record[1:] != cols.record[:-1]])
+    seg_end = np.r_[seg_start[1:], cols.mjd.size]
+    seg_record = cols.record[seg_start]
+    ctx = _Hier(f32(zen), f32(north), f32(east), f32(moon), np.sin(np.radians(floor)).astype(np.float32)[:, None],
+                rules.min_moon_sep_deg, seg_start, seg_end)
+    dt_h = cols.dt_h[seg_record]
+    area90_deg2 = np.where(skymap.credible_mask(CREDIBLE_LEVEL), skymap.area_sr * SR_TO_DEG2, 0.0)
+    kids = 4 ** HIER_DEPTH
+    parents_per_chunk = max(1, HIER_CHUNK_PIXELS // kids)
+    prob_obs, hours, area = np.zeros(seg_start.size), np.zeros(seg_start.size), np.zeros(seg_start.size)
+    floor_lo, floor_hi = np.radians(floor)[:, None], np.radians(np.maximum(floor, top))[:, None]
+    for lo in range(0, skymap.npix // kids, parents_per_chunk):
+        sl = slice(lo * kids, min(lo + parents_per_chunk, skymap.npix // kids) * kids)
+        xyz = skymap.xyz[:, sl]
+        centre, radius = _parents(xyz, kids)
+        alt = np.arcsin(np.clip(zen @ centre, -1.0, 1.0))  # (n_samples, n_parents), rad
+        margin = radius[None, :] + HIER_EPS_RAD
+        inside = alt - margin >= floor_hi
+        outside = alt + margin < floor_lo
+        if ctx.moon_rule:
+            cos_sep = moon @ centre
+            limit = math.radians(ctx.moon_rule)
+            inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
+            outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
+        count = np.repeat(np.add.reduceat(inside.view(np.uint8), seg_start, axis=0, dtype=np.uint16), kids, axis=1)
+        mixed = ~(inside | outside)
+        _refine(count, mixed, xyz.astype(np.float32), kids, ctx, [hz_site[i] for i in cols.site[seg_start]])
+        seen = count > 0
+        if obs is not None:
+            obs[sl, seg_record] = seen.T
+        weights = np.stack([skymap.prob[sl], area90_deg2[sl]], axis=1)  # (m, 2)
+        seen_sums = seen.astype(np.float64) @ weights
+        prob_obs += seen_sums[:, 0]
+        area += seen_sums[:, 1]
+        hours += (count.astype(np.float64) @ weights[:, 0]) * dt_h
+    for s, k in enumerate(seg_record):
+        records[k].observable_probability = float(min(prob_obs[s], 1.0))
+        records[k].weighted_hours = float(hours[s])
+        records[k].area90_observable_deg2 = float(area[s])
+
+
+@dataclass(frozen=True)
+class _Hier:
+    """Per-sample float32 frames of the child-by-child test, and the site/night blocks of rows."""
+
+    zen: np.ndarray  # (n_samples, 3), ICRS
+    north: np.ndarray
+    east: np.ndarray
+    moon: np.ndarray
+    sin_floor: np.ndarray  # (n_samples, 1)
+    moon_rule: float | None
+    seg_start: np.ndarray
+    seg_end: np.ndarray
+
+
+def _hier_level(skymap: SkyMap):
+    """The map's HEALPix order when it is flat and in NESTED order (children of a pixel contiguous), else None."""
+    if skymap.ordering == "NUNIQ":
+        return None
+    if skymap.ipix[0] != 0 or np.any(np.diff(skymap.ipix) != 1):
+        return None
+    return skymap.max_level
+
+
+def _parents(xyz: np.ndarray, kids: int):
+    """Unit centre (3, n) of each run of ``kids`` contiguous pixels, and the largest angle (rad) to one of them."""
+    groups = xyz.reshape(3, -1, kids)
+    centre = groups.sum(axis=2)
+    centre /= np.linalg.norm(centre, axis=0, keepdims=True)
+    cos_max = np.einsum("jpk,jp->pk", groups, centre).min(axis=1)
+    return centre, np.arccos(np.clip(cos_max, -1.0, 1.0))
+
+
+def _refine(count, mixed, pix, kids: int, ctx: _Hier, seg_hz) -> None:
+    """Add, for the (sample, parent) pairs ``mixed``, the children observable at that sample (tested one by one)."""
+    n_seg = count.shape[0]
+    count3 = count.reshape(n_seg, -1, kids)
+    groups = pix.reshape(3, -1, kids)
+    cos_sep = np.float32(math.cos(math.radians(ctx.moon_rule))) if ctx.moon_rule else None
+    for s in range(n_seg):
+        a, b = int(ctx.seg_start[s]), int(ctx.seg_end[s])
+        parent, k = np.nonzero(mixed[a:b].T)  # grouped by parent
+        if not parent.size:
+            continue
+        k = k + a
+        child = groups[:, parent, :]  # (3, n_pairs, kids)
+        sin_alt = np.einsum("pj,jpk->pk", ctx.zen[k], child)
+        ok = sin_alt >= ctx.sin_floor[k]
+        hz = seg_hz[s]
+        if hz is not None:
+            _apply_horizon_pairs(ok, sin_alt, ctx.sin_floor[k], child, ctx.north[k], ctx.east[k], hz)
+        if cos_sep is not None:
+            ok &= np.einsum("pj,jpk->pk", ctx.moon[k], child) <= cos_sep
+        starts = np.flatnonzero(np.r_[True, parent[1:] != parent[:-1]])
+        count3[s, parent[starts]] += np.add.reduceat(ok.view(np.uint8), starts, axis=0, dtype=np.uint16)
+
+
+def _apply_horizon_pairs(ok, sin_alt, sin_floor, child, north, east, hz) -> None:
+    """As :func:`_apply_horizon`, on (pair, child) arrays: the profile at each child's azimuth."""
+    top = np.float32(math.sin(math.radians(float(hz.altitude_deg.max()))))
+    band = ok & (sin_alt < top)
+    if not band.any():
+        return
+    e = np.einsum("pj,jpk->pk", east, child)[band]
+    n = np.einsum("pj,jpk->pk", north, child)[band]
+    az = np.degrees(np.arctan2(e, n))
+    ok[band] = sin_alt[band] >= np.sin(np.radians(hz.min_altitude_deg(az)))
+
+
+def _accumulate_direct(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | None) -> None:
+    """As :func:`_accumulate`, every pixel tested at every sample (the reference for the closed form).
 
     Arrays are laid out samples x pixels, so each site/night is a contiguous block of rows.
     """

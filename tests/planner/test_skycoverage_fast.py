@@ -1,0 +1,76 @@
+"""The coarse-to-fine coverage equals the sample-by-sample kernel, and whole-map quantities are kept.
+
+Reference: ``_accumulate_direct``, which tests every pixel at every sample (itself checked against
+astropy's AltAz and the visibility windows in test_skymap.py).  Tolerance 1e-6 in probability (issue 19).
+"""
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from astropy.io import fits
+
+from kncast.planner.events.model import parse_time_utc
+from kncast.planner.events.skymap import load_skymap
+from kncast.planner.sites import SiteRegistry
+from kncast.planner.visibility import skycoverage as cov
+
+NSIDE = 256  # the coarse-to-fine path (nside >= 256); bench/skymap.py --full runs nside 1024
+
+
+def _map(path, nside):
+    from astropy_healpix import healpix_to_xyz
+
+    xyz = np.stack(healpix_to_xyz(np.arange(12 * nside * nside), nside, order="nested"))
+    prob = np.zeros(xyz.shape[1])
+    for ra, dec, kappa, w in [(140, -20, 900, 1.0), (152, -35, 500, 0.8), (300, 40, 300, 0.3), (60, 75, 50, 0.2)]:
+        c = np.array([np.cos(np.radians(dec)) * np.cos(np.radians(ra)),
+                      np.cos(np.radians(dec)) * np.sin(np.radians(ra)), np.sin(np.radians(dec))])
+        prob += w * np.exp(kappa * (c @ xyz - 1.0))
+    hdu = fits.BinTableHDU.from_columns([fits.Column(name="PROB", format="D", array=prob / prob.sum())])
+    hdu.header.update({"PIXTYPE": "HEALPIX", "ORDERING": "NESTED", "NSIDE": nside, "INDXSCHM": "IMPLICIT"})
+    fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(path)
+    return load_skymap(path)
+
+
+def _run(monkeypatch, kernel, skymap, sites, **kw):
+    with monkeypatch.context() as m:
+        m.setattr(cov, "_accumulate", kernel)
+        return cov.compute_coverage(skymap, sites, parse_time_utc("2027-04-10T00:00:00Z", "t0"), **kw)
+
+
+@pytest.mark.parametrize("moon, airmass", [(None, 3.0), (30.0, None)])  # airmass 3: floor 19.5 deg, under the profile
+def test_coarse_to_fine_equals_sample_by_sample(tmp_path, monkeypatch, moon, airmass):
+    skymap = _map(tmp_path / "m.fits", NSIDE)
+    assert cov._hier_level(skymap) == 8
+    # la-palma carries a horizon profile in the bundled registry: the child-by-child profile test is exercised
+    sites = [s for s in SiteRegistry.load().select() if s.id in ("la-palma", "paranal", "hanle")]
+    assert any(s.horizon is not None for s in sites)
+    kw = dict(nights=2, min_moon_sep_deg=moon, max_airmass=airmass)
+    fast = _run(monkeypatch, cov._accumulate, skymap, sites, **kw)
+    ref = _run(monkeypatch, cov._accumulate_direct, skymap, sites, **kw)
+    assert np.mean(fast.observable != ref.observable) < 1e-4
+    for a, b in zip(fast.nights, ref.nights):
+        assert a.samples == b.samples
+        assert a.observable_probability == pytest.approx(b.observable_probability, abs=1e-6)
+        assert a.weighted_hours == pytest.approx(b.weighted_hours, abs=1e-6 * max(a.dark_hours, 1.0))
+        assert a.area90_observable_deg2 == pytest.approx(b.area90_observable_deg2, abs=1e-3)
+
+
+def test_parent_radius_bounds_every_child():
+    from astropy_healpix import healpix_to_xyz
+
+    # children of a NESTED pixel are contiguous (Gorski et al. 2005, ApJ 622, 759, sec. 4)
+    xyz = np.stack(healpix_to_xyz(np.arange(12 * 64 * 64), 64, order="nested"))
+    centre, radius = cov._parents(xyz, 16)
+    ang = np.arccos(np.clip(np.einsum("jpk,jp->pk", xyz.reshape(3, -1, 16), centre), -1, 1))
+    assert np.all(ang.max(axis=1) <= radius + 1e-12)
+    # pixel radius ~ (pi/3)^0.5 / nside (HEALPix pixel size), parents of nside 16 here: about 2 deg
+    assert 0.5 < np.degrees(radius.max()) < 4.0
+
+
+def test_whole_map_quantities_are_computed_once(tmp_path, monkeypatch):
+    skymap = _map(tmp_path / "m.fits", 32)
+    first = skymap.summary()
+    calls = []
+    monkeypatch.setattr(np, "argsort", lambda *a, **k: calls.append(1))
+    assert skymap.summary() == first and skymap.credible_mask(0.9).sum() > 0 and not calls
