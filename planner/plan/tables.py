@@ -90,8 +90,12 @@ def _missing(v) -> bool:
 
 
 def _column(rows: list[dict], name: str, kind, unit, description):
-    """A masked column (or a Time column) of ``rows[*][name]``; None and NaN are masked."""
-    from astropy.table import MaskedColumn
+    """A masked column (or a Time column) of ``rows[*][name]``; None and NaN are masked.
+
+    A column with nothing missing is a plain Column: the ECSV text is the same, and astropy writes a
+    MaskedColumn item by item through numpy.ma (about 1 s for the demo's tables instead of 0.3 s).
+    """
+    from astropy.table import Column, MaskedColumn
     from astropy.time import Time
 
     values = [r[name] for r in rows]
@@ -106,6 +110,8 @@ def _column(rows: list[dict], name: str, kind, unit, description):
     fill = {float: np.nan, int: 0, bool: False, str: ""}[kind]
     dtype = {float: float, int: np.int64, bool: bool, str: str}[kind]
     data = np.array([fill if m else v for v, m in zip(values, mask)], dtype=dtype)
+    if not mask.any():
+        return Column(data, unit=unit, description=description)
     return MaskedColumn(data, mask=mask, unit=unit, description=description)
 
 
