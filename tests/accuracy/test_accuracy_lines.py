@@ -16,6 +16,10 @@ from kncast.forecast.features import Epochs, forecast_features
 from kncast.forecast.linelist import LineList
 from kncast.forecast.lte import SAHA_CONSTANT, SOBOLEV_PREFACTOR_CM2_S, saha_log_ratio
 
+from conftest import ROOT as _ROOT  # noqa: E402
+
+SOURCE_DATA = _ROOT / "forecast" / "data"  # the source tree's data folder (candidates are not installed)
+
 AIRVAC_TOL_A = 0.01         # the tolerance for air/vacuum checks
 PUBLISHED_TOL_A = 1e-6      # published values are stored verbatim
 ROUNDING_TOL_A = 6e-4       # vacuum column is rounded to 0.001 A by make_lines.py
@@ -103,7 +107,7 @@ def lines():
 
     from kncast.forecast.linelist import DEFAULT_PATH
 
-    path = DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv"
+    path = SOURCE_DATA / "candidates" / "line_candidates.ecsv"
     return LineList.load(path), Table.read(path, format="ascii.ecsv")
 
 

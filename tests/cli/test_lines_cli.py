@@ -6,6 +6,10 @@ from pathlib import Path
 
 import pytest
 
+from conftest import ROOT as _ROOT  # noqa: E402
+
+SOURCE_DATA = _ROOT / "forecast" / "data"  # the source tree's data folder (candidates are not installed)
+
 DEMO_EVENT = Path(__file__).resolve().parents[2] / "demo_events" / "kn-demo-south.toml"
 SETUP = "maunakea/t6m/nir-xd"
 TOP_KEYS = {"kncast", "kind", "event", "epochs"}
@@ -71,7 +75,7 @@ def _he_files(tmp_path):
     from kncast.forecast.linelist import DEFAULT_PATH
     from kncast.forecast.lte import Composition
 
-    cand = Table.read(DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv", format="ascii.ecsv")
+    cand = Table.read(SOURCE_DATA / "candidates" / "line_candidates.ecsv", format="ascii.ecsv")
     cand[cand["feature"] == "he1-10830"].write(tmp_path / "he.ecsv", format="ascii.ecsv")
     comp = Composition.load()
     (tmp_path / "he.toml").write_text("[abundances]\n[abundances.mass_fraction]\nHe = 0.01\n" + "".join(

@@ -8,6 +8,10 @@ from kncast.forecast.errors import ForecastInputError
 from kncast.forecast.features import Epochs, epochs_from, forecast_features
 from kncast.forecast.linelist import LineList
 
+from conftest import ROOT as _ROOT  # noqa: E402
+
+SOURCE_DATA = _ROOT / "forecast" / "data"  # the source tree's data folder (candidates are not installed)
+
 
 def _epochs(n=3, vp=0.2, vm=0.35):
     return Epochs(np.linspace(1.5, 6.0, n), np.linspace(1.5, 6.0, n), np.linspace(5500.0, 3000.0, n),
@@ -33,7 +37,7 @@ def with_left_out(tmp_path_factory):
     from kncast.forecast.lte import Composition
 
     tmp = tmp_path_factory.mktemp("left_out")
-    cand = Table.read(DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv", format="ascii.ecsv")
+    cand = Table.read(SOURCE_DATA / "candidates" / "line_candidates.ecsv", format="ascii.ecsv")
     cand[np.isin(np.asarray(cand["feature"]).astype(str), ["he1-10830", "cs1-d", "te3-21050"])].write(
         tmp / "left_out.ecsv", format="ascii.ecsv")
     bundled = Composition.load()

@@ -7,8 +7,12 @@ import pytest
 from kncast.forecast.errors import DataFileError
 from kncast.forecast.linelist import DEFAULT_PATH, LineList
 
+from conftest import ROOT as _ROOT  # noqa: E402
+
+SOURCE_DATA = _ROOT / "forecast" / "data"  # the source tree's data folder (candidates are not installed)
+
 # every line with published data; make_lines.py chooses the bundled list from it (docs/methods.md)
-CANDIDATES = DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv"
+CANDIDATES = SOURCE_DATA / "candidates" / "line_candidates.ecsv"
 
 
 @pytest.fixture(scope="module")
@@ -36,7 +40,7 @@ def test_bundled_list_is_what_the_selection_rule_ships():
 
     from kncast.forecast.lte import Composition
 
-    mod = runpy.run_path(str(DEFAULT_PATH.parent / "make_lines.py"), run_name="kncast_test")
+    mod = runpy.run_path(str(SOURCE_DATA / "make_lines.py"), run_name="kncast_test")
     candidates = Table.read(CANDIDATES, format="ascii.ecsv")
     shipped, decisions = mod["select"](candidates)
     ll = LineList.load()
@@ -73,7 +77,7 @@ def test_regenerate_script_reproduces_the_vacuum_column(tmp_path, text):
     import runpy
 
     copy = _write(tmp_path, text)
-    mod = runpy.run_path(str(DEFAULT_PATH.parent / "make_lines.py"), run_name="kncast_test")
+    mod = runpy.run_path(str(SOURCE_DATA / "make_lines.py"), run_name="kncast_test")
     table = mod["regenerate"](copy)
     assert np.allclose(np.asarray(table["wavelength_A"]), LineList.load().wavelength_A, atol=1e-9)
 

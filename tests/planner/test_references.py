@@ -19,6 +19,10 @@ import pytest
 from kncast.forecast import references as catalogue
 from kncast.forecast.references import Citation, unique
 
+from conftest import ROOT as _ROOT  # noqa: E402
+
+SOURCE_DATA = _ROOT / "forecast" / "data"  # the source tree's data folder (candidates are not installed)
+
 ROOT = Path(__file__).resolve().parents[2]
 SOUTH = ROOT / "demo_events" / "kn-demo-south.toml"
 HEATING_WORKS = (catalogue.KOROBKIN_2012, catalogue.BARNES_2016, catalogue.ARNETT_1982)
@@ -102,7 +106,7 @@ def test_every_line_list_source_has_a_citation():
     # candidates use; the bundled list (a selection of the candidates) cites a subset of them
     from kncast.forecast.linelist import DEFAULT_PATH
 
-    candidates = LineList.load(DEFAULT_PATH.parent / "candidates" / "line_candidates.ecsv")
+    candidates = LineList.load(SOURCE_DATA / "candidates" / "line_candidates.ecsv")
     for src in set(str(s) for s in candidates.source):
         assert SOURCE_REFERENCES.get(src), src
     assert set(candidates.references()) == {c for cites in SOURCE_REFERENCES.values() for c in cites}
