@@ -32,6 +32,7 @@ __all__ = ["Epochs", "FeatureForecast", "epochs_from", "forecast_features", "str
            "STRONG_TAU", "NON_LTE_NOTE"]
 
 STAGE_NAMES = ("I", "II", "III", "IV")
+LTE_T_RANGE_K = (500.0, 1e5)  # photospheric temperatures the LTE ionization balance is computed for (kncast.forecast.lte)
 #: What reports show instead of a tau for a non-LTE feature.
 NON_LTE_NOTE = "non-LTE: no LTE estimate"
 
@@ -206,10 +207,14 @@ def forecast_features(source, phases_d, linelist: LineList | None = None, setups
     if missing:
         raise ForecastInputError(f"{composition.path}: no abundance for {', '.join(missing)}, which the line list "
                                  f"{linelist.path} uses (add it to [abundances.mass_fraction])")
-    lte = lte_state(ep.temperature_K, ep.age_d, ep.v_phot_c, ep.v_max_c, ep.ejecta_mass_msun, composition)
+    # epochs hotter or cooler than the LTE tables cover (e.g. a power law minutes after t0) get no estimate
+    in_range = (ep.temperature_K >= LTE_T_RANGE_K[0]) & (ep.temperature_K <= LTE_T_RANGE_K[1])
+    lte = lte_state(np.clip(ep.temperature_K, *LTE_T_RANGE_K), ep.age_d, ep.v_phot_c, ep.v_max_c,
+                    ep.ejecta_mass_msun, composition)
     tau_lines = line_optical_depths(lte, linelist.element, linelist.ion_stage, linelist.gf,
                                     linelist.wavelength_A, linelist.E_low_eV)
     tau_lines = np.where(np.asarray(linelist.lte, dtype=bool)[None, :], tau_lines, np.nan)  # non-LTE: no estimate
+    tau_lines = np.where(in_range[:, None], tau_lines, np.nan)
 
     features = linelist.features()
     members = _member_matrix(features)                       # (F, M)

@@ -159,3 +159,15 @@ def test_non_lte_feature_has_no_tau_and_ranks_with_the_unknowns(with_left_out):
     assert rec["lte"] is False and rec["tau_sobolev"] is None and rec["members_tau_sobolev"] == [None] * 3
     assert all(f["lte"] for f in rows[0]["features"] if f["feature"] != "he1-10830")
     assert NON_LTE_NOTE == "non-LTE: no LTE estimate"
+
+
+def test_epochs_hotter_than_the_lte_tables_get_no_estimate_instead_of_an_error():
+    # a power-law photosphere minutes after t0 is hotter than 1e5 K (T ~ t^-1/2 from 6300 K at 1 d):
+    # the feature forecast gives no LTE estimate there (tau NaN) and still forecasts the later epochs
+    from kncast.forecast.photosphere import PowerLawPhotosphere
+    from kncast.forecast.source import Transient
+
+    t = Transient(PowerLawPhotosphere(), distance_mpc=100.0)
+    assert t.state([0.0005]).temperature_K[0] > 1e5
+    fc = forecast_features(t, np.array([0.0005, 1.0]))
+    assert not np.isfinite(fc.tau[0]).any() and np.isfinite(fc.tau[1]).any()
