@@ -49,3 +49,11 @@ def test_every_package_folder_is_installed():
             rel = init.parent.relative_to(ROOT / folder)
             found.add(".".join([dotted, *rel.parts]))
     assert found <= listed, sorted(found - listed)
+
+
+def test_wheel_ships_the_report_templates():
+    files = _installed_files()
+    templates = sorted((ROOT / "planner" / "plan" / "templates").glob("*.j2"))
+    assert templates
+    for path in templates:
+        assert f"kncast/planner/plan/templates/{path.name}" in files
