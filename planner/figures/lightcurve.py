@@ -15,7 +15,7 @@ def _day_ticks(ax, lo: float, hi: float) -> None:
 
     ticks = [t for t in DAY_TICKS if lo <= t <= hi] or [lo, hi]
     ax.xaxis.set_major_locator(FixedLocator(ticks))
-    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:.3g}"))
     ax.xaxis.set_minor_locator(NullLocator())  # the 1-2-5 ticks suffice; no minor tick artists
 
 
