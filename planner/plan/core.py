@@ -623,6 +623,21 @@ def _r(value, digits: int = 4):
     return None if value is None else round(float(value), digits)
 
 
+def _sig(value, digits: int):
+    """``value`` with every float (in nested dicts and lists) rounded to ``digits`` significant digits."""
+    if isinstance(value, dict):
+        return {k: _sig(v, digits) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [_sig(v, digits) for v in value]
+    if isinstance(value, (float, np.floating)):
+        return float(f"{float(value):.{digits}g}")
+    return value
+
+
+SIG_PHOTOSPHERE = 6  # significant digits of plan.json's photosphere values (model estimates; lightcurve agrees to 1e-4)
+SIG_ENSEMBLE = 4     # significant digits of the percentiles over the draws (a few hundred draws: 3 are meaningful)
+
+
 def reference_summary(o: SetupOutcome | None, sigma: float) -> dict | None:
     """What a verdict rests on: the best-measured diagnostic trough of the setup."""
     if o is None or o.feature is None:
@@ -654,7 +669,7 @@ def night_summary(p: NightPlan, sigma: float) -> dict:
         "hours_available": _r(p.hours_available, 4), "airmass": _r(forecast_airmass(w), 4),
         "altitude_deg": _r(w.best_altitude_deg, 3), "moon_illumination": _r(w.moon_illumination, 4),
         "moon_sep_deg": _r(w.moon_sep_deg, 3), "moon_altitude_deg": _r(w.moon_altitude_deg, 3),
-        "photosphere": {k: (_r(v, 6) if k.endswith("_c") or k.endswith("_d") else v)
+        "photosphere": {k: (_r(v, 6) if k.endswith("_c") or k.endswith("_d") else _sig(v, SIG_PHOTOSPHERE))
                         for k, v in p.photosphere.items()}}
     doc["setups"] = [outcome_summary(o) for o in p.outcomes]
     c = p.choice
@@ -669,7 +684,7 @@ def night_summary(p: NightPlan, sigma: float) -> dict:
         "exposure_s": _r(c.exposure_s, 1), "n_detected": len(c.detected), "n_targets": len(c.targets),
         "detected": list(c.detected), "telescope": c.telescope,
         "kind": "detection" if c.detected else "classification", "snr_at": _r(c.snr_at, 3)}
-    doc["ensemble"] = p.ensemble
+    doc["ensemble"] = _sig(p.ensemble, SIG_ENSEMBLE)
     doc["choices"] = [{"telescope": o.telescope, "setup": o.setup, "score": _r(o.score, 3),
                        "feature": o.feature, "significance": _r(o.significance, 3), "detected": list(o.detected),
                        "kind": "detection" if o.detected else "classification"} for o in p.choices]
@@ -697,4 +712,4 @@ def plan_document(plan: Plan, files: dict | None = None, references=None, assump
                     model=plan.model, sites=sites, nights=[night_summary(p, plan.settings["sigma"]) for p in plan.nights],
                     campaign=plan.campaign, candidates=[c.summary() for c in plan.candidates], files=files or {}, assumptions=list(assumptions or []),
                     references=list(references or []), cautions=list(CAUTIONS),
-                    blocks=[block_record(plan, b) for b in plan.blocks], ensemble=plan.ensemble or None)
+                    blocks=[block_record(plan, b) for b in plan.blocks], ensemble=_sig(plan.ensemble, SIG_ENSEMBLE) or None)

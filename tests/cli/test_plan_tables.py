@@ -76,3 +76,27 @@ def test_one_missing_value_convention_and_descriptions(tables):
     nexp = tables["exposures"]["nexp"]
     assert np.ma.getmaskarray(nexp).any(), "the demo has setups that never reach the target: masked nexp"
     assert (np.ma.compressed(nexp) >= 1).all(), "no -1 sentinels: a missing count is masked"
+
+
+def _floats(value):
+    if isinstance(value, dict):
+        for v in value.values():
+            yield from _floats(v)
+    elif isinstance(value, list):
+        for v in value:
+            yield from _floats(v)
+    elif isinstance(value, float):
+        yield value
+
+
+def test_plan_json_numbers_carry_meaningful_digits(demo):
+    # common practice: percentiles over a few hundred draws support no more than 3-4 significant digits
+    _, doc = demo
+    ens = [f for n in doc["nights"] for f in _floats(n.get("ensemble"))] + list(_floats(doc["ensemble"]))
+    phot = [n["epoch"]["photosphere"] for n in doc["nights"] if n["epoch"]]
+    physical = [f for p in phot for k in ("temperature_K", "radius_cm", "luminosity_erg_s") for f in _floats(p[k])]
+    times = [p[k] for p in phot for k in p if k.endswith("_d") or k.endswith("_c")]  # days, speed of light
+    assert ens and physical and times
+    assert all(float(f"{f:.4g}") == f for f in ens)
+    assert all(float(f"{f:.6g}") == f for f in physical)
+    assert all(round(f, 6) == f for f in times)
