@@ -1,7 +1,6 @@
 """Coverage, gap and telluric-loss fractions on hand-built cases; verdict words."""
 from __future__ import annotations
 
-import time
 
 import numpy as np
 import pytest
@@ -115,18 +114,16 @@ def test_verdict_from_fractions_end_to_end():
     assert verdict(**f).tolist() == ["clear", "in detector gap", "outside coverage"]
 
 
-def test_features_sized_grid_is_fast():
-    """50 epochs x 40 features x 20 setups (the features benchmark size)."""
+def test_features_sized_grid_broadcasts():
+    """50 epochs x 40 features x 20 setups (the features benchmark size; its timing is in bench/features.py)."""
     tell = TelluricModel.load()
     rng = np.random.default_rng(1)
     lo = rng.uniform(3500, 22000, (50, 40))
     hi = lo + rng.uniform(50, 3000, (50, 40))
     setups = [SETUP] * 20
-    t = time.perf_counter()
     f = window_fractions(lo, hi, setups, tell, airmass=1.3, pwv_mm=3.0)
     verdict(**f)
     assert f["coverage"].shape == (50, 40, 20)
-    assert time.perf_counter() - t < 1.0  # generous on a shared 2-core machine; goal 0.2 s in total
 
 
 def test_fractions_agree_with_dense_sampling():

@@ -14,7 +14,6 @@ import pkgutil
 import re
 import subprocess
 import sys
-import time
 
 import astropy.units as u
 import pytest
@@ -27,7 +26,6 @@ from conftest import ROOT
 from test_offline import no_network  # noqa: F401  (the socket tripwire fixture)
 
 API_DOC = ROOT / "docs" / "api.md"
-MAX_BLOCK_S = 2.0
 
 
 def test_every_public_name_resolves_and_no_submodule_shadows_it():
@@ -131,14 +129,11 @@ def test_api_doc_examples_import_only_public_names(index):
 
 
 @pytest.mark.parametrize("index", range(len(_python_blocks())))
-def test_api_doc_example_runs_offline_and_fast(index, no_network, tmp_path, monkeypatch, capsys):  # noqa: F811
+def test_api_doc_example_runs_offline(index, no_network, tmp_path, monkeypatch, capsys):  # noqa: F811
     import tempfile
 
     monkeypatch.setattr(tempfile, "tempdir", str(tmp_path))
     block = _python_blocks()[index]
-    start = time.perf_counter()
     exec(compile(block, f"docs/api.md python block {index}", "exec"), {"__name__": "__api_doc__"})
-    elapsed = time.perf_counter() - start
     assert no_network == []
-    assert elapsed < MAX_BLOCK_S, f"block {index} took {elapsed:.2f} s"
     assert capsys.readouterr().out.strip(), f"block {index} prints nothing"
