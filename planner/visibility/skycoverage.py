@@ -221,8 +221,8 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     zen, north, east, moon = (np.ascontiguousarray(v.T) for v in frame_vectors(vis, cols))  # (n_samples, 3)
     f32 = lambda v: v.astype(np.float32)  # noqa: E731
     floor = np.maximum(rules.min_altitude_deg[cols.site], rules.airmass_altitude_deg)
-    top = np.array([-90.0 if hz is None else float(hz.altitude_deg.max()) for hz in rules.horizons])[cols.site]
-    hz_site = [hz for hz in rules.horizons]
+    hz_site = list(rules.horizons)
+    hz_rows = [(*_row_range(cols.site, i), hz) for i, hz in enumerate(hz_site) if hz is not None and np.any(cols.site == i)]
     seg_start = np.flatnonzero(np.r_[True, cols.record[1:] != cols.record[:-1]])
     seg_end = np.r_[seg_start[1:], cols.mjd.size]
     seg_record = cols.record[seg_start]
@@ -233,15 +233,19 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     kids = 4 ** HIER_DEPTH
     parents_per_chunk = max(1, HIER_CHUNK_PIXELS // kids)
     prob_obs, hours, area = np.zeros(seg_start.size), np.zeros(seg_start.size), np.zeros(seg_start.size)
-    floor_lo, floor_hi = np.radians(floor)[:, None], np.radians(np.maximum(floor, top))[:, None]
+    floor_rad = np.radians(floor)[:, None]
     for lo in range(0, skymap.npix // kids, parents_per_chunk):
         sl = slice(lo * kids, min(lo + parents_per_chunk, skymap.npix // kids) * kids)
         xyz = skymap.xyz[:, sl]
         centre, radius = _parents(xyz, kids)
         alt = np.arcsin(np.clip(zen @ centre, -1.0, 1.0))  # (n_samples, n_parents), rad
         margin = radius[None, :] + HIER_EPS_RAD
-        inside = alt - margin >= floor_hi
-        outside = alt + margin < floor_lo
+        inside = alt - margin >= floor_rad
+        outside = alt + margin < floor_rad
+        for a, b, hz in hz_rows:  # children pass where alt >= the profile at their azimuth too
+            lo_rad, hi_rad = _profile_bounds(hz, alt[a:b], margin, east[a:b] @ centre, north[a:b] @ centre)
+            inside[a:b] &= alt[a:b] - margin >= hi_rad
+            outside[a:b] |= alt[a:b] + margin < lo_rad
         if ctx.moon_rule:
             cos_sep = moon @ centre
             limit = math.radians(ctx.moon_rule)
@@ -279,12 +283,34 @@ class _Hier:
 
 
 def _hier_level(skymap: SkyMap):
-    """The map's HEALPix order when it is flat and in NESTED order (children of a pixel contiguous), else None."""
-    if skymap.ordering == "NUNIQ":
+    """The order of a single-order map whose pixels run in whole NESTED groups of 4^HIER_DEPTH children
+    (a flat map, or whole parents of one), else None."""
+    kids = 4 ** HIER_DEPTH
+    if skymap.npix % kids or np.any(skymap.level != skymap.level[0]):
         return None
-    if skymap.ipix[0] != 0 or np.any(np.diff(skymap.ipix) != 1):
+    groups = skymap.ipix.reshape(-1, kids)
+    if np.any(groups[:, 0] % kids) or np.any(np.diff(groups, axis=1) != 1):
         return None
-    return skymap.max_level
+    return int(skymap.level[0])
+
+
+def _profile_bounds(hz, alt, margin, east, north):
+    """(low, high) bounds, rad, of a horizon profile over the azimuths of points within ``margin`` of a centre
+    at altitude ``alt`` and (east, north) components: sin|d az| <= sin(margin) / cos(alt) (spherical triangle
+    zenith-centre-point), and the profile changes by at most its steepest slope times |d az|."""
+    az = np.degrees(np.arctan2(east, north))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.sin(margin) / np.cos(alt)
+    spread = np.where((ratio < 1.0) & (np.abs(alt) + margin < 0.5 * math.pi),
+                      np.degrees(np.arcsin(np.clip(ratio, 0.0, 1.0))), 180.0)
+    order = np.argsort(np.mod(hz.azimuth_deg, 360.0))
+    az_s, alt_s = np.mod(hz.azimuth_deg, 360.0)[order], hz.altitude_deg[order]
+    az_pts, alt_pts = np.r_[az_s, az_s[0] + 360.0], np.r_[alt_s, alt_s[0]]  # periodic, as np.interp(period=360)
+    slope = float(np.max(np.abs(np.diff(alt_pts) / np.maximum(np.diff(az_pts), 1e-9))))
+    prof = hz.min_altitude_deg(az)
+    low = np.maximum(prof - slope * spread, float(hz.altitude_deg.min()))
+    high = np.minimum(prof + slope * spread, float(hz.altitude_deg.max()))
+    return np.radians(low), np.radians(high)
 
 
 def _parents(xyz: np.ndarray, kids: int):
@@ -326,9 +352,9 @@ def _apply_horizon_pairs(ok, sin_alt, sin_floor, child, north, east, hz) -> None
     band = ok & (sin_alt < top)
     if not band.any():
         return
-    e = np.einsum("pj,jpk->pk", east, child)[band]
-    n = np.einsum("pj,jpk->pk", north, child)[band]
-    az = np.degrees(np.arctan2(e, n))
+    pair, kid = np.nonzero(band)
+    v = child[:, pair, kid]  # (3, n_band): only the children in the band
+    az = np.degrees(np.arctan2(np.einsum("pj,jp->p", east[pair], v), np.einsum("pj,jp->p", north[pair], v)))
     ok[band] = sin_alt[band] >= np.sin(np.radians(hz.min_altitude_deg(az)))
 
 

@@ -68,6 +68,19 @@ def test_parent_radius_bounds_every_child():
     assert 0.5 < np.degrees(radius.max()) < 4.0
 
 
+def test_whole_parents_of_a_map_take_the_coarse_to_fine_path(tmp_path):
+    import dataclasses
+
+    skymap = _map(tmp_path / "m.fits", NSIDE)
+    kids = 4 ** cov.HIER_DEPTH
+    sub = (np.arange(0, skymap.npix // kids, 5)[:, None] * kids + np.arange(kids)).ravel()
+    part = dataclasses.replace(skymap, xyz=skymap.xyz[:, sub], prob=skymap.prob[sub], level=skymap.level[sub],
+                               ipix=skymap.ipix[sub])
+    assert cov._hier_level(part) == 8
+    odd = dataclasses.replace(part, ipix=part.ipix[::-1].copy())
+    assert cov._hier_level(odd) is None
+
+
 def test_whole_map_quantities_are_computed_once(tmp_path, monkeypatch):
     skymap = _map(tmp_path / "m.fits", 32)
     first = skymap.summary()
