@@ -40,6 +40,7 @@ FEATURE_COLUMNS = {
     "site": (str, None, "site id"),
     "night": (str, None, "local date of the evening the night starts"),
     "phase_d": (float, "d", "epoch: days since t0 at the middle of the observing block"),
+    "epoch_utc": (TIME, None, "UTC of the epoch (plan.json nights[].epoch.utc)"),
     "setup": (str, None, "setup id (site/telescope/instrument mode)"),
     "id": (str, None, "feature id"),
     "species": (str, None, "ion producing the feature"),
@@ -64,6 +65,7 @@ EXPOSURE_COLUMNS = {
     "site": (str, None, "site id"),
     "night": (str, None, "local date of the evening the night starts"),
     "phase_d": (float, "d", "epoch: days since t0 at the middle of the observing block"),
+    "epoch_utc": (TIME, None, "UTC of the epoch (plan.json nights[].epoch.utc)"),
     "setup": (str, None, "setup id (site/telescope/instrument mode)"),
     "airmass": (float, None, "forecast airmass of the block"),
     "moon_illumination": (float, None, "illuminated fraction of the Moon (0-1)"),
@@ -175,12 +177,20 @@ def window_rows(plan) -> list[dict]:
     return rows
 
 
+def _epoch_utc(p) -> str | None:
+    from kncast.planner.output import iso_utc
+
+    return None if p.window is None else iso_utc(p.window.best_time)
+
+
 def exposure_rows(plan) -> list[dict]:
     rows = []
     for p in plan.nights:
         w = p.window
+        utc = _epoch_utc(p) if p.outcomes else None
         for o in p.outcomes:
             rows.append({"site": p.site.id, "night": p.record.night.isoformat(), "phase_d": p.phase_d,
+                         "epoch_utc": utc,
                          "setup": o.setup, "airmass": forecast_airmass(w), "moon_illumination": w.moon_illumination,
                          "moon_sep_deg": w.moon_sep_deg, "available_s": p.hours_available * 3600.0,
                          "n_targets": len(o.targets), "n_detected": len(o.detected), "feature": o.feature or None,
@@ -193,8 +203,10 @@ def exposure_rows(plan) -> list[dict]:
 
 
 def _feature_rows(plan) -> list[dict]:
-    """plan.features with empty text (no arm, say) as missing."""
-    return [{k: (None if v == "" else v) for k, v in r.items()} for r in plan.features]
+    """plan.features with empty text (no arm, say) as missing, and the UTC of each epoch."""
+    utc = {(p.site.id, p.record.night.isoformat()): _epoch_utc(p) for p in plan.nights if p.outcomes}
+    return [{**{k: (None if v == "" else v) for k, v in r.items()}, "epoch_utc": utc.get((r["site"], r["night"]))}
+            for r in plan.features]
 
 
 def write_tables(plan, folder: Path) -> dict:

@@ -59,6 +59,12 @@ def test_time_columns_read_back_as_utc_times(demo, tables):
     got = w["start_utc"].isot
     assert [g[:19] for g in got] == [e.rstrip("Z")[:19] for e in expected]
     assert np.all((w["end_utc"] - w["start_utc"]).to_value("h") == pytest.approx(np.asarray(w["hours"]), abs=1e-3))
+    epochs = {(n["site"], n["night"]): n["epoch"]["utc"] for n in doc["nights"] if n["epoch"]}
+    for name in ("features", "exposures"):
+        t = tables[name]
+        assert isinstance(t["epoch_utc"], Time) and t["epoch_utc"].scale == "utc", name
+        got = [s[:19] for s in t["epoch_utc"].isot]
+        assert got == [epochs[(s, n)].rstrip("Z") for s, n in zip(t["site"], t["night"])], name
 
 
 def test_one_missing_value_convention_and_descriptions(tables):
