@@ -251,17 +251,19 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
             limit = math.radians(ctx.moon_rule)
             inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
             outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
-        count = np.repeat(np.add.reduceat(inside.view(np.uint8), seg_start, axis=0, dtype=np.uint16), kids, axis=1)
-        mixed = ~(inside | outside)
-        _refine(count, mixed, xyz.astype(np.float32), kids, ctx, [hz_site[i] for i in cols.site[seg_start]])
-        seen = count > 0
+        in_count = np.add.reduceat(inside.view(np.uint8), seg_start, axis=0, dtype=np.uint16)  # (n_seg, n_parents)
+        weights = np.stack([skymap.prob[sl], area90_deg2[sl]], axis=1)  # (m, 2): probability, 90 % area
+        count = np.repeat(in_count, kids, axis=1) if obs is not None else None  # per pixel only for the flags
+        # parents passed at some sample: all their children seen; the children of the others by the refinement
+        sums = _refine(count, in_count, ~(inside | outside), xyz.astype(np.float32), weights, ctx,
+                       [hz_site[i] for i in cols.site[seg_start]])
+        parent_w = weights.reshape(-1, kids, 2).sum(axis=1)  # (n_parents, 2)
+        seen_parent = (in_count > 0).astype(np.float64) @ parent_w
+        prob_obs += seen_parent[:, 0] + sums[:, 0]
+        area += seen_parent[:, 1] + sums[:, 1]
+        hours += (in_count.astype(np.float64) @ parent_w[:, 0] + sums[:, 2]) * dt_h
         if obs is not None:
-            obs[sl, seg_record] = seen.T
-        weights = np.stack([skymap.prob[sl], area90_deg2[sl]], axis=1)  # (m, 2)
-        seen_sums = seen.astype(np.float64) @ weights
-        prob_obs += seen_sums[:, 0]
-        area += seen_sums[:, 1]
-        hours += (count.astype(np.float64) @ weights[:, 0]) * dt_h
+            obs[sl, seg_record] = (count > 0).T
     for s, k in enumerate(seg_record):
         records[k].observable_probability = float(min(prob_obs[s], 1.0))
         records[k].weighted_hours = float(hours[s])
@@ -322,11 +324,18 @@ def _parents(xyz: np.ndarray, kids: int):
     return centre, np.arccos(np.clip(cos_max, -1.0, 1.0))
 
 
-def _refine(count, mixed, pix, kids: int, ctx: _Hier, seg_hz) -> None:
-    """Add, for the (sample, parent) pairs ``mixed``, the children observable at that sample (tested one by one)."""
-    n_seg = count.shape[0]
-    count3 = count.reshape(n_seg, -1, kids)
+def _refine(count, in_count, mixed, pix, weights, ctx: _Hier, seg_hz) -> np.ndarray:
+    """Test the children of the (sample, parent) pairs ``mixed`` one by one.
+
+    Returns per site/night (n_seg, 3): the probability and 90 % area of the children seen only through
+    these tests (their parent passed at no sample), and the probability x samples they add.  ``count``
+    (n_seg, m), when given, gets the samples added per child.
+    """
+    n_seg, n_par = in_count.shape
+    kids = pix.shape[1] // n_par
     groups = pix.reshape(3, -1, kids)
+    w = weights.reshape(n_par, kids, 2)
+    out = np.zeros((n_seg, 3))
     cos_sep = np.float32(math.cos(math.radians(ctx.moon_rule))) if ctx.moon_rule else None
     for s in range(n_seg):
         a, b = int(ctx.seg_start[s]), int(ctx.seg_end[s])
@@ -343,7 +352,15 @@ def _refine(count, mixed, pix, kids: int, ctx: _Hier, seg_hz) -> None:
         if cos_sep is not None:
             ok &= np.einsum("pj,jpk->pk", ctx.moon[k], child) <= cos_sep
         starts = np.flatnonzero(np.r_[True, parent[1:] != parent[:-1]])
-        count3[s, parent[starts]] += np.add.reduceat(ok.view(np.uint8), starts, axis=0, dtype=np.uint16)
+        par = parent[starts]
+        added = np.add.reduceat(ok.view(np.uint8), starts, axis=0, dtype=np.uint16)  # (n_parents hit, kids)
+        new = (added > 0) & (in_count[s, par] == 0)[:, None]
+        out[s, 0] = np.sum(w[par, :, 0][new])
+        out[s, 1] = np.sum(w[par, :, 1][new])
+        out[s, 2] = np.sum(added * w[par, :, 0])
+        if count is not None:
+            count.reshape(n_seg, -1, kids)[s, par] += added
+    return out
 
 
 def _apply_horizon_pairs(ok, sin_alt, sin_floor, child, north, east, hz) -> None:
