@@ -435,6 +435,7 @@ TEMPLATES = Path(__file__).parent / "templates"  # report.md.j2, report.html.j2 
 _TABLE_CSS = """
 .table-wrap { max-width: 100%; overflow-x: auto; margin: .6rem 0 1rem; }
 .table-wrap table { margin: 0; }
+span.n { white-space: nowrap; }
 p.justification { background: var(--band); border-left: 4px solid var(--accent); padding: .6rem .9rem; }
 """
 
