@@ -49,6 +49,7 @@ FITS_BLOCK = 2880  # bytes
 FLAT_ORDERINGS = ("NESTED", "RING")
 ORDERINGS = FLAT_ORDERINGS + ("NUNIQ",)
 DISTANCE_COLUMNS = ("DISTMU", "DISTSIGMA", "DISTNORM")
+PIXEL_BLOCK = 1 << 20  # pixel centres computed this many at a time
 
 
 class SkymapWarning(UserWarning):
@@ -145,11 +146,16 @@ class SkyMap:
         good = np.isfinite(mu) & np.isfinite(sigma) & (sigma > 0) & (self.prob > 0)
         if not np.any(good):
             return self.header_distance_mpc
-        m = truncated_power_moments(mu[good], sigma[good], 4)
-        w = self.prob[good] / self.prob[good].sum()
-        mean = float(np.sum(w * m[3] / m[2]))
-        second = float(np.sum(w * m[4] / m[2]))
-        return mean, float(math.sqrt(max(second - mean * mean, 0.0)))
+        total = float(self.prob[good].sum())
+        first = second = 0.0
+        for lo in range(0, self.npix, PIXEL_BLOCK):  # blocks of pixels: the moments' temporaries stay small
+            sl = slice(lo, lo + PIXEL_BLOCK)
+            g = good[sl]
+            m = truncated_power_moments(mu[sl][g], sigma[sl][g], 4)
+            w = self.prob[sl][g] / total
+            first += float(np.sum(w * m[3] / m[2]))
+            second += float(np.sum(w * m[4] / m[2]))
+        return first, float(math.sqrt(max(second - first * first, 0.0)))
 
     def resample_nested(self, values, level: int) -> np.ndarray:
         """An intensive per-pixel quantity (density, fraction) on the flat NESTED grid of ``level``.
@@ -252,8 +258,10 @@ def _read_table(path: Path):
                     raise DataFileError(path, "", "the HEALPix table has no rows")
                 cols = {}
                 for c in hdu.columns:
-                    arr = np.asarray(data[c.name])
-                    cols[c.name.strip().upper()] = (arr.reshape(-1), (c.unit or "").strip())
+                    arr = np.asarray(data[c.name]).reshape(-1)
+                    if arr.dtype.kind in "fiu":  # a native copy: the file's buffer is freed on return
+                        arr = arr.astype(arr.dtype.newbyteorder("="))
+                    cols[c.name.strip().upper()] = (arr, (c.unit or "").strip())
     except DataFileError:
         raise
     except (OSError, ValueError, TypeError, KeyError, IndexError, UnicodeDecodeError, Warning) as err:
@@ -469,9 +477,11 @@ def _pixel_vectors(level, ipix, coordsys) -> np.ndarray:
     from astropy_healpix import healpix_to_xyz
 
     xyz = np.empty((3, level.size))
-    for lv in np.unique(level):  # one vectorized call per HEALPix order present
-        sel = level == lv
-        xyz[:, sel] = np.stack(healpix_to_xyz(ipix[sel], 2 ** int(lv), order="nested"))
+    for lv in np.unique(level):  # one vectorized call per HEALPix order present, in blocks (memory)
+        sel = np.flatnonzero(level == lv)
+        for lo in range(0, sel.size, PIXEL_BLOCK):
+            part = sel[lo:lo + PIXEL_BLOCK]
+            xyz[:, part] = np.stack(healpix_to_xyz(ipix[part], 2 ** int(lv), order="nested"))
     if coordsys == "G":
         xyz = _galactic_to_icrs(xyz)
     return xyz
