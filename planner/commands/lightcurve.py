@@ -112,10 +112,11 @@ def run(args) -> int:
     event, transient, state, bands, mags, vega, ranges = compute(args)
     doc = document_for(event, transient, state, bands, mags, vega, ranges, draws=args.draws if ranges else 0)
     if args.plot:
-        from kncast.planner.figures.lightcurve import lightcurve_figure
+        from kncast.planner.figures.lightcurve import distance_range_mpc, lightcurve_figure
         from kncast.planner.output import save_figure
 
-        save_figure(lightcurve_figure(transient, state, bands, event.id), args.plot)
+        near_far = distance_range_mpc(event, transient, args.draws or None, args.seed)
+        save_figure(lightcurve_figure(transient, state, bands, event.id, distance_range=near_far), args.plot)
     if args.json:
         emit_json(args.json, doc)
     if args.json != "-":

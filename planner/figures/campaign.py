@@ -12,6 +12,7 @@ import numpy as np
 
 from kncast.forecast.airmass import airmass_from_altitude
 from kncast.planner.visibility import sky
+from kncast.planner.figures.palette import SERIES
 from kncast.planner.figures.text import plain
 
 SAMPLE_MIN = 5.0
@@ -118,8 +119,8 @@ def campaign_figure(result):
     ax.set_ylim(0, n)
     ax.set_xlim(x[0], x[-1])
     ax.axvspan(x[0], 0.0, color="0.9", zorder=-1)
-    ax.axvline(0.0, color="crimson", linewidth=1.0)
-    ax.text(0.0, n, " t0", color="crimson", va="bottom", fontsize=8)
+    ax.axvline(0.0, color=SERIES[1], linewidth=1.0)
+    ax.text(0.0, n, " t0", color=SERIES[1], va="bottom", fontsize=9)
     ax.set_xlabel("days since t0 (observer frame)")
     ax.grid(axis="x", color="0.85", linewidth=0.5)
     ax.set_axisbelow(True)
@@ -127,10 +128,10 @@ def campaign_figure(result):
     ax.set_title(f"{plain(ev.id)}: observing windows ({result.twilight} darkness); "
                  f"upper strip = dark time tinted by moonlight; x = dark night without a window", fontsize=9, loc="left")
     cb = fig.colorbar(mesh, cax=cax_am, orientation="horizontal")
-    cb.set_label("window bars: airmass (Kasten & Young 1989)", fontsize=8)
+    cb.set_label("window bars: airmass (Kasten & Young 1989)", fontsize=9)
     from matplotlib.cm import ScalarMappable
     from matplotlib.colors import Normalize
 
     cb2 = fig.colorbar(ScalarMappable(Normalize(0, 1), moon_cmap), cax=cax_moon, orientation="horizontal")
-    cb2.set_label("dark-time strip: illuminated fraction of the Moon when up (0 = Moon down)", fontsize=8)
+    cb2.set_label("dark-time strip: illuminated fraction of the Moon when up (0 = Moon down)", fontsize=9)
     return fig

@@ -15,9 +15,11 @@ from functools import lru_cache
 import numpy as np
 
 from kncast.planner.figures.lines import CORRECTABLE_COLOR, FONT_PT, LOST_COLOR, _hatched_columns, _telluric_regions
-from kncast.planner.figures.text import plain
+from kncast.planner.figures.palette import SERIES
+from kncast.planner.figures.text import angstrom, plain
 
-FEATURE_COLOR = "tab:red"
+FEATURE_COLOR = SERIES[1]
+REFERENCE_COLOR = "#000000"
 SHOWN_FEATURES = 8
 
 
@@ -31,7 +33,7 @@ def _bundled_words() -> dict:
 
 
 def _feature_name(f: dict) -> str:
-    return _bundled_words().get(f["feature"], f"{f.get('species', '')} ({f['feature']})".strip())
+    return angstrom(_bundled_words().get(f["feature"], f"{f.get('species', '')} feature".strip()))
 
 
 def _tellurics(ax, res, lo, hi, top):
@@ -50,8 +52,22 @@ def _tellurics(ax, res, lo, hi, top):
     _hatched_columns(ax, lost, 0.0, top, LOST_COLOR, "xx")
     _hatched_columns(ax, correctable, 0.0, top, CORRECTABLE_COLOR, "//")
     return [Patch(facecolor="none", edgecolor=LOST_COLOR, hatch="xx", lw=0,
-                  label=f"telluric, lost (transmission < {threshold:g})"),
+                  label=f"telluric, lost\n(transmission < {threshold:g})"),
             Patch(facecolor="none", edgecolor=CORRECTABLE_COLOR, hatch="//", lw=0, label="telluric, correctable")]
+
+
+def _reference(ax, res, feature_id, lo, hi, top):
+    """The reference feature (the one the exposure is judged on): a solid black trough line and a legend entry."""
+    from matplotlib.lines import Line2D
+
+    f = next((f for f in res["features"] if f["feature"] == feature_id), None)
+    if f is None or not lo <= f["trough_obs_A"] <= hi:
+        return []
+    a, b = f["absorption_obs_A"]
+    ax.axvspan(a, b, color=REFERENCE_COLOR, alpha=0.08, lw=0, zorder=1)
+    ax.plot([f["trough_obs_A"]] * 2, [0.0, top], color=REFERENCE_COLOR, lw=1.6, zorder=5)
+    return [Line2D([], [], color=REFERENCE_COLOR, lw=1.6,
+                   label=f"reference feature: {_feature_name(f)}\n(trough; shaded: its absorption)")]
 
 
 def _features(ax, res, lo, hi, top):
@@ -74,28 +90,31 @@ def _features(ax, res, lo, hi, top):
         ax.text(f["trough_obs_A"], top * (0.93 - 0.2 * (i % 4)), _feature_name(f), rotation=90,
                 fontsize=FONT_PT, ha="right", va="top", color=FEATURE_COLOR, zorder=6,
                 bbox={"facecolor": "white", "edgecolor": "none", "alpha": 0.7, "pad": 0.5})
-    return [Patch(facecolor=FEATURE_COLOR, alpha=0.4, lw=0, label="feature absorption windows (dotted: trough)")]
+    return [Patch(facecolor=FEATURE_COLOR, alpha=0.4, lw=0, label="feature absorption windows\n(dotted: trough)")]
 
 
-def exposure_figure(res: dict):
-    """A matplotlib Figure from the dict returned by ``kncast.planner.commands.exposure.compute``."""
-    import matplotlib
+def exposure_figure(res: dict, reference_feature: str | None = None):
+    """A matplotlib Figure from the dict returned by ``kncast.planner.commands.exposure.compute``.
+
+    ``reference_feature``: id of the feature the exposure is judged on, marked with its own line."""
     from matplotlib.figure import Figure
     from matplotlib.ticker import FuncFormatter
 
     e, grid = res["result"], res["grid"]
     fig = Figure(figsize=(11, 5.2))
-    ax = fig.add_axes((0.07, 0.12, 0.63, 0.72))   # fixed layout; the key on the right
+    ax = fig.add_axes((0.07, 0.12, 0.6, 0.72))   # fixed layout; the key on the right
     lam = np.asarray(e.wavelength_A, dtype=float)
-    colours = matplotlib.colormaps["viridis"](np.linspace(0.1, 0.85, max(1, len(grid.arm_names))))
+    arm_colours = [c for c in SERIES if c != FEATURE_COLOR and c != REFERENCE_COLOR]
     for k, name in enumerate(grid.arm_names):
         sel = grid.arm_index == k
         y = np.where(e.on_detector[sel], e.snr_per_resel[sel], np.nan)
-        ax.plot(lam[sel], y, color=colours[k], lw=1.4, label=f"arm {plain(name)}", zorder=4)
+        ax.plot(lam[sel], y, color=arm_colours[k % len(arm_colours)], lw=1.4, label=f"arm {plain(name)}", zorder=4)
     top = np.nanmax(np.where(e.on_detector, e.snr_per_resel, np.nan)) if np.any(e.on_detector) else 1.0
     top = max(top, res["target"]["snr_per_resel"] if res["target"] else 0.0, 1.0) * 1.15
     lo, hi = float(lam.min()), float(lam.max())
     proxies = _tellurics(ax, res, lo, hi, top) + _features(ax, res, lo, hi, top)
+    if reference_feature:
+        proxies += _reference(ax, res, reference_feature, lo, hi, top)
     if res["target"]:
         ax.axhline(res["target"]["snr_per_resel"], color="k", ls="--", lw=0.9,
                    label=f"target S/N at {plain(str(res['target']['at']))}")
@@ -107,7 +126,7 @@ def exposure_figure(res: dict):
     ax.set_ylabel("S/N per resolution element", fontsize=FONT_PT + 1)
     single = res["time_s"] / res["nexp"]
     mode = "ideal (photon noise only)" if res["ideal"] else f"airmass {res['conditions']['airmass']:.2f}"
-    ax.set_title(f"{plain(res['event'].id)}  {plain(res['ref'].id)}  phase {res['phase_d']:g} d  "
+    ax.set_title(f"{plain(res['event'].id)}  {plain(res['ref'].id)}  day {res['phase_d']:.2f}  "
                  f"{res['nexp']} x {single:.0f} s  {mode}\nS/N per resolution element (model estimate; "
                  "the observatory's own tools take precedence)", fontsize=FONT_PT + 1)
     handles = ax.get_legend_handles_labels()[0] + proxies

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import numpy as np
 
+from kncast.planner.figures.palette import SERIES
 from kncast.planner.figures.text import plain
 
 PLOT_LEVEL_MAX = 7  # resample to at most nside 128 for drawing
@@ -70,37 +71,37 @@ def _sky_panel(ax, result, level):
     skymap = result.skymap
     x, y, density = _raster(skymap, skymap.density_per_sr, level)
     first = _first_nights(result)
-    colours = plt.get_cmap("tab10")
+    colours = lambda k: SERIES[k % len(SERIES)]  # noqa: E731
     masks = []
     for k, rec_index in enumerate(first.values()):  # underneath everything: each site's observable sky, shaded
         _, _, img = _raster(skymap, result.observable[:, rec_index].astype(float), level)
         masks.append(img)
         if np.nanmax(img) >= 0.5:
-            ax.contourf(x, y, img, levels=[0.5, 1.01], colors=[colours(k % 10)], alpha=max(0.05, 0.3 / len(first)))
+            ax.contourf(x, y, img, levels=[0.5, 1.01], colors=[colours(k)], alpha=max(0.05, 0.3 / len(first)))
     masked = np.ma.masked_less_equal(density, 0.01 * float(density.max()))  # faint tail left transparent
     ax.pcolormesh(x, y, masked, cmap="Purples", norm=PowerNorm(0.5, vmin=0.0), shading="nearest", rasterized=True)
     _, _, cred = _raster(skymap, _credible_levels(skymap), level)
     cs = ax.contour(x, y, cred, levels=[0.5, 0.9], colors=["#111111", "#555555"], linewidths=[1.2, 0.9],
                     linestyles=["solid", "dashed"])
-    ax.clabel(cs, fmt={0.5: "50%", 0.9: "90%"}, fontsize=7)
+    ax.clabel(cs, fmt={0.5: "50%", 0.9: "90%"}, fontsize=9)
     handles = []
     for k, (site_id, rec_index) in enumerate(first.items()):
         rec, img = result.nights[rec_index], masks[k]
-        colour = colours(k % 10)
+        colour = colours(k)
         if np.nanmax(img) >= 0.5:
             ax.contour(x, y, img, levels=[0.5], colors=[colour], linewidths=1.0)
         handles.append(plt.Line2D([], [], color=colour, lw=1.5,
                                   label=f"{site_id} {rec.night:%m-%d}: P {rec.observable_probability:.2f}"))
     ticks = np.arange(-150, 181, 30)
     ax.set_xticks(np.radians(ticks))
-    ax.set_xticklabels([f"{(-t) % 360:d}" for t in ticks], fontsize=7)
-    ax.tick_params(axis="y", labelsize=7)
+    ax.set_xticklabels([f"{(-t) % 360:d}" for t in ticks], fontsize=9)
+    ax.tick_params(axis="y", labelsize=9)
     ax.grid(True, color="#999999", lw=0.4, alpha=0.6)
-    ax.set_xlabel("RA (deg, ICRS)", fontsize=8)
-    ax.set_ylabel("Dec (deg)", fontsize=8)
+    ax.set_xlabel("RA (deg, ICRS)", fontsize=9)
+    ax.set_ylabel("Dec (deg)", fontsize=9)
     if handles:
-        ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=7, frameon=False,
-                  title="observable (first dark night)", title_fontsize=7)
+        ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=9, frameon=False,
+                  title="observable (first dark night)", title_fontsize=9)
 
 
 def _first_nights(result) -> dict[str, int]:
@@ -129,11 +130,11 @@ def _table_panel(ax, result, sites, n_nights):
     ax.imshow(np.nan_to_num(prob, nan=0.0), aspect="auto", cmap="YlGn", vmin=0.0, vmax=1.0)
     for i in range(len(ids)):
         for j in range(n_nights):
-            ax.text(j, i, text[i][j], ha="center", va="center", fontsize=7,
+            ax.text(j, i, text[i][j], ha="center", va="center", fontsize=9,
                     color="black" if not np.isfinite(prob[i, j]) or prob[i, j] < 0.6 else "white")
     ax.set_yticks(range(len(ids)))
-    ax.set_yticklabels(ids, fontsize=7)
+    ax.set_yticklabels(ids, fontsize=9)
     ax.set_xticks(range(n_nights))
-    ax.set_xticklabels([f"night {j + 1}" for j in range(n_nights)], fontsize=7)
+    ax.set_xticklabels([f"night {j + 1}" for j in range(n_nights)], fontsize=9)
     ax.tick_params(length=0)
-    ax.set_title("probability observable and probability x hours, per site and local night", fontsize=8, loc="left")
+    ax.set_title("probability observable and probability x hours, per site and local night", fontsize=9, loc="left")

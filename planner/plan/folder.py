@@ -145,13 +145,14 @@ def campaign_chart(plan, folder, _arg):
 
 def light_curve(plan, folder, _arg):
     from kncast.forecast.defaults import DEFAULT_BANDS
-    from kncast.planner.figures.lightcurve import lightcurve_figure
+    from kncast.planner.figures.lightcurve import distance_range_mpc, lightcurve_figure
 
     useful = plan.useful() or [p for p in plan.nights if p.phase_d is not None]
     phases = np.unique(np.round([p.phase_d for p in useful], 4)) if useful else np.array([1.0])
     state = plan.transient.state(phases)
     fig = lightcurve_figure(plan.transient, state, DEFAULT_BANDS,
-                            f"{plan.event.id}: {plan.model.get('name', '')} photosphere")
+                            f"{plan.event.id}: {plan.model.get('name', '')} photosphere",
+                            distance_range=distance_range_mpc(plan.event, plan.transient))
     return {"title": "Light curve", "path": _save(fig, folder, "lightcurve"),
             "caption": "Model AB magnitudes and photospheric temperature; markers at the "
                        + ("epochs with a useful spectrum." if plan.useful() else "planned epochs.")}
@@ -252,7 +253,7 @@ def snr_spectrum(plan, folder, setup_id):
     seconds = c.time_to_sigma_s if c.time_to_sigma_s else p.hours_available * 3600.0
     request = Request(phase_d=p.phase_d, time_s=seconds, max_exposure_s=DEFAULT_MAX_EXPOSURE_S)
     res = observe(plan.event, ref, plan.transient, cond, request, tellurics=plan.tellurics)
-    fig = exposure_figure(res)
+    fig = exposure_figure(res, reference_feature=c.feature)
     what = (f"the time for {sigma:g} sigma on the {c.words} trough" if c.time_to_sigma_s else "the usable time")
     return {"title": f"S/N spectrum, {setup_id}",
             "path": _save(fig, folder, "snr-" + _file_part(setup_id)),
@@ -277,52 +278,68 @@ FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": sp
            "snr": snr_spectrum, "snr-campaign": snr_campaign}
 
 
-def snr_campaign_figure(plan):
-    """Significance of the best-measured diagnostic trough in the usable window vs epoch, one line per setup.
+SNR_PANEL_COLUMNS = 3  # small multiples: panels per row of the S/N-across-the-campaign chart
 
-    All lines are one collection and the chosen nights one scatter layer; fixed layout, plain-number
-    log ticks (no mathtext), so the figure draws once when saved.
-    """
-    import matplotlib.pyplot as plt
-    from matplotlib.collections import LineCollection
-    from matplotlib.lines import Line2D
-    from matplotlib.ticker import FuncFormatter, NullLocator
 
-    from kncast.planner.figures.text import plain
-
-    fig, ax = plt.subplots(figsize=(9, 4.6))
-    fig.subplots_adjust(left=0.09, right=0.98, bottom=0.12, top=0.92)
-    target = plan.settings["sigma"]
+def _significance_series(plan) -> dict:
+    """{setup id: (days since t0, significance (floored at 0.01), chosen that night)} in phase order."""
     series = {}
     for p in plan.nights:
         for o in p.outcomes:
             if o.significance is not None:
                 series.setdefault(o.setup, []).append((p.phase_d, max(o.significance, 1e-2), o is p.choice))
-    colours = plt.cm.tab20(np.linspace(0, 1, max(len(series), 2)))
-    lines, dots, dot_colours, handles = [], [], [], []
-    for (sid, pts), colour in zip(sorted(series.items()), colours):
-        pts.sort()
-        x, y, chosen = (np.array(v) for v in zip(*pts))
-        lines.append(np.column_stack([x, y]))
+    return {sid: tuple(np.array(v) for v in zip(*sorted(pts))) for sid, pts in sorted(series.items())}
+
+
+def snr_campaign_figure(plan):
+    """Significance of the best-measured diagnostic trough in the usable window vs epoch: small multiples,
+    one panel per setup (named in its title), every other setup drawn faintly behind for comparison.
+
+    Readable with any number of setups (no legend, no colour per setup); one line collection per panel,
+    fixed layout, plain-number log ticks (no mathtext), so the figure draws once when saved.
+    """
+    import matplotlib.pyplot as plt
+    from matplotlib.collections import LineCollection
+    from matplotlib.ticker import FuncFormatter, NullLocator
+
+    from kncast.planner.figures.palette import SERIES, TARGET_COLOR
+    from kncast.planner.figures.text import plain
+
+    series = _significance_series(plan)
+    n = max(len(series), 1)
+    ncol = min(SNR_PANEL_COLUMNS, n)
+    nrow = -(-n // ncol)
+    height = 1.3 + 1.75 * nrow
+    fig, axes = plt.subplots(nrow, ncol, figsize=(11, height), sharex=True, sharey=True, squeeze=False)
+    fig.subplots_adjust(left=0.08, right=0.985, bottom=0.75 / height, top=1 - 0.75 / height, hspace=0.45, wspace=0.08)
+    target = plan.settings["sigma"]
+    curves = [np.column_stack(v[:2]) for v in series.values()]
+    for k, ax in enumerate(axes.ravel()):
+        if k >= len(series):
+            ax.set_visible(False)
+            continue
+        sid, (x, y, chosen) = list(series.items())[k]
+        others = [c for j, c in enumerate(curves) if j != k]
+        if others:
+            ax.add_collection(LineCollection(others, colors="0.8", linewidths=0.8, zorder=1))
+        ax.plot(x, y, color=SERIES[0], lw=1.6, marker="o", ms=3, zorder=3)
         chosen = chosen.astype(bool)
-        dots += list(zip(x[chosen], y[chosen]))
-        dot_colours += [colour] * int(chosen.sum())
-        handles.append(Line2D([], [], color=colour, lw=1.1, alpha=0.85, label=plain(sid)))
-    ax.add_collection(LineCollection(lines, colors=colours[:len(lines)], linewidths=1.1, alpha=0.85))
-    if dots:
-        ax.scatter(*np.array(dots).T, s=25, c=dot_colours, edgecolors="black", linewidths=0.6, zorder=3)
-    ax.axhline(target, color="0.2", ls="--", lw=1)
-    ax.set_yscale("log")
-    ax.autoscale_view()
-    ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
-    ax.yaxis.set_minor_locator(NullLocator())
-    ax.set_xlabel("days since t0")
-    ax.set_ylabel("significance of the best trough (sigma)")
-    ax.set_title("Detection significance per setup in the usable time (circled: the setup chosen that night)",
-                 fontsize=10, y=1.01)
-    ax.grid(alpha=0.3)
-    if series:
-        ax.legend(handles=handles, fontsize=6.5, ncol=2, loc="upper right", frameon=False)
+        if chosen.any():
+            ax.plot(x[chosen], y[chosen], "o", ms=7, color=SERIES[1], mec="black", mew=0.6, zorder=4)
+        ax.axhline(target, color=TARGET_COLOR, ls="--", lw=0.9, zorder=2)
+        ax.set_title(plain(sid), fontsize=9, loc="left", pad=3)
+        ax.tick_params(labelsize=9, labelbottom=k + ncol >= len(series))  # x labels under each column's last
+        ax.grid(alpha=0.3)
+    ax0 = axes[0, 0]
+    ax0.set_yscale("log")
+    ax0.autoscale_view()
+    ax0.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    ax0.yaxis.set_minor_locator(NullLocator())
+    fig.text(0.5, 0.2 / height, "days since t0", ha="center", fontsize=10)
+    fig.text(0.012, 0.5, "significance of the best trough (sigma)", rotation=90, va="center", fontsize=10)
+    fig.text(0.01, 1 - 0.3 / height, f"Detection significance per setup in the usable time. Blue: this setup; "
+             f"orange: nights it is chosen; grey: the other setups; dashed: target {target:g} sigma",
+             fontsize=10, va="center")
     return fig
 
 

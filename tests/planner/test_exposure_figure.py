@@ -60,7 +60,9 @@ def test_features_are_named_not_by_id(chart, result):
     texts = [t.get_text() for t in _texts(chart)]
     ids = {f["feature"] for f in result["features"]}
     assert ids and not any(i in t for t in texts for i in ids)
-    words = {f.id: feature_words(f) for f in LineList.load().features()}
+    from kncast.planner.figures.text import angstrom
+
+    words = {f.id: angstrom(feature_words(f)) for f in LineList.load().features()}  # drawn with the Angstrom sign
     lo, hi = result["grid"].wavelength_A.min(), result["grid"].wavelength_A.max()
     shown = [f for f in result["features"][:8] if lo <= f["trough_obs_A"] <= hi]
     assert shown and all(words[f["feature"]] in texts for f in shown)
