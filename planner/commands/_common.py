@@ -229,6 +229,96 @@ def _columns(default: int = 160) -> int:
     return int(text) if text.isdigit() and int(text) >= 40 else default
 
 
+def fit_table(table, width: int | None = None, must_fit: bool = False):
+    """``table`` (a rich Table with its rows) laid out to fit ``width`` columns without cutting a word.
+
+    Every column is at least as wide as its longest word (header or cell: ids, dates and numbers stay
+    whole, no header is cut to an ellipsis); when the columns do not fit with the usual padding and
+    borders, the padding and the vertical rules go; ids still too long (setup ids) break after a "/"
+    or ":".  With ``must_fit``, None when whole words cannot fit (the caller then shows a narrower table).
+    """
+    from rich import box
+
+    width = width or console().width
+    cols = table.columns
+    longest = [_longest_word(col) for col in cols]
+
+    def needed(pad: int) -> int:
+        return sum(longest) + 2 * pad * len(cols) + len(cols) + 1
+
+    if needed(1) > width:
+        table.box, table.show_edge, table.pad_edge = box.SIMPLE_HEAD, False, False
+        table.padding = (0, 1) if needed(1) - 2 <= width else (0, 0)
+    pad = table.padding[1] if len(table.padding) > 1 else table.padding[0]
+    for k, col in enumerate(cols):
+        excess = needed(pad) - width
+        if excess > 0 and any("/" in _plain(c) for c in [col.header, *col._cells]):
+            limit = max(8, longest[k] - excess)
+            col._cells = [_break_after_slash(c, limit) for c in col._cells]
+            col.header = _break_after_slash(col.header, limit)
+            longest[k] = _longest_word(col)
+    fits = _set_widths(table, longest, width)
+    return table if fits or not must_fit else None
+
+
+def _set_widths(table, longest: list, width: int) -> bool:
+    """Fixed column widths: each column its longest word, the room left shared by how much more each wants."""
+    cols = table.columns
+    pad = table.padding[1] if len(table.padding) > 1 else table.padding[0]
+    rules = len(cols) + 1 if table.show_edge else len(cols) - 1
+    room = width - rules - 2 * pad * len(cols) - sum(longest)
+    for col in cols:
+        col.overflow = "fold"
+    if room < 0:  # cannot fit whole words: rich shares the width (long words fold)
+        for k, col in enumerate(cols):
+            col.min_width = min(longest[k], width)
+        return False
+    full = [max((len(line) for c in [col.header, *col._cells] for line in _plain(c).splitlines()), default=1)
+            for col in cols]
+    want = [max(0, f - m) for f, m in zip(full, longest)]
+    total = sum(want)
+    extra = want if total <= room else [w * room // total for w in want]
+    for k, col in enumerate(cols):
+        col.width = longest[k] + extra[k]
+    return True
+
+
+def _plain(cell) -> str:
+    from rich.text import Text
+
+    return cell.plain if isinstance(cell, Text) else Text.from_markup(str(cell)).plain
+
+
+def _longest_word(col) -> int:
+    """Length of the longest whitespace-free run in a column's header and cells."""
+    return max((len(w) for c in [col.header, *col._cells] for w in _plain(c).split()), default=1)
+
+
+def _break_after_slash(cell, width: int):
+    """A cell whose words longer than ``width`` are put on new lines after their "/" separators."""
+    from rich.text import Text
+
+    if isinstance(cell, Text) or "/" not in str(cell):
+        return cell
+    out = []
+    for line in str(cell).split("\n"):
+        words = []
+        for w in line.split(" "):
+            if len(w) > width and "/" in w:
+                parts, cur = [], ""
+                for seg in re.split(r"(?<=[/:])", w):  # pieces ending in their separator
+                    if cur and len(cur) + len(seg) > width:
+                        parts.append(cur)
+                        cur = seg
+                    else:
+                        cur += seg
+                parts.append(cur)
+                w = "\n".join(parts)
+            words.append(w)
+        out.append(" ".join(words))
+    return "\n".join(out)
+
+
 def progress(disable: bool = False):
     """A rich Progress on stderr, shown only when stderr is a terminal."""
     from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn

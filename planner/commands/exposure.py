@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import math
 
-from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
+from kncast.planner.commands._common import (fit_table, add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, positive_int)
 from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 from kncast.forecast.defaults import DEFAULT_MAX_EXPOSURE_S, SNR_BASIS, STRONG_TAU
@@ -242,7 +242,7 @@ def print_tables(res: dict) -> None:
             table.add_row(escape(f["feature"]), f"{f['tau_sobolev']:.3g}", f"{f['trough_obs_A']:.0f}",
                           _fmt(f["snr_per_resel"]), f"{f['emission_peak_obs_A']:.0f}",
                           _fmt(f["snr_per_resel_emission"]))
-        out.print(table)
+        out.print(fit_table(table, out.width))
         if len(res["features"]) > SHOWN_FEATURES:
             out.print(f"[dim]{len(res['features']) - SHOWN_FEATURES} more strong features in --json[/dim]")
     else:
@@ -252,7 +252,7 @@ def print_tables(res: dict) -> None:
     table.add_column("S/N", justify="right")
     for row in res["reference"]:
         table.add_row(f"{row['wavelength_A']:.0f}", _fmt(row["snr_per_resel"]))
-    out.print(table)
+    out.print(fit_table(table, out.width))
     for w in res["warnings"]:
         out.print(f"[yellow]warning:[/yellow] {escape(w)}")
     out.print(f"[dim]{CAUTION}[/dim]")

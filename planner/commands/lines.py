@@ -1,7 +1,7 @@
 """``kncast lines``: where each diagnostic feature lands per epoch, how strong it is, which setups see it."""
 from __future__ import annotations
 
-from kncast.planner.commands._common import (add_event_options, add_output_options, check_plot_path, console, emit_json,
+from kncast.planner.commands._common import (fit_table, add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, parse_phases, split_list)
 from kncast.planner.commands._model_options import add_model_options, overrides_from_args
 
@@ -256,37 +256,17 @@ def _detail(s) -> str:
 def print_tables(event, doc, n_setups: int) -> None:
     """Per epoch: features ranked by tau with windows; verdicts per setup (detailed or as a matrix)."""
     from rich.markup import escape
-    from rich.table import Table
 
     out = console(markup=True)  # every string from a file below is escaped
     st = doc["settings"]
     out.print(f"[bold]{escape(event.id)}[/bold]  z = {st['redshift']:.4f}  ejecta {st['ejecta_mass_msun']:g} Msun  "
               f"airmass {st['airmass']:g}  PWV {st['pwv_mm']:g} mm  {n_setups} setup(s)  (vacuum A, observed frame)")
     for ep in doc["epochs"]:
-        head = (f"day {ep['phase_d']:g}: T {ep['temperature_K']:.0f} K, v_phot {ep['v_phot_c']:.3f} c, "
-                f"v_max {ep['v_max_c']:.3f} c, n_e {ep['electron_density_cm3']:.2g} cm^-3")
-        table = Table(title=escape(head), title_justify="left")
-        for name, just in [("#", "right"), ("feature", "left"), ("species", "left"), ("tau", "right"),
-                           ("trough", "right"), ("absorption", "right"), ("emission", "right")]:
-            table.add_column(name, justify=just)
         detailed = n_setups <= DETAIL_SETUPS
-        if detailed:
-            for sid in doc["setups"]:
-                table.add_column(escape(sid), justify="left")
-        else:
-            table.add_column("clear in", justify="right")
-            table.add_column("best setup (usable %)", justify="left")
-        for f in ep["features"]:
-            name = f["feature"] + (" [dim](uncertain)[/dim]" if f["uncertain"] else "")
-            cells = [str(f["rank"]), name, escape(f["species"]), _tau(f), f"{f['trough_obs_A']:.0f}",
-                     _span(f["absorption_obs_A"]), _span(f["emission_obs_A"])]
-            if detailed:
-                cells += [_detail(s) for s in f["setups"]]
-            else:
-                clear = sum(s["verdict"] == "clear" for s in f["setups"])
-                best = max(f["setups"], key=_usable)
-                cells += [f"{clear}/{len(f['setups'])}", f"{escape(best['setup'])} ({100 * _usable(best):.0f}%)"]
-            table.add_row(*cells)
+        table = fit_table(_feature_table(ep, doc, detailed), out.width, must_fit=detailed) if detailed else None
+        if table is None:  # many setups, or too narrow for a column per setup: the matrix below instead
+            detailed = False
+            table = fit_table(_feature_table(ep, doc, detailed), out.width)
         out.print(table)
         if not detailed:
             _print_matrix(out, ep)
@@ -294,6 +274,37 @@ def print_tables(event, doc, n_setups: int) -> None:
               f"{_non_lte_rule()}. Per setup: verdict, then "
               "% of the whole P Cygni profile on the detector / % lost to telluric bands.[/dim]")
     out.print(f"[dim]{CAUTION}[/dim]")
+
+
+def _feature_table(ep, doc, detailed: bool):
+    """The features of one epoch ranked by tau, with a column per setup (``detailed``) or the best setup."""
+    from rich.markup import escape
+    from rich.table import Table
+
+    head = (f"day {ep['phase_d']:g}: T {ep['temperature_K']:.0f} K, v_phot {ep['v_phot_c']:.3f} c, "
+            f"v_max {ep['v_max_c']:.3f} c, n_e {ep['electron_density_cm3']:.2g} cm^-3")
+    table = Table(title=escape(head), title_justify="left")
+    for name, just in [("#", "right"), ("feature", "left"), ("species", "left"), ("tau", "right"),
+                       ("trough", "right"), ("absorption", "right"), ("emission", "right")]:
+        table.add_column(name, justify=just)
+    if detailed:
+        for sid in doc["setups"]:
+            table.add_column(escape(sid), justify="left")
+    else:
+        table.add_column("clear in", justify="right")
+        table.add_column("best setup (usable %)", justify="left")
+    for f in ep["features"]:
+        name = f["feature"] + (" [dim](uncertain)[/dim]" if f["uncertain"] else "")
+        cells = [str(f["rank"]), name, escape(f["species"]), _tau(f), f"{f['trough_obs_A']:.0f}",
+                 _span(f["absorption_obs_A"]), _span(f["emission_obs_A"])]
+        if detailed:
+            cells += [_detail(s) for s in f["setups"]]
+        else:
+            clear = sum(s["verdict"] == "clear" for s in f["setups"])
+            best = max(f["setups"], key=_usable)
+            cells += [f"{clear}/{len(f['setups'])}", f"{escape(best['setup'])} ({100 * _usable(best):.0f}%)"]
+        table.add_row(*cells)
+    return table
 
 
 def _print_matrix(out, ep) -> None:
@@ -319,4 +330,4 @@ def _print_matrix(out, ep) -> None:
         label = ids[0] + (f" (+{len(ids) - 1} alike)" if len(ids) > 1 else "")
         cells = [f"[{_STYLE.get(word, '')}]{_CODE.get(word, '?')}{100 * usable:.0f}[/]" for word, usable in key]
         table.add_row(escape(label), *cells)
-    out.print(table)
+    out.print(fit_table(table, out.width))

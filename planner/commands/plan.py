@@ -250,12 +250,12 @@ def print_summary(plan, doc: dict, out: Path, quiet: bool = False, verbose: bool
     if not quiet:
         blocks = doc.get("blocks", [])
         if blocks:
-            con.print(blocks_table(plan, blocks))
+            con.print(_common.fit_table(blocks_table(plan, blocks), con.width))
         if verbose:
-            con.print(reasons_table(plan))
+            con.print(_common.fit_table(reasons_table(plan), con.width))
             rest = unused_table(plan)
             if rest.row_count:
-                con.print(rest)
+                con.print(_common.fit_table(rest, con.width))
         camp = plan.campaign
         if camp["last_useful"]:
             lu = camp["last_useful"]

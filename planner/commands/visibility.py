@@ -1,7 +1,7 @@
 """``kncast visibility``: from which sites, on which nights, between which times."""
 from __future__ import annotations
 
-from kncast.planner.commands._common import (night_rules_from_args, add_event_options, add_night_rule_options, add_output_options,
+from kncast.planner.commands._common import (fit_table, night_rules_from_args, add_event_options, add_night_rule_options, add_output_options,
                                       add_site_options, check_plot_path, console, emit_json, event_from_args,
                                       sites_from_args)
 
@@ -102,7 +102,7 @@ def print_tables(result) -> None:
                     f"{w.phase_start_d:.2f}-{w.phase_end_d:.2f}")
             if rec.note:
                 table.add_row("", "", f"[dim]{escape(rec.note)}[/dim]", *[""] * 7)
-        out.print(table)
+        out.print(fit_table(table, out.width))
     out.print(f"[dim]{CAUTION}[/dim]")
 
 
@@ -125,4 +125,5 @@ def print_ranking(nights: list) -> None:
                           "-" if r.best_time is None else r.best_time.utc.strftime("%m-%d %H:%M"),
                           "-" if r.moon_sep_deg is None else f"{r.moon_sep_deg:.0f} deg",
                           f"[dim]{escape(r.note)}[/dim]" if not r.observable else "")
-    console(markup=True).print(table)
+    out = console(markup=True)
+    out.print(fit_table(table, out.width))
