@@ -38,7 +38,7 @@ FIGURE_SETS = ("chosen", "all")  # S/N spectra of the most often chosen setups o
 # Seconds to draw and save each kind of figure (measured on the 2-core machine, demo plan; a spectral
 # figure with one panel, each further panel adds half): they decide whether the worker processes pay
 # for themselves and which figure starts first.
-FIGURE_COST_S = {"campaign": 0.17, "lightcurve": 0.19, "spectrum": 0.27, "snr": 0.10, "snr-campaign": 0.17}
+FIGURE_COST_S = {"campaign": 0.17, "lightcurve": 0.19, "spectrum": 0.27, "snr": 0.10, "snr-campaign": 0.9}
 POOL_OVERHEAD_S = 0.05  # forking two workers, handing out the jobs, collecting the results (measured: 0.02-0.04)
 
 
@@ -300,7 +300,7 @@ def snr_campaign_figure(plan):
     """
     import matplotlib.pyplot as plt
     from matplotlib.collections import LineCollection
-    from matplotlib.ticker import FuncFormatter, NullLocator
+    from matplotlib.ticker import FixedLocator, FuncFormatter, MaxNLocator, NullLocator
 
     from kncast.planner.figures.palette import SERIES, TARGET_COLOR
     from kncast.planner.figures.text import plain
@@ -327,7 +327,7 @@ def snr_campaign_figure(plan):
         if chosen.any():
             ax.plot(x[chosen], y[chosen], "o", ms=7, color=SERIES[1], mec="black", mew=0.6, zorder=4)
         ax.axhline(target, color=TARGET_COLOR, ls="--", lw=0.9, zorder=2)
-        ax.set_title(plain(sid), fontsize=9, loc="left", pad=3)
+        ax.set_title(plain(sid), fontsize=9, loc="left", pad=3, y=1.0)  # a set position: no overlap search
         ax.tick_params(labelsize=9, labelbottom=k + ncol >= len(series))  # x labels under each column's last
         ax.grid(alpha=0.3)
     ax0 = axes[0, 0]
@@ -335,6 +335,11 @@ def snr_campaign_figure(plan):
     ax0.autoscale_view()
     ax0.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     ax0.yaxis.set_minor_locator(NullLocator())
+    ax0.xaxis.set_minor_locator(NullLocator())
+    ax0.xaxis.set_major_locator(MaxNLocator(4))  # few ticks: each panel draws fast
+    values = np.concatenate([v[1] for v in series.values()] + [np.array([target])])
+    ax0.yaxis.set_major_locator(FixedLocator(10.0 ** np.arange(np.floor(np.log10(values.min())),
+                                                               np.ceil(np.log10(values.max())) + 1)))
     fig.text(0.5, 0.2 / height, "days since t0", ha="center", fontsize=10)
     fig.text(0.012, 0.5, "significance of the best trough (sigma)", rotation=90, va="center", fontsize=10)
     fig.text(0.01, 1 - 0.3 / height, f"Detection significance per setup in the usable time. Blue: this setup; "
