@@ -180,9 +180,37 @@ def _key(ax, labels, colors):
     ax.axis("off")
 
 
+def _reference_marks(ax, result, n_feat, references) -> bool:
+    """Outline, in each row, the absorption bar of that row's reference feature (id, or None); True if any."""
+    from matplotlib.collections import PolyCollection
+
+    ids = [getattr(f, "id", None) for f in result.features[:n_feat]]
+    lane = 0.84 / n_feat
+    w = result.windows
+    boxes = []
+    for row, fid in enumerate(references or []):
+        if fid in ids:
+            k = ids.index(fid)
+            y = row + 0.08 + lane * (k + 0.5)
+            boxes.append(_rects(w.absorption_lo_A[row:row + 1, k], w.absorption_hi_A[row:row + 1, k],
+                                np.array([y - 0.6 * lane]), np.array([y + 0.6 * lane]))[0])
+    if boxes:
+        ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors="black", linewidths=1.6, zorder=6))
+    return bool(boxes)
+
+
+def _left_margin(refs, width_in: float) -> float:
+    """Figure fraction left of the panels: room for the longest setup id at FONT_PT (about 0.6 em a character)."""
+    longest = max((len(r.id) for r in refs), default=0)
+    return min(0.32, max(0.15, (0.6 * FONT_PT / 72.0 * longest + 0.2) / width_in))
+
+
 def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.5, title: str = "",
-                 telluric_threshold=None):
+                 telluric_threshold=None, references=None):
     """A matplotlib Figure of the line forecast (see the module docstring).
+
+    ``references``: per row (epoch), the id of the feature the chosen setup is judged on (or None),
+    outlined in black.
 
     ``telluric_threshold``: transmission below which a band is lost (default
     ``kncast.forecast.tellurics.CORRECTABLE_TRANSMISSION``).
@@ -208,7 +236,7 @@ def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.
     total_h = sum(heights) + 0.5 * len(heights) + 1.0
     fig = Figure(figsize=(11.5, total_h))
     grid = fig.add_gridspec(len(heights), 2, height_ratios=heights, width_ratios=[4.6, 1.0],
-                            left=0.15, right=0.985, top=1 - 0.55 / total_h, bottom=0.75 / total_h,
+                            left=_left_margin(refs, 11.5), right=0.985, top=1 - 0.55 / total_h, bottom=0.75 / total_h,
                             hspace=0.55 * len(heights) / sum(heights), wspace=0.13)
     axes = [fig.add_subplot(grid[i, 0]) for i in range(len(heights))]
     for a in axes[1:]:
@@ -219,6 +247,7 @@ def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.
     regions = _telluric_regions(tellurics, lam, airmass, pwv_mm, threshold)
     _atmosphere_strip(axes[0], lam, regions, threshold, airmass, pwv_mm)
     _feature_map(axes[1], result, flux, lam, colors, regions, n_feat)
+    marked = _reference_marks(axes[1], result, n_feat, references)
     if refs:
         _setup_panel(axes[2], refs, result, regions, n_feat)
     _key(fig.add_subplot(grid[1, 1]), _labels(result)[:n_feat], colors)
@@ -234,6 +263,7 @@ def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.
     fig.suptitle(f"{head}where each feature falls per epoch (solid: absorption, tick = expected trough; "
                  "pale: emission) and which setups record it", fontsize=FONT_PT + 2, x=0.01, ha="left",
                  y=1 - 0.12 / total_h)
-    fig.text(0.01, 0.06 / total_h, "Model estimates; the observatory's own tools and rules take precedence.",
+    fig.text(0.01, 0.06 / total_h, ("Outlined in black: the reference feature of the setup chosen in that row. "
+                                     if marked else "") + "Model estimates; the observatory's own tools and rules take precedence.",
              fontsize=FONT_PT, color="0.35")
     return fig

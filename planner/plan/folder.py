@@ -198,7 +198,8 @@ def spectral_figure(plan, folder, day):
                            setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
                            pwv_mm=pwv, composition=composition, setup_ids=[r.id for r in group_refs])
     fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
-                       f"Days {day}-{day + 1}", telluric_threshold=plan.settings.get("telluric_threshold"))
+                       f"Days {day}-{day + 1}", telluric_threshold=plan.settings.get("telluric_threshold"),
+                       references=[g[0].choice.feature for g in groups])
     words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
                                                               for p in g) for g in groups)
     return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
