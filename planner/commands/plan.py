@@ -287,8 +287,10 @@ def blocks_table(plan, blocks: list):
                     f"trough for that exposure; detected at >= {sigma:g} sigma", title_justify="left",
               box=box.SIMPLE_HEAD, pad_edge=False)
     longest = max((len(w) for b in blocks for w in b["setup"].replace("/", " ").split()), default=8)
-    for col, kw in (("day", {"justify": "right"}), ("setup", {"min_width": longest}), ("UTC", {"min_width": 11}),
-                    ("X", {"justify": "right"}), ("N x t", {}), ("S/N", {"justify": "right"}),
+    answer = {"style": "bold"}  # where, when and how long stand out (on a terminal; plain text when piped)
+    for col, kw in (("day", {"justify": "right"}), ("setup", {"min_width": longest, **answer}),
+                    ("UTC", {"min_width": 11, **answer}), ("X", {"justify": "right"}), ("N x t", answer),
+                    ("S/N", {"justify": "right"}),
                     ("detected", {"ratio": 1, "min_width": 14})):
         t.add_column(col, overflow="fold", **kw)
     for b in blocks:
