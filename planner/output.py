@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import contextlib
 import errno
-import json
 import math
 import os
 import re

@@ -18,7 +18,7 @@ import numpy as np
 
 from kncast.forecast.datafiles import check_keys, field, read_toml, table
 from kncast.forecast.errors import DataFileError
-from kncast.planner.errors import InputError, ParameterError, UnknownNameError
+from kncast.planner.errors import ParameterError, UnknownNameError
 
 
 @dataclass(frozen=True)

@@ -28,3 +28,19 @@ def run_cli(capsys):
         return status, out.out, out.err
 
     return run
+
+
+def every_element_composition(tmp_path_factory):
+    """A composition of every element with atomic data (atoms.toml), equal parts: the partition
+    functions do not depend on the mass fractions, and the bundled mixture holds only the line-list
+    elements (forecast/data/make_lines.py)."""
+    import tomllib
+
+    from kncast.forecast.lte import ATOMS_PATH
+
+    elements = tomllib.loads(ATOMS_PATH.read_text())["element"]
+    path = tmp_path_factory.mktemp("every_element") / "abundances.toml"
+    path.write_text("[abundances]\n[abundances.mass_fraction]\n" + "".join(f"{e} = 1.0\n" for e in elements))
+    from kncast.forecast.lte import Composition
+
+    return Composition.load(path)

@@ -87,6 +87,14 @@ def add_night_rule_options(g, subject: str, max_nights: int, default_nights: int
                    help=f"smallest Moon-{subject} separation (0-180 deg; default: no Moon rule)")
 
 
+def add_time_per_night_options(g) -> None:
+    """``--max-hours --overhead-min``: the time a night gives the target (plan and semester)."""
+    g.add_argument("--max-hours", type=finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
+                   metavar="H", help="at most this many hours per night on the target (default 4)")
+    g.add_argument("--overhead-min", type=finite_float("--overhead-min", 0, 240), default=15.0,
+                   metavar="MIN", help="acquisition and readout overhead per night, minutes (default 15)")
+
+
 def night_rules_from_args(args) -> dict:
     """The night-rule options as keyword arguments of compute_visibility / build_plan / compute_coverage."""
     return {"nights": args.nights, "twilight": args.twilight, "min_altitude_deg": args.min_altitude,

@@ -1,8 +1,6 @@
 """``kncast exposure``: S/N per resolution element of a spectrum, or the time to reach a target S/N."""
 from __future__ import annotations
 
-import math
-
 from kncast.planner.commands._common import (fit_table, add_event_options, add_output_options, check_plot_path, console, emit_json,
                                       event_from_args, finite_float, positive_int)
 from kncast.planner.commands._model_options import add_model_options, overrides_from_args

@@ -57,10 +57,7 @@ def add_arguments(p) -> None:
     g.add_argument("--snr", type=_common.finite_float("--snr", 0, 1000, low_open=True), default=10.0,
                    metavar="TARGET", help="with --snr-at: the continuum S/N per resolution element quoted as the "
                                           "target there (default 10)")
-    g.add_argument("--max-hours", type=_common.finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
-                   metavar="H", help="at most this many hours per night on the target (default 4)")
-    g.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
-                   metavar="MIN", help="acquisition and readout overhead per night, minutes (default 15)")
+    _common.add_time_per_night_options(g)
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")
     o.add_argument("--force", action="store_true",

@@ -57,10 +57,7 @@ def add_arguments(p) -> None:
     n.add_argument("--sigma", type=_common.finite_float("--sigma", 0, 100, low_open=True), default=DEFAULT_SIGMA,
                    metavar="N", help=f"significance a diagnostic feature must reach for a useful epoch "
                                      f"(default {DEFAULT_SIGMA:g}, common practice)")
-    n.add_argument("--max-hours", type=_common.finite_float("--max-hours", 0, 24, low_open=True), default=4.0,
-                   metavar="H", help="at most this many hours per night on the target (default 4)")
-    n.add_argument("--overhead-min", type=_common.finite_float("--overhead-min", 0, 240), default=15.0,
-                   metavar="MIN", help="acquisition and readout overhead per night, minutes (default 15)")
+    _common.add_time_per_night_options(n)
     o = p.add_argument_group("output and scale")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/semester-START-END/)")
     o.add_argument("--json", metavar="PATH", help="also write semester.json to PATH ('-' for stdout); quiet terminal")

@@ -11,8 +11,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from kncast.forecast.lte import Composition
 from kncast.forecast.partition import PartitionData, PartitionFunctions
+
+from conftest import every_element_composition
 
 THETA = np.array([1.0, 1.2, 1.4, 1.6, 1.8, 2.0])       # 5040 K ... 2520 K
 # Gray's ~1 % accuracy + 0.001 dex rounding + our truncated level lists (< 1 % at <= 5040 K)
@@ -36,22 +37,8 @@ GRAY_LOG_U = {
 
 @pytest.fixture(scope="module")
 def bundled(tmp_path_factory):
-    comp = _every_element_composition(tmp_path_factory)
+    comp = every_element_composition(tmp_path_factory)
     return comp, comp.partition_model
-
-
-def _every_element_composition(tmp_path_factory):
-    """A composition of every element with atomic data (atoms.toml), equal parts: the partition
-    functions do not depend on the mass fractions, and the bundled mixture holds only the line-list
-    elements (forecast/data/make_lines.py)."""
-    import tomllib
-
-    from kncast.forecast.lte import ATOMS_PATH
-
-    elements = tomllib.loads(ATOMS_PATH.read_text())["element"]
-    path = tmp_path_factory.mktemp("every_element") / "abundances.toml"
-    path.write_text("[abundances]\n[abundances.mass_fraction]\n" + "".join(f"{e} = 1.0\n" for e in elements))
-    return Composition.load(path)
 
 
 def _u(model, element, stage, temperature_K):

@@ -5,27 +5,14 @@ import numpy as np
 import pytest
 
 from kncast.forecast.errors import DataFileError
-from kncast.forecast.lte import Composition
 from kncast.forecast.partition import GRAY_PATH, LEVELS_PATH, PartitionData, PartitionFunctions
+
+from conftest import every_element_composition
 
 
 @pytest.fixture(scope="module")
 def comp(tmp_path_factory):
-    return _every_element_composition(tmp_path_factory)
-
-
-def _every_element_composition(tmp_path_factory):
-    """A composition of every element with atomic data (atoms.toml), equal parts: the partition
-    functions do not depend on the mass fractions, and the bundled mixture holds only the line-list
-    elements (forecast/data/make_lines.py)."""
-    import tomllib
-
-    from kncast.forecast.lte import ATOMS_PATH
-
-    elements = tomllib.loads(ATOMS_PATH.read_text())["element"]
-    path = tmp_path_factory.mktemp("every_element") / "abundances.toml"
-    path.write_text("[abundances]\n[abundances.mass_fraction]\n" + "".join(f"{e} = 1.0\n" for e in elements))
-    return Composition.load(path)
+    return every_element_composition(tmp_path_factory)
 
 
 def _ground_level_weights(comp):
