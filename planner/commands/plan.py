@@ -55,8 +55,9 @@ def add_arguments(p) -> None:
     g.add_argument("--snr-at", type=_common.finite_float("--snr-at", 1000, 60000), metavar="WAVELENGTH_A",
                    help="also report a plain continuum S/N per resolution element at this vacuum wavelength, A")
     g.add_argument("--snr", type=_common.finite_float("--snr", 0, 1000, low_open=True), default=10.0,
-                   metavar="TARGET", help="with --snr-at: the continuum S/N per resolution element quoted as the "
-                                          "target there (default 10)")
+                   metavar="TARGET", help="continuum S/N per resolution element a first-day classification "
+                                          "spectrum must reach (at --snr-at, else 6000 A), quoted with --snr-at "
+                                          "(default 10)")
     _common.add_time_per_night_options(g)
     o = p.add_argument_group("output")
     o.add_argument("--out", metavar="DIR", help="output folder (default ./kncast-out/<event id>/)")
