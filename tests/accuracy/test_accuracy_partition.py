@@ -2,7 +2,7 @@
 
 Reference: Gray 2005, The Observation and Analysis of Stellar Photospheres, 3rd ed.
 (Cambridge University Press), Table D.2: log10 U at theta = 5040 K / T; read from a public
-transcription of the table (checked, secondary).  Gray states its entries are accurate to
+copy of the table (checked, secondary).  Gray states its entries are accurate to
 about 1 %.  Our level sums use NIST ASD energies (forecast/data/levels.ecsv), an
 independent calculation of the same quantity.
 """
