@@ -15,6 +15,7 @@ DEFAULT_BIN_KMS = 1500.0   # velocity bin for the S/N across a trough, km/s (com
 DEFAULT_SIGMA = 5.0        # detection significance a feature must reach (common practice: 5 sigma)
 DEFAULT_MIN_DEPTH = 0.1    # expected depth from which a feature is a diagnostic target by default
 UV_CUTOFF_MAG_PER_AIRMASS = 1.0  # troughs where the atmosphere extinguishes more than this do not count
+CORRECTABLE_TRANSMISSION = 0.3   # telluric bands transmitting at least this much are divided out, not lost (common practice)
 
 # the photospheric temperatures and rest wavelengths the bundled line list was chosen for
 # (forecast/data/make_lines.py; docs/methods.md, "Line selection"), and the epochs `kncast lines`
@@ -25,5 +26,5 @@ LINE_RULE_WAVELENGTH_A = (3000.0, 25000.0)
 DEFAULT_LINE_EPOCHS = 4
 
 __all__ = ["STRONG_TAU", "DEFAULT_MAX_EXPOSURE_S", "SNR_BASIS", "DEFAULT_BANDS", "DEFAULT_BIN_KMS", "DEFAULT_SIGMA",
-           "DEFAULT_MIN_DEPTH", "UV_CUTOFF_MAG_PER_AIRMASS", "LINE_RULE_TEMPERATURE_K", "LINE_RULE_WAVELENGTH_A",
+           "DEFAULT_MIN_DEPTH", "UV_CUTOFF_MAG_PER_AIRMASS", "CORRECTABLE_TRANSMISSION", "LINE_RULE_TEMPERATURE_K", "LINE_RULE_WAVELENGTH_A",
            "DEFAULT_LINE_EPOCHS"]

@@ -21,6 +21,7 @@ from pathlib import Path
 
 import numpy as np
 
+from kncast.forecast.defaults import CORRECTABLE_TRANSMISSION  # noqa: F401  (re-exported)
 from kncast.forecast.errors import DataFileError, check_range
 from kncast.forecast.references import BESSELL_1999, GORDON_2022, MORTON_2000, TOKUNAGA_SIMONS_VACCA_2002
 
@@ -31,7 +32,6 @@ __all__ = ["TelluricModel", "default_bands_path", "REFERENCE_PWV_MM", "CORRECTAB
 
 REFERENCE_PWV_MM = 2.5  # precipitable water of the tabulated depths, mm
 POINT_WIDTH_A = 1e-3    # a zero-width window is evaluated over this width, A
-CORRECTABLE_TRANSMISSION = 0.3  # bands transmitting at least this much are divided out, not lost (common practice)
 _COLUMNS = ("id", "species", "min_A", "max_A", "depth", "scaling", "power", "source")
 _SCALINGS = ("airmass", "airmass_pwv")
 

@@ -7,7 +7,7 @@ the continuum S/N per velocity bin and per resolution element, the expected dept
 detection significance and the time reaching the target significance
 (:mod:`kncast.forecast.detect`), and the telluric losses over the trough (v_phot to v_max)
 and over the emission peak, bands transmitting at least
-:data:`kncast.forecast.tellurics.CORRECTABLE_TRANSMISSION` counting as correctable.  One
+:data:`kncast.forecast.defaults.CORRECTABLE_TRANSMISSION` counting as correctable.  One
 batched exposure evaluation for all rows and columns: no loop over epochs.
 
 A trough counts only where it is measured: on the detector (arm coverage, detector and
@@ -22,8 +22,7 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA,
-                                      UV_CUTOFF_MAG_PER_AIRMASS)
-from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+                                      UV_CUTOFF_MAG_PER_AIRMASS, CORRECTABLE_TRANSMISSION)
 
 TROUGH_SAMPLES = 9  # places across the trough (v_phot .. v_max) where the continuum S/N may be measured
 

@@ -15,7 +15,7 @@ def model_config(event, model: str | None = None, overrides: dict | None = None)
     """
     from kncast.forecast.photosphere import build_model
 
-    file_cfg = central_config(dict(getattr(event, "model", None) or {}), where=f"{event.source}: [model]")
+    file_cfg = central_config(dict(getattr(event, "model", None) or {}), path=event.source)
     if file_cfg:
         build_model(file_cfg, where=f"{event.source}: [model]")
     overrides = dict(overrides or {})
@@ -60,7 +60,7 @@ def with_values(config: dict, values: dict) -> dict:
     return out
 
 
-def central_config(config: dict, where: str) -> dict:
+def central_config(config: dict, path) -> dict:
     """The ``[model]`` dict with every range [lo, hi] (0 < lo <= hi) replaced by its geometric mean, the
     central model of an ensemble whose draws are uniform in log between lo and hi."""
     ranges = model_ranges(config)
@@ -69,7 +69,7 @@ def central_config(config: dict, where: str) -> dict:
             from kncast.forecast.errors import DataFileError
 
             name = ".".join(str(p) for p in path)
-            raise DataFileError(where.split(": ")[0], f"model.{name}", f"range [{lo:g}, {hi:g}]",
+            raise DataFileError(path, f"model.{name}", f"range [{lo:g}, {hi:g}]",
                                 "two numbers 0 < lo <= hi, drawn uniformly in log")
     return with_values(config, {p: (lo * hi) ** 0.5 for p, (lo, hi) in ranges.items()})
 

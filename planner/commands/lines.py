@@ -46,7 +46,7 @@ def add_arguments(p) -> None:
                    metavar="N", help=f"target significance for time_to_sigma_s (default {DEFAULT_SIGMA:g})")
     m.add_argument("--bin-kms", type=finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS, metavar="KMS",
                    help=f"velocity bin of the continuum S/N across a trough, km/s (default {DEFAULT_BIN_KMS:g})")
-    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+    from kncast.forecast.defaults import CORRECTABLE_TRANSMISSION
 
     m.add_argument("--telluric-threshold", type=finite_float("--telluric-threshold", 0, 1),
                    default=CORRECTABLE_TRANSMISSION, metavar="T",

@@ -46,7 +46,7 @@ def add_arguments(p) -> None:
     g.add_argument("--bin-kms", type=_common.finite_float("--bin-kms", 10, 30000), default=DEFAULT_BIN_KMS,
                    metavar="KMS", help=f"velocity bin of the continuum S/N across a trough, km/s "
                                        f"(default {DEFAULT_BIN_KMS:g})")
-    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+    from kncast.forecast.defaults import CORRECTABLE_TRANSMISSION
 
     g.add_argument("--telluric-threshold", type=_common.finite_float("--telluric-threshold", 0, 1),
                    default=CORRECTABLE_TRANSMISSION, metavar="T",

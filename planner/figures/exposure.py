@@ -40,7 +40,7 @@ def _tellurics(ax, res, lo, hi, top):
     """Hatched lost / correctable columns; returns legend proxies."""
     from matplotlib.patches import Patch
 
-    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+    from kncast.forecast.defaults import CORRECTABLE_TRANSMISSION
 
     tell = res.get("tellurics")
     if tell is None:

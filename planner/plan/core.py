@@ -36,9 +36,8 @@ import numpy as np
 
 from kncast.planner.errors import ParameterError
 
-from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, DEFAULT_MIN_DEPTH, DEFAULT_SIGMA,
-                                      SNR_BASIS)
-from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+from kncast.forecast.defaults import (CORRECTABLE_TRANSMISSION, DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S,
+                                      DEFAULT_MIN_DEPTH, DEFAULT_SIGMA, SNR_BASIS)
 from kncast.planner.observation import batched_conditions, forecast_airmass
 from kncast.planner.draws import DEFAULT_DRAWS, DEFAULT_SEED
 
@@ -139,6 +138,7 @@ class Plan:
     candidates: list = field(default_factory=list)  # kncast.planner.visibility.candidates.CandidateNight, when the event lists several
     blocks: list = field(default_factory=list)      # kncast.planner.plan.blocks.Block, one per chosen telescope and night
     ensemble: dict = field(default_factory=dict)    # draws summary (kncast.planner.plan.ensemble)
+    forecast: object = None                         # the feature forecast of the planned epochs (FeatureForecast)
 
     def useful(self) -> list[NightPlan]:
         return [n for n in self.nights if n.choice is not None]
@@ -356,7 +356,7 @@ def evaluate_setups(plan: Plan, epochs: list, by_site: dict, say) -> None:
     refs = [r for site_refs in by_site.values() for r in site_refs]
     if not epochs or not refs:
         return
-    fc = feature_forecast(plan, epochs, refs)
+    fc = plan.forecast = feature_forecast(plan, epochs, refs)
     say("exposure times")
     st = plan.settings
     for site_id, site_refs, rows, _seconds, m in measure_sites(plan, fc, epochs, by_site, refs, plan.transient):
@@ -399,7 +399,7 @@ def feature_forecast(plan: Plan, epochs: list, refs: list, transient=None):
 
 def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> SetupOutcome:
     """What setup ``ref`` (column ``j`` of ``m``) measures at the epoch of row ``k``."""
-    from kncast.planner.measure import feature_record
+    from kncast.planner.measure import feature_record, feature_words
 
     sigma = plan.settings["sigma"]
     o = SetupOutcome(setup=ref.id, aperture_m=ref.telescope.aperture_m, telescope=f"{ref.site.id}/{ref.telescope.id}")
@@ -415,7 +415,7 @@ def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> S
     if seen:
         f = seen[0]
         rec = o.features[f]
-        o.feature, o.species, o.words = rec["id"], rec["species"], _feature_label(fc.features[f])
+        o.feature, o.species, o.words = rec["id"], rec["species"], feature_words(fc.features[f])
         o.trough_obs_A, o.arm, o.depth = rec["trough_A"], rec["arm"], rec["depth"]
         o.snr_bin, o.significance = rec["snr_bin"], rec["significance"]
         o.tau_sobolev = float(fc.tau[m.rows[k], f])
@@ -426,12 +426,6 @@ def _outcome(plan: Plan, p: NightPlan, fc, m, targets, k: int, j: int, ref) -> S
     o.detects = bool(o.detected)
     o.verdict = _verdict(o)
     return o
-
-
-def _feature_label(feature) -> str:
-    from kncast.planner.measure import feature_words
-
-    return feature_words(feature)
 
 
 def _feature_rows(p: NightPlan, setup_id: str, rec: dict, target: bool) -> dict:

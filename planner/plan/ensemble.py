@@ -52,7 +52,8 @@ def run_ensemble(plan, epochs: list, by_site: dict, n_draws: int, seed: int | No
         node_mags = transient.mag_ab(phases, list(bands))
         for b in bands:
             mags[b][mine] = np.asarray(node_mags[b])[None, :] + shift
-        fc = feature_forecast(plan, epochs, refs, transient)
+        # the central model's forecast is the plan's own; other nodes get theirs
+        fc = plan.forecast if transient is plan.transient else feature_forecast(plan, epochs, refs, transient)
         ids = [f.id for f in fc.features]
         for _site, site_refs, rows, seconds, m in measure_sites(plan, fc, epochs, by_site, refs, transient,
                                                                  flux_scale=(d0 / distances[mine]) ** 2):

@@ -153,7 +153,7 @@ def simulate_semester(st: Settings, dask_address: str | None = None, progress=No
 
 
 def _threshold() -> float:
-    from kncast.forecast.tellurics import CORRECTABLE_TRANSMISSION
+    from kncast.forecast.defaults import CORRECTABLE_TRANSMISSION
 
     return CORRECTABLE_TRANSMISSION
 
