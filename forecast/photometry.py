@@ -54,15 +54,26 @@ def filter_curve(band: str) -> tuple[np.ndarray, np.ndarray]:
         hint = f"; did you mean {', '.join(close)}?" if close else ""
         raise ForecastInputError(f"band {band!r} unknown{hint} (allowed: speclite names such as "
                                  f"bessell-V, sdss2010-r, twomass-Ks)")
-    import speclite.filters
-
-    filt = speclite.filters.load_filter(band)
-    lam = np.asarray(filt.wavelength, dtype=float)
-    resp = np.asarray(filt.response, dtype=float)
+    lam, resp = _read_filter_file(band)
     grid = np.linspace(lam[0], lam[-1], POINTS_PER_BAND)
     out = np.interp(grid, lam, resp)
     grid.flags.writeable = out.flags.writeable = False
     return grid, out
+
+
+def _read_filter_file(band: str) -> tuple[np.ndarray, np.ndarray]:
+    """(wavelength_A, response) of speclite's ECSV file for ``band``, trimmed as speclite's
+    ``load_filter`` trims it (one zero kept at each end).  Read with astropy's ECSV reader, without
+    importing speclite itself (its import loads scipy.interpolate and scipy.integrate: ~0.4 s)."""
+    import astropy.units as u
+    from astropy.table import QTable
+
+    table = QTable.read(str(resources.files("speclite") / "data" / "filters" / f"{band}.ecsv"), format="ascii.ecsv")
+    lam = u.Quantity(table["wavelength"], u.AA).to_value(u.AA)
+    resp = np.asarray(table["response"], dtype=float)
+    nonzero = np.flatnonzero(resp)
+    keep = slice(max(nonzero[0] - 1, 0), min(nonzero[-1] + 2, resp.size))
+    return lam[keep], resp[keep]
 
 
 def _trapezoid_weights(x: np.ndarray) -> np.ndarray:

@@ -90,6 +90,20 @@ def test_synthetic_ab_magnitudes_match_speclite():
     for band in BANDS_ALL:
         assert mag_ab_from_spectrum(wave, flam, band) == pytest.approx(ref[band][0], abs=SPECLITE_TOL_MAG)
 
+def test_filter_files_read_as_speclite_reads_them():
+    # Reference library: speclite.filters.load_filter (its own reader, trimming and unit handling) on
+    # every filter file speclite ships; kncast reads the same files without importing speclite
+    import speclite.filters
+
+    from kncast.forecast.photometry import _read_filter_file, known_bands
+
+    for band in known_bands():
+        lam, resp = _read_filter_file(band)
+        ref = speclite.filters.load_filter(band)
+        assert np.array_equal(lam, np.asarray(ref.wavelength, float)), band
+        assert np.array_equal(resp, np.asarray(ref.response, float)), band
+
+
 
 # m_AB - m_Vega, Blanton & Roweis 2007, AJ 133, 734, Table 1: U..I checked; J, H, Ks from memory.
 BLANTON_ROWEIS_2007 = {"bessell-U": 0.79, "bessell-B": -0.09, "bessell-V": 0.02, "bessell-R": 0.21,
