@@ -30,10 +30,21 @@ def draw_distances(distance_mpc: float, sigma_mpc, n: int, rng) -> np.ndarray:
     """``n`` luminosity distances (Mpc): normal about ``distance_mpc`` with ``sigma_mpc``, truncated at > 0."""
     if not sigma_mpc:
         return np.full(n, float(distance_mpc))
-    from scipy.stats import truncnorm
-
     a = (1e-3 - distance_mpc) / sigma_mpc
-    return truncnorm.rvs(a, np.inf, loc=distance_mpc, scale=sigma_mpc, size=n, random_state=rng)
+    return distance_mpc + sigma_mpc * _truncated_normal_ppf(rng.uniform(size=n), a)
+
+
+def _truncated_normal_ppf(q: np.ndarray, a: float) -> np.ndarray:
+    """Quantiles ``q`` of the standard normal truncated to [a, inf), in log space so the tails keep their digits.
+
+    The inverse-CDF draw scipy.stats.truncnorm.rvs makes (same uniforms, same formula; tested against it)
+    without importing scipy.stats (~0.7 s): Phi(x) = Phi(a) + q (1 - Phi(a)).
+    """
+    from scipy.special import log_ndtr, ndtri_exp
+
+    if a < 0:
+        return ndtri_exp(np.logaddexp(log_ndtr(a), np.log(q) + log_ndtr(-a)))
+    return -ndtri_exp(np.log1p(-q) + log_ndtr(-a))
 
 
 def latin_nodes(ranges: dict, k: int, rng) -> list[dict]:

@@ -31,6 +31,20 @@ def test_distance_draws_are_truncated_normal(south):
     assert d.mean() == pytest.approx(expected, rel=0.02)
 
 
+@pytest.mark.parametrize("distance, sigma", [(50.0, 40.0), (40.0, 8.0), (0.5, 3.0), (300.0, 1.0), (0.0005, 1.0)])
+def test_distance_draws_equal_scipy_truncnorm_draws(distance, sigma):
+    # Reference library: scipy.stats.truncnorm.rvs (inverse CDF of the same uniforms) with the same seed;
+    # both sides of the truncation point (a < 0 and a >= 0)
+    from scipy.stats import truncnorm
+
+    from kncast.planner.draws import draw_distances
+
+    ours = draw_distances(distance, sigma, 5000, np.random.default_rng(11))
+    ref = truncnorm.rvs((1e-3 - distance) / sigma, np.inf, loc=distance, scale=sigma, size=5000,
+                        random_state=np.random.default_rng(11))
+    np.testing.assert_allclose(ours, ref, rtol=1e-12)
+
+
 def test_distance_only_magnitude_percentiles_are_the_distance_modulus_of_the_distance_percentiles(south):
     # m(D') = m(D) + 5 log10(D'/D) (inverse-square law, AB magnitudes: Oke & Gunn 1983); percentiles of
     # order statistics commute with this monotonic map
