@@ -106,18 +106,27 @@ def slit_fraction(width_arcsec, length_arcsec, fwhm_arcsec, profile="gaussian", 
 @functools.lru_cache(maxsize=4)
 def _moffat_table(beta):
     """Interpolator of the Moffat rectangle fraction over (half width, half length) in FWHM units."""
-    from scipy.interpolate import RegularGridInterpolator
-
     u = np.geomspace(0.01, 20.0, 72)
     table = _moffat_rect(u[:, None], u[None, :], beta)
-    interp = RegularGridInterpolator((np.log(u), np.log(u)), table)
+    log_u = np.log(u)
 
     def frac(half_w, half_l):
         hw, hl = np.broadcast_arrays(np.asarray(half_w, float), np.asarray(half_l, float))
-        pts = np.stack([np.log(np.clip(hw, u[0], u[-1])), np.log(np.clip(hl, u[0], u[-1]))], axis=-1)
-        return interp(pts.reshape(-1, 2)).reshape(hw.shape)
+        return bilinear(log_u, log_u, table, np.log(np.clip(hw, u[0], u[-1])), np.log(np.clip(hl, u[0], u[-1])))
 
     return frac
+
+
+def bilinear(x_grid, y_grid, table, x, y):
+    """Bilinear interpolation of ``table[i, j]`` (on increasing ``x_grid[i]``, ``y_grid[j]``) at points
+    ``x``, ``y`` inside the grid (any equal shapes): what scipy's RegularGridInterpolator does with
+    method="linear" (tested against it), without importing scipy.interpolate (~0.3 s)."""
+    i = np.clip(np.searchsorted(x_grid, x, side="right") - 1, 0, x_grid.size - 2)
+    j = np.clip(np.searchsorted(y_grid, y, side="right") - 1, 0, y_grid.size - 2)
+    tx = (x - x_grid[i]) / (x_grid[i + 1] - x_grid[i])
+    ty = (y - y_grid[j]) / (y_grid[j + 1] - y_grid[j])
+    return ((1 - tx) * (1 - ty) * table[i, j] + tx * (1 - ty) * table[i + 1, j]
+            + (1 - tx) * ty * table[i, j + 1] + tx * ty * table[i + 1, j + 1])
 
 
 def extraction_pixels(fwhm_arcsec, pixel_scale_arcsec, extraction_fwhm=2.0, binning=1):

@@ -224,3 +224,17 @@ def test_moffat_slit_against_direct_2d_integration():
     prof = (beta - 1) / (np.pi * a * a) * (1 + (xx ** 2 + yy ** 2) / a ** 2) ** -beta
     direct = np.trapezoid(np.trapezoid(prof, x, axis=1), y)
     assert float(slit.slit_fraction(0.8, 2.4, 1.0, "moffat")) == pytest.approx(direct, rel=1e-3)
+
+
+def test_bilinear_equals_scipy_regular_grid_interpolator():
+    # Reference library: scipy.interpolate.RegularGridInterpolator (method "linear") on an uneven grid,
+    # at random points and at the grid nodes and edges
+    from scipy.interpolate import RegularGridInterpolator
+
+    rng = np.random.default_rng(5)
+    xg, yg = np.sort(rng.uniform(-3, 2, 17)), np.sort(rng.uniform(0, 4, 23))
+    table = rng.normal(size=(17, 23))
+    x = np.concatenate([rng.uniform(xg[0], xg[-1], 500), xg, [xg[0], xg[-1]]])
+    y = np.concatenate([rng.uniform(yg[0], yg[-1], 500), yg[:17], [yg[-1], yg[0]]])
+    ref = RegularGridInterpolator((xg, yg), table)(np.stack([x, y], axis=-1))
+    np.testing.assert_allclose(slit.bilinear(xg, yg, table, x, y), ref, rtol=1e-12, atol=1e-13)
