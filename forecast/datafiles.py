@@ -124,6 +124,24 @@ def read_toml(path) -> dict:
     return doc
 
 
+
+def read_ecsv(path, expected: str, columns=()):
+    """An astropy Table from an ECSV file of at most :data:`MAX_TABLE_BYTES` with the named ``columns``;
+    every failure becomes a DataFileError naming the file (and the missing column)."""
+    from astropy.table import Table
+
+    path = Path(path)
+    check_input_file(path, expected, MAX_TABLE_BYTES)
+    try:
+        table = Table.read(path, format="ascii.ecsv")
+    except Exception as err:  # astropy raises many kinds; all mean "not a valid ECSV table"
+        first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
+        raise DataFileError(path, "", f"malformed ECSV table ({first[:160]})") from None
+    missing = [c for c in columns if c not in table.colnames]
+    if missing:
+        raise DataFileError(path, f"column {missing[0]}", "required column missing", ", ".join(columns))
+    return table
+
 # C0 and C1 control characters (tab, newline and carriage return allowed) and the bidirectional overrides/isolates
 _UNSAFE_CHARS = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f-\x9f\u202a-\u202e\u2066-\u2069]")
 

@@ -172,16 +172,9 @@ class LineList:
 
 
 def _read_ecsv(path: Path):
-    from astropy.table import Table
+    from kncast.forecast.datafiles import read_ecsv
 
-    from kncast.forecast.datafiles import MAX_TABLE_BYTES, check_input_file
-
-    check_input_file(path, "an ECSV line list", MAX_TABLE_BYTES)  # a regular file of bounded size
-    try:
-        return Table.read(path, format="ascii.ecsv")
-    except Exception as err:  # astropy raises many kinds; all mean "not a valid ECSV table"
-        first = str(err).strip().splitlines()[0] if str(err).strip() else type(err).__name__
-        raise DataFileError(path, "", f"malformed ECSV line list ({first[:160]})") from None
+    return read_ecsv(path, "an ECSV line list")
 
 
 def _column(table, name, kind, path):

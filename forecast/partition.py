@@ -109,18 +109,9 @@ def _load_cached(levels_path: str, gray_path: str) -> PartitionData:
 
 
 def _read_ecsv(path: Path, columns):
-    from astropy.table import Table
+    from kncast.forecast.datafiles import read_ecsv
 
-    if not path.is_file():
-        raise DataFileError(path, "", "file not found")
-    try:
-        t = Table.read(path, format="ascii.ecsv")
-    except Exception as err:  # noqa: BLE001 - any parse failure is a bad data file
-        raise DataFileError(path, "", f"not a readable ECSV table ({type(err).__name__})") from None
-    missing = [c for c in columns if c not in t.colnames]
-    if missing:
-        raise DataFileError(path, f"column {missing[0]}", "required column missing", ", ".join(columns))
-    return t
+    return read_ecsv(path, "an ECSV partition-function table", columns)
 
 
 def _stage(path, where, row) -> tuple[str, int]:

@@ -159,18 +159,9 @@ def _piecewise(x, cum, slope, q):
 
 def _read_bands(path: Path):
     """Read the ECSV band table and validate every row."""
-    from astropy.io import ascii as _ascii  # noqa: F401  (registers the ECSV reader)
-    from astropy.table import Table
+    from kncast.forecast.datafiles import read_ecsv
 
-    if not path.is_file():
-        raise DataFileError(path, "", "file not found")
-    try:
-        t = Table.read(path, format="ascii.ecsv")
-    except Exception as err:  # noqa: BLE001 - any parse failure is a bad data file
-        raise DataFileError(path, "", f"not a readable ECSV table ({type(err).__name__}: {err})".split("\n")[0]) from None
-    missing = [c for c in _COLUMNS if c not in t.colnames]
-    if missing:
-        raise DataFileError(path, f"column {missing[0]}", "required column missing", ", ".join(_COLUMNS))
+    t = read_ecsv(path, "an ECSV telluric band table", _COLUMNS)
     if len(t) == 0:
         raise DataFileError(path, "", "no bands", "at least one row")
     seen = set()
