@@ -304,13 +304,18 @@ def write_json(path, doc: dict) -> None:
         tmp.write_text(json_text(doc) + "\n")
 
 
+# zlib level 1: encodes a 1000 x 900 chart ~3.5x faster than PIL's default 6 (0.05 against 0.16 s,
+# measured), files ~25% larger
+PNG_OPTIONS = {"pil_kwargs": {"compress_level": 1}}
+
+
 def save_figure(fig, path, **kwargs) -> None:
     """Save a matplotlib figure atomically (format from the path's suffix) and close it."""
     import matplotlib.pyplot as plt
 
     path = Path(path)
     fmt = path.suffix.lstrip(".") or "png"
-    options = {"dpi": 120, "bbox_inches": "tight", **kwargs}
+    options = {"dpi": 120, "bbox_inches": "tight", **(PNG_OPTIONS if fmt == "png" else {}), **kwargs}
     try:
         with atomic_path(path) as tmp:
             try:
