@@ -38,7 +38,7 @@ FIGURE_SETS = ("chosen", "all")  # S/N spectra of the most often chosen setups o
 # Seconds to draw and save each kind of figure (measured on the 2-core machine, demo plan; a spectral
 # figure with one panel, each further panel adds half): they decide whether the worker processes pay
 # for themselves and which figure starts first.
-FIGURE_COST_S = {"campaign": 0.17, "lightcurve": 0.19, "spectrum": 0.27, "snr": 0.10, "snr-campaign": 0.9}
+FIGURE_COST_S = {"campaign": 0.17, "lightcurve": 0.19, "spectrum": 0.27, "snr": 0.10, "snr-campaign": 0.12}
 POOL_OVERHEAD_S = 0.05  # forking two workers, handing out the jobs, collecting the results (measured: 0.02-0.04)
 
 
@@ -270,83 +270,34 @@ def _file_part(text: str) -> str:
 
 
 def snr_campaign(plan, folder, _arg):
-    return {"title": "S/N across the campaign", "path": _save(snr_campaign_figure(plan), folder, "snr-campaign"),
+    from kncast.planner.figures.significance import significance_figure
+
+    setups, nights, sig, chosen = significance_matrix(plan)
+    fig = significance_figure(setups, nights, sig, chosen, plan.settings["sigma"])
+    return {"title": "S/N across the campaign", "path": _save(fig, folder, "snr-campaign"),
             "caption": "Detection significance of each setup's best-measured diagnostic trough in each night's "
-                       "usable time, against days since t0; the dashed line is the target significance."}
+                       "usable time: one row per setup, one column per night, colour on a log scale; framed: at "
+                       "or above the target significance; dot: the setup chosen that night; grey: no measured "
+                       "trough."}
 
 
 FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": spectral_figure,
            "snr": snr_spectrum, "snr-campaign": snr_campaign}
 
 
-SNR_PANEL_COLUMNS = 3  # small multiples: panels per row of the S/N-across-the-campaign chart
-
-
-def _significance_series(plan) -> dict:
-    """{setup id: (days since t0, significance (floored at 0.01), chosen that night)} in phase order."""
-    series = {}
-    for p in plan.nights:
-        for o in p.outcomes:
-            if o.significance is not None:
-                series.setdefault(o.setup, []).append((p.phase_d, max(o.significance, 1e-2), o is p.choice))
-    return {sid: tuple(np.array(v) for v in zip(*sorted(pts))) for sid, pts in sorted(series.items())}
-
-
-def snr_campaign_figure(plan):
-    """Significance of the best-measured diagnostic trough in the usable window vs epoch: small multiples,
-    one panel per setup (named in its title), every other setup drawn faintly behind for comparison.
-
-    Readable with any number of setups (no legend, no colour per setup); one line collection per panel,
-    fixed layout, plain-number log ticks (no mathtext), so the figure draws once when saved.
-    """
-    import matplotlib.pyplot as plt
-    from matplotlib.collections import LineCollection
-    from matplotlib.ticker import FixedLocator, FuncFormatter, MaxNLocator, NullLocator
-
-    from kncast.planner.figures.palette import SERIES, TARGET_COLOR
-    from kncast.planner.figures.text import plain
-
-    series = _significance_series(plan)
-    n = max(len(series), 1)
-    ncol = min(SNR_PANEL_COLUMNS, n)
-    nrow = -(-n // ncol)
-    height = 1.3 + 1.75 * nrow
-    fig, axes = plt.subplots(nrow, ncol, figsize=(11, height), sharex=True, sharey=True, squeeze=False)
-    fig.subplots_adjust(left=0.08, right=0.985, bottom=0.75 / height, top=1 - 0.75 / height, hspace=0.45, wspace=0.08)
-    target = plan.settings["sigma"]
-    curves = [np.column_stack(v[:2]) for v in series.values()]
-    for k, ax in enumerate(axes.ravel()):
-        if k >= len(series):
-            ax.set_visible(False)
-            continue
-        sid, (x, y, chosen) = list(series.items())[k]
-        others = [c for j, c in enumerate(curves) if j != k]
-        if others:
-            ax.add_collection(LineCollection(others, colors="0.8", linewidths=0.8, zorder=1))
-        ax.plot(x, y, color=SERIES[0], lw=1.6, marker="o", ms=3, zorder=3)
-        chosen = chosen.astype(bool)
-        if chosen.any():
-            ax.plot(x[chosen], y[chosen], "o", ms=7, color=SERIES[1], mec="black", mew=0.6, zorder=4)
-        ax.axhline(target, color=TARGET_COLOR, ls="--", lw=0.9, zorder=2)
-        ax.set_title(plain(sid), fontsize=9, loc="left", pad=3, y=1.0)  # a set position: no overlap search
-        ax.tick_params(labelsize=9, labelbottom=k + ncol >= len(series))  # x labels under each column's last
-        ax.grid(alpha=0.3)
-    ax0 = axes[0, 0]
-    ax0.set_yscale("log")
-    ax0.autoscale_view()
-    ax0.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
-    ax0.yaxis.set_minor_locator(NullLocator())
-    ax0.xaxis.set_minor_locator(NullLocator())
-    ax0.xaxis.set_major_locator(MaxNLocator(4))  # few ticks: each panel draws fast
-    values = np.concatenate([v[1] for v in series.values()] + [np.array([target])])
-    ax0.yaxis.set_major_locator(FixedLocator(10.0 ** np.arange(np.floor(np.log10(values.min())),
-                                                               np.ceil(np.log10(values.max())) + 1)))
-    fig.text(0.5, 0.2 / height, "days since t0", ha="center", fontsize=10)
-    fig.text(0.012, 0.5, "significance of the best trough (sigma)", rotation=90, va="center", fontsize=10)
-    fig.text(0.01, 1 - 0.3 / height, f"Detection significance per setup in the usable time. Blue: this setup; "
-             f"orange: nights it is chosen; grey: the other setups; dashed: target {target:g} sigma",
-             fontsize=10, va="center")
-    return fig
+def significance_matrix(plan):
+    """(setup ids, night dates, significance (setups x nights, NaN where none is measured), chosen (bool))
+    of every setup with a measured trough on some night."""
+    measured = [(p, o) for p in plan.nights for o in p.outcomes if o.significance is not None]
+    setups = sorted({o.setup for _, o in measured})
+    nights = sorted({p.record.night for p in plan.nights})
+    row, col = {s: k for k, s in enumerate(setups)}, {d: k for k, d in enumerate(nights)}
+    sig = np.full((len(setups), len(nights)), np.nan)
+    chosen = np.zeros(sig.shape, dtype=bool)
+    for p, o in measured:
+        sig[row[o.setup], col[p.record.night]] = o.significance
+        chosen[row[o.setup], col[p.record.night]] = o is p.choice
+    return setups, nights, sig, chosen
 
 
 # ---------------------------------------------------------------------------- document

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import json
 
+import numpy as np
 import pytest
 
 from kncast.planner.plan import folder
@@ -81,3 +82,19 @@ def test_plan_command_draws_every_setup_with_figures_all(tmp_path, run_cli, demo
     assert all((out / f).stat().st_size > 0 for f in snr)
     status, _, err = run_cli("plan", "--event", demo_event_path, "--figures", "every", "--out", tmp_path / "x")
     assert status == 2 and "--figures" in err and not (tmp_path / "x").exists()
+
+
+def test_significance_grid_holds_each_nights_outcomes(demo_plan):
+    # the campaign significance chart: every measured (setup, night) in its cell, the chosen one marked,
+    # nothing else filled
+    setups, nights, sig, chosen = folder.significance_matrix(demo_plan)
+    filled = 0
+    for p in demo_plan.nights:
+        for o in p.outcomes:
+            if o.significance is None:
+                continue
+            r, c = setups.index(o.setup), nights.index(p.record.night)
+            assert sig[r, c] == o.significance and chosen[r, c] == (o is p.choice)
+            filled += 1
+    assert filled == int(np.isfinite(sig).sum()) > 0
+    assert chosen.sum() == sum(p.choice is not None and p.choice.significance is not None for p in demo_plan.nights)
