@@ -206,12 +206,33 @@ def iso_utc(t) -> str | None:
     t = t if isinstance(t, Time) else Time(t)
     u = t.utc
     if u.isscalar and not u.masked:
-        import erfa
-
-        y, mo, d, hmsf = erfa.d2dtf("UTC", 3, u.jd1, u.jd2)
-        if 1000 <= y <= 9999:
-            return f"{int(y):04d}-{int(mo):02d}-{int(d):02d}T{int(hmsf['h']):02d}:{int(hmsf['m']):02d}:{int(hmsf['s']):02d}Z"
+        text = _iso_jd(u.jd1, u.jd2)
+        if text is not None:
+            return text
     return u.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def iso_utc_mjd(mjd: float) -> str | None:
+    """:func:`iso_utc` of ``Time(mjd, format="mjd", scale="utc")`` without building the Time (the same
+    two-part Julian date, split as astropy's MJD format does); None for None or NaN."""
+    if mjd is None or not math.isfinite(mjd):
+        return None
+    import erfa
+    from astropy.time.utils import day_frac
+
+    jd1, jd2 = day_frac(float(mjd), 0.0)
+    text = _iso_jd(*day_frac(jd1 + erfa.DJM0, jd2))
+    return text if text is not None else iso_utc(Time(mjd, format="mjd", scale="utc"))
+
+
+def _iso_jd(jd1: float, jd2: float) -> str | None:
+    """``YYYY-MM-DDTHH:MM:SSZ`` of a UTC two-part Julian date (seconds truncated), None outside years 1000-9999."""
+    import erfa
+
+    y, mo, d, hmsf = erfa.d2dtf("UTC", 3, jd1, jd2)
+    if not 1000 <= y <= 9999:
+        return None
+    return f"{int(y):04d}-{int(mo):02d}-{int(d):02d}T{int(hmsf['h']):02d}:{int(hmsf['m']):02d}:{int(hmsf['s']):02d}Z"
 
 
 def to_jsonable(obj):

@@ -25,7 +25,7 @@ class RankedCandidate:
     index: int  # position in event.targets()
     hours: float
     best_airmass: float | None
-    best_time: Time | None
+    best_mjd: float | None  # UTC; ``best_time`` is its astropy Time
     moon_sep_deg: float | None  # at best_time
     windows: list = field(default_factory=list)  # kncast.planner.visibility.core.Window
     note: str = ""
@@ -34,13 +34,18 @@ class RankedCandidate:
     def observable(self) -> bool:
         return self.hours > 0
 
+    @property
+    def best_time(self) -> Time | None:
+        """The time of the best airmass (that of the best window's ``best_time``), or None."""
+        return None if self.best_mjd is None else Time(self.best_mjd, format="mjd", scale="utc")
+
     def summary(self) -> dict:
-        from kncast.planner.output import iso_utc
+        from kncast.planner.output import iso_utc_mjd
 
         return {"rank": self.rank, "id": self.candidate.id, "ra_deg": self.candidate.ra_deg,
                 "dec_deg": self.candidate.dec_deg, "hours": round(self.hours, 4),
                 "best_airmass": None if self.best_airmass is None else round(self.best_airmass, 4),
-                "best_utc": iso_utc(self.best_time),
+                "best_utc": iso_utc_mjd(self.best_mjd),
                 "moon_sep_deg": None if self.moon_sep_deg is None else round(self.moon_sep_deg, 3),
                 "windows": len(self.windows), "note": self.note}
 
@@ -73,16 +78,14 @@ def rank_candidates(event, sites, nights: int = 3, **visibility_options) -> list
     ``visibility_options`` go to :func:`kncast.planner.visibility.core.compute_visibility`
     (``twilight``, ``min_altitude_deg``, ``max_airmass``, ``min_moon_sep_deg``).
     """
-    from kncast.planner.visibility.core import compute_visibility
+    from kncast.planner.visibility.core import compute_visibility_many
 
     visibility_options.pop("target_index", None)
     ephemeris = visibility_options.pop("ephemeris", None)  # e.g. the plan's own, built for every target
     targets = event.targets()
-    first = compute_visibility(event, sites, nights=nights, target_index=0, ephemeris=ephemeris, **visibility_options)
-    per_target = [first.nights] + [  # one vectorized run per candidate, one ephemeris build (all targets)
-        compute_visibility(event, sites, nights=nights, target_index=i, ephemeris=first.ephemeris,
-                           **visibility_options).nights
-        for i in range(1, len(targets))]
+    # every candidate in one vectorized pass (targets x sites x times), one ephemeris (all targets)
+    per_target = [r.nights for r in compute_visibility_many(event, sites, nights=nights, ephemeris=ephemeris,
+                                                            **visibility_options)]
     out = []
     for k, base in enumerate(per_target[0]):  # the same site/night order for every target
         entries = [_entry(targets[i], i, per_target[i][k]) for i in range(len(targets))]
@@ -99,7 +102,7 @@ def _entry(candidate, index: int, record) -> RankedCandidate:
         return RankedCandidate(0, candidate, index, 0.0, None, None, None, [], record.note)
     best = min(wins, key=lambda w: w.best_airmass)
     return RankedCandidate(0, candidate, index, float(sum(w.hours for w in wins)), float(best.best_airmass),
-                           best.best_time, float(best.moon_sep_deg), wins, record.note)
+                           best.best_mjd, float(best.moon_sep_deg), wins, record.note)
 
 
 def _order(e: RankedCandidate):

@@ -89,9 +89,19 @@ class Ephemeris:
         """Geocentric Moon vector in km, shape (3, *mjd.shape)."""
         return self._interp(self.moon_xyz_km, mjd)
 
-    def target(self, mjd, index: int = 0) -> np.ndarray:
-        """Target unit vectors, shape (3, *mjd.shape)."""
-        return _unit(self._interp(self.target_xyz[index], mjd))
+    def target(self, mjd, index=0) -> np.ndarray:
+        """Target unit vectors, shape (3, *mjd.shape); ``index`` one target, or an integer array of
+        target indices broadcasting against ``mjd`` (one target per element: many targets in one call)."""
+        if np.ndim(index) == 0:
+            return _unit(self._interp(self.target_xyz[index], mjd))
+        mjd = np.asarray(mjd, dtype=float)
+        index = np.broadcast_to(index, np.broadcast_shapes(np.shape(index), mjd.shape))
+        mjd = np.broadcast_to(mjd, index.shape)
+        idx = np.clip(np.searchsorted(self.mjd, mjd) - 1, 0, self.mjd.size - 2)
+        w = (mjd - self.mjd[idx]) / (self.mjd[idx + 1] - self.mjd[idx])
+        # the same arithmetic as _interp, element by element: (*shape, 3), component axis then moved first
+        v = self.target_xyz[index, :, idx] * (1 - w)[..., None] + self.target_xyz[index, :, idx + 1] * w[..., None]
+        return _unit(np.moveaxis(v, -1, 0))
 
 
 def _unit(v: np.ndarray) -> np.ndarray:
@@ -152,8 +162,9 @@ def sun_altitude_deg(eph: Ephemeris, sites: SiteArrays, mjd) -> np.ndarray:
     return altaz_deg(sites.lat_deg, eph.gast(mjd) + sites.lon_deg, ra, dec)[0]
 
 
-def target_altaz_deg(eph: Ephemeris, sites: SiteArrays, mjd, index: int = 0):
-    """Target (altitude, azimuth) in degrees for sites x times."""
+def target_altaz_deg(eph: Ephemeris, sites: SiteArrays, mjd, index=0):
+    """Target (altitude, azimuth) in degrees for sites x times; ``index`` one target or an index array
+    broadcasting against the grid (see :meth:`Ephemeris.target`)."""
     mjd = _on_grid(sites, mjd)
     ra, dec = radec_deg(eph.target(mjd, index))
     return altaz_deg(sites.lat_deg, eph.gast(mjd) + sites.lon_deg, ra, dec)

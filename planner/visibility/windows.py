@@ -45,31 +45,68 @@ class Rules:
 
 
 class Sky:
-    """Sky quantities for (site, time) pairs from one Ephemeris.
+    """Sky quantities for (target, site, time) triples from one Ephemeris.
 
-    ``rows`` index into the site list; ``mjd`` has the same shape (or
-    broadcasts: rows (n_sites, 1) against a time grid (n_grid,)).
+    A *row* is one (target, site) pair: row ``k * n_sites + i`` is target ``targets[k]`` (an index
+    into the Ephemeris targets; default ``[target_index]``) seen from site ``i``, so with one
+    target the rows are the sites.  ``rows`` index these pairs; ``mjd`` has the same shape (or
+    broadcasts: rows (n_rows, 1) against a time grid (n_grid,)).
     """
 
-    def __init__(self, eph: sky.Ephemeris, sites, target_index: int = 0):
-        self.eph, self.sites, self.target_index = eph, list(sites), target_index
+    def __init__(self, eph: sky.Ephemeris, sites, target_index: int = 0, targets=None):
+        self.eph, self.sites = eph, list(sites)
+        self.targets = np.atleast_1d(np.asarray(targets if targets is not None else [target_index], dtype=int))
+        self.target_index = int(self.targets[0])
         self.site_arrays = sky.SiteArrays.of(self.sites)
+        n_sites = len(self.sites)
+        self.site_of = np.tile(np.arange(n_sites), self.targets.size)  # row -> site index
+        self.target_of = np.repeat(self.targets, n_sites)  # row -> Ephemeris target index
+
+    @property
+    def n_rows(self) -> int:
+        return self.site_of.size
 
     def _sites_at(self, rows) -> sky.SiteArrays:
-        a = self.site_arrays
-        return sky.SiteArrays(a.lat_deg[rows, 0], a.lon_deg[rows, 0], a.elevation_m[rows, 0])
+        a, i = self.site_arrays, self.site_of[rows]
+        return sky.SiteArrays(a.lat_deg[i, 0], a.lon_deg[i, 0], a.elevation_m[i, 0])
+
+    def _targets_at(self, rows):
+        """Ephemeris target index per row: one int when every row has the same target."""
+        return self.target_index if self.targets.size == 1 else self.target_of[rows]
 
     def sun_altitude_deg(self, mjd, rows):
         return sky.sun_altitude_deg(self.eph, self._sites_at(rows), mjd)
 
     def target_altaz_deg(self, mjd, rows):
-        return sky.target_altaz_deg(self.eph, self._sites_at(rows), mjd, self.target_index)
+        return sky.target_altaz_deg(self.eph, self._sites_at(rows), mjd, self._targets_at(rows))
 
     def moon(self, mjd, rows):
         """(Moon-target separation deg, Moon altitude deg) at the given pairs."""
         unit, alt = sky.moon_topocentric(self.eph, self._sites_at(rows), mjd)
         mjd_b = np.broadcast_to(mjd, alt.shape)
-        return sky.separation_deg(unit, self.eph.target(mjd_b, self.target_index)), alt
+        index = self._targets_at(rows)
+        if np.ndim(index):
+            index = np.broadcast_to(index, alt.shape)
+        return sky.separation_deg(unit, self.eph.target(mjd_b, index)), alt
+
+    # --- every row on one time grid: targets x sites x times by broadcasting ------------------
+    def _grid_targets(self, grid) -> np.ndarray:
+        """Target unit vectors (3, n_targets, 1, n_grid): each target's direction once per time."""
+        grid = np.asarray(grid, dtype=float)
+        return self.eph.target(grid[None, :], self.targets[:, None])[:, :, None, :]
+
+    def grid_altaz_deg(self, grid):
+        """Target (altitude, azimuth) deg of every row at every ``grid`` time, each (n_rows, n_grid)."""
+        a = self.site_arrays
+        ra, dec = sky.radec_deg(self._grid_targets(grid))  # (n_targets, 1, n_grid)
+        lst = self.eph.gast(grid) + a.lon_deg  # (n_sites, n_grid)
+        return tuple(x.reshape(self.n_rows, -1) for x in sky.altaz_deg(a.lat_deg, lst, ra, dec))
+
+    def grid_moon_sep_deg(self, grid) -> np.ndarray:
+        """Moon-target separation (deg) of every row at every ``grid`` time, (n_rows, n_grid): the
+        topocentric Moon once per site and time."""
+        unit, _ = sky.moon_topocentric(self.eph, self.site_arrays, grid)  # (3, n_sites, n_grid)
+        return sky.separation_deg(unit[:, None], self._grid_targets(grid)).reshape(self.n_rows, -1)
 
 
 def altitude_floor_deg(rules: Rules, rows, azimuth_deg) -> np.ndarray:
@@ -85,16 +122,30 @@ def altitude_floor_deg(rules: Rules, rows, azimuth_deg) -> np.ndarray:
 
 
 def margins(skyq: Sky, rules: Rules, mjd, rows) -> dict[str, np.ndarray]:
-    """Every rule's margin (deg, positive = rule holds) at the given (site, time) pairs."""
+    """Every rule's margin (deg, positive = rule holds) at the given (row, time) pairs."""
     alt, az = skyq.target_altaz_deg(mjd, rows)
+    sep = skyq.moon(mjd, rows)[0] if rules.min_moon_sep_deg is not None else None
+    return _margins(rules, skyq.site_of[np.asarray(rows)], mjd, alt, az,
+                    rules.twilight_deg - skyq.sun_altitude_deg(mjd, rows), sep)
+
+
+def grid_margins(skyq: Sky, rules: Rules, grid, sun) -> dict[str, np.ndarray]:
+    """:func:`margins` of every row at every ``grid`` time, (n_rows, n_grid), by broadcasting
+    targets x sites x times; ``sun`` (n_sites, n_grid) is the twilight margin of the sites there."""
+    alt, az = skyq.grid_altaz_deg(grid)
+    sep = skyq.grid_moon_sep_deg(grid) if rules.min_moon_sep_deg is not None else None
+    return _margins(rules, skyq.site_of[:, None], grid, alt, az, np.tile(sun, (skyq.targets.size, 1)), sep)
+
+
+def _margins(rules: Rules, site_rows, mjd, alt, az, sun, moon_sep) -> dict[str, np.ndarray]:
     out = {
-        "sun": rules.twilight_deg - skyq.sun_altitude_deg(mjd, rows),
-        "site_limit": alt - rules.min_altitude_deg[np.asarray(rows)],
-        "altitude": alt - altitude_floor_deg(rules, rows, az),
+        "sun": sun,
+        "site_limit": alt - rules.min_altitude_deg[site_rows],
+        "altitude": alt - altitude_floor_deg(rules, site_rows, az),
         "t0": np.broadcast_to((np.asarray(mjd) - rules.t0_mjd) * T0_MARGIN_DEG_PER_DAY, alt.shape),
     }
-    if rules.min_moon_sep_deg is not None:
-        out["moon"] = skyq.moon(mjd, rows)[0] - rules.min_moon_sep_deg
+    if moon_sep is not None:
+        out["moon"] = moon_sep - rules.min_moon_sep_deg
     return out
 
 
@@ -121,14 +172,16 @@ def split_at_bounds(rows, start, end, bounds):
     return rows[r], n, s[r, n], e[r, n]
 
 
-def night_notes(m: dict[str, np.ndarray], night_of, rules: Rules, twilight: str, n_nights: int):
+def night_notes(m: dict[str, np.ndarray], night_of, rules: Rules, twilight: str, n_nights: int, site_of=None):
     """Why each night holds no window, from margins sampled on a grid.
 
-    ``m`` holds margins of shape (n_sites, n_grid); ``night_of`` (n_sites, n_grid)
-    the night index of every sample (-1 outside all nights).  Returns a
-    (n_sites, n_nights) array of reasons (checked in order, first one wins).
+    ``m`` holds margins of shape (n_rows, n_grid); ``night_of`` (n_rows, n_grid)
+    the night index of every sample (-1 outside all nights); ``site_of`` the site index of each
+    row (:attr:`Sky.site_of`; default: the rows are the sites).  Returns a
+    (n_rows, n_nights) array of reasons (checked in order, first one wins).
     """
-    n_sites = night_of.shape[0]
+    n_sites = night_of.shape[0]  # rows
+    site = np.arange(n_sites) if site_of is None else np.asarray(site_of)
     label = np.where(night_of >= 0, np.arange(n_sites)[:, None] * n_nights + night_of, n_sites * n_nights)
     size = n_sites * n_nights + 1
 
@@ -145,9 +198,9 @@ def night_notes(m: dict[str, np.ndarray], night_of, rules: Rules, twilight: str,
     checks = [
         (~anywhere(dark), lambda i: f"no {twilight} darkness (Sun stays above {rules.twilight_deg:g} deg)"),
         (~anywhere(dark & after), lambda i: "whole night before t0"),
-        (~anywhere(up_limit), lambda i: f"target never rises above {limit[i]:g} deg"),
+        (~anywhere(up_limit), lambda i: f"target never rises above {limit[site[i]]:g} deg"),
         (~anywhere(up_limit & dark), lambda i: "target only up in daylight or twilight"),
-        (~anywhere(up & dark), lambda i: _floor_reason(rules, i)),
+        (~anywhere(up & dark), lambda i: _floor_reason(rules, site[i])),
         (~anywhere(up & dark & after), lambda i: "target up in darkness only before t0"),
         (~anywhere(up & dark & after & moon_ok),
          lambda i: f"Moon closer than {rules.min_moon_sep_deg:g} deg whenever the target is up in darkness"),
