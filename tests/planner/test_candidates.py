@@ -97,3 +97,67 @@ def test_visibility_command_candidates_table_and_json(tmp_path, run_cli):
     status, out, err = run_cli("visibility", "--event", DEMO / "kn-demo-candidates.toml", "--sites", "paranal",
                                "--nights", "1", "--json", out_json)
     assert status == 0 and "candidates" not in json.loads(out_json.read_text())
+
+
+def _same_records(many, one):
+    """Every night and window of two VisibilityResults equal: notes exactly, times and values to 1e-6."""
+    assert len(many.nights) == len(one.nights)
+    for a, b in zip(many.nights, one.nights):
+        assert (a.site.id, a.night, a.note) == (b.site.id, b.night, b.note)
+        for x, y in ((a.dusk_mjd, b.dusk_mjd), (a.dawn_mjd, b.dawn_mjd), (a.dark_hours, b.dark_hours)):
+            assert x == pytest.approx(y, abs=1e-6, nan_ok=True)
+        assert len(a.windows) == len(b.windows)
+        for wa, wb in zip(a.windows, b.windows):
+            for name in ("start_mjd", "end_mjd", "hours", "best_airmass", "best_mjd", "best_altitude_deg",
+                         "moon_illumination", "moon_phase_angle_deg", "moon_sep_deg", "moon_altitude_deg",
+                         "phase_start_d", "phase_end_d"):
+                assert getattr(wa, name) == pytest.approx(getattr(wb, name), abs=1e-6), name
+            assert wa.summary() == wb.summary()
+
+
+@pytest.mark.parametrize("chunk", [None, 1])
+def test_many_targets_in_one_pass_equal_one_at_a_time(registry, monkeypatch, chunk):
+    # Internal consistency (no outside source: the same rules evaluated two ways): all targets of an
+    # event in one pass, (target, site) rows x times, equal one compute_visibility call per target;
+    # a horizon profile (la-palma), the Moon and airmass rules and several nights included, and
+    # with ``chunk`` = 1 every target in its own group of the many-target pass.
+    from kncast.planner.visibility import core
+
+    if chunk is not None:
+        monkeypatch.setattr(core, "MAX_CHUNK_SAMPLES", chunk)
+    event = event_with(("a", 150.3, -31.1), ("b", 151.4, -22.8), ("c", 157.85, -12.4), ("d", 142.8, -38.3),
+                       ("e", 200.0, 60.0), ("f", 10.0, 5.0))
+    sites = registry.select(["paranal", "la-palma", "sutherland", "mount-john"])
+    rules = {"nights": 3, "min_moon_sep_deg": 25.0, "max_airmass": 2.5}
+    many = core.compute_visibility_many(event, sites, **rules)
+    assert [r.target_index for r in many] == list(range(6))
+    for k, result in enumerate(many):
+        one = core.compute_visibility(event, sites, target_index=k, ephemeris=many[0].ephemeris, **rules)
+        _same_records(result, one)
+    assert sum(len(n.windows) for r in many for n in r.nights) > 10  # the comparison covers real windows
+    sub = core.compute_visibility_many(event, sites, targets=[4, 1], ephemeris=many[0].ephemeris, **rules)
+    assert [r.target_index for r in sub] == [4, 1]
+    _same_records(sub[0], many[4])
+    _same_records(sub[1], many[1])
+
+
+def test_window_times_are_astropy_times_of_the_mjds(registry):
+    event = load_event(DEMO / "kn-demo-candidates.toml")
+    night = next(n for n in compute_visibility(event, registry.select(["paranal"]), nights=2).nights if n.windows)
+    w = night.windows[0]
+    for t, mjd in ((w.start, w.start_mjd), (w.end, w.end_mjd), (w.best_time, w.best_mjd),
+                   (night.dusk, night.dusk_mjd), (night.dawn, night.dawn_mjd)):
+        assert t.scale == "utc" and t.mjd == mjd
+    ranked = rank_candidates(event, registry.select(["paranal"]), nights=2)[1].ranking[0]
+    assert ranked.best_time.mjd == ranked.best_mjd
+
+
+def test_many_targets_bad_indices(registry):
+    from kncast.planner.errors import ParameterError
+    from kncast.planner.visibility.core import compute_visibility_many
+
+    event = load_event(DEMO / "kn-demo-candidates.toml")
+    with pytest.raises(ParameterError, match="targets"):
+        compute_visibility_many(event, registry.select(["paranal"]), targets=[4])
+    with pytest.raises(ParameterError, match="targets"):
+        compute_visibility_many(event, registry.select(["paranal"]), targets=[])
