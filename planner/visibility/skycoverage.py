@@ -48,6 +48,7 @@ HIER_DEPTH = 4  # coarse-to-fine test: parents 4 orders above the map (256 child
 HIER_MIN_LEVEL = 8  # ... for flat maps from nside 256 (coarser maps: every pixel tested)
 HIER_EPS_RAD = 1e-5  # 2 arcsec: more than float32 rounding of the child-by-child test
 HIER_CHUNK_PIXELS = 1 << 18  # children per block: bounds memory to a few tens of MB
+COVERAGE_THREADS = 2  # blocks of parents in flight at once (numpy releases the GIL)
 
 
 @dataclass
@@ -229,45 +230,76 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     ctx = _Hier(f32(zen), f32(north), f32(east), f32(moon), np.sin(np.radians(floor)).astype(np.float32)[:, None],
                 rules.min_moon_sep_deg, seg_start, seg_end)
     dt_h = cols.dt_h[seg_record]
-    area90_deg2 = np.where(skymap.credible_mask(CREDIBLE_LEVEL), skymap.area_sr * SR_TO_DEG2, 0.0)
+    mask90 = skymap.credible_mask(CREDIBLE_LEVEL)
     kids = 4 ** HIER_DEPTH
-    parents_per_chunk = max(1, HIER_CHUNK_PIXELS // kids)
-    prob_obs, hours, area = np.zeros(seg_start.size), np.zeros(seg_start.size), np.zeros(seg_start.size)
+    n_par = skymap.npix // kids
+    step = max(1, HIER_CHUNK_PIXELS // kids)
+    seg_hz = [hz_site[i] for i in cols.site[seg_start]]
+
+    def chunk(lo):  # one block of parents: (probability, 90 % area, probability x samples) per site/night
+        sl = slice(lo * kids, min(lo + step, n_par) * kids)
+        return _hier_chunk(skymap, sl, mask90, ctx, (zen, north, east, moon), floor_rad, hz_rows, seg_hz,
+                           seg_record, obs)
+
     floor_rad = np.radians(floor)[:, None]
-    for lo in range(0, skymap.npix // kids, parents_per_chunk):
-        sl = slice(lo * kids, min(lo + parents_per_chunk, skymap.npix // kids) * kids)
-        xyz = skymap.xyz[:, sl]
-        centre, radius = _parents(xyz, kids)
-        alt = np.arcsin(np.clip(zen @ centre, -1.0, 1.0))  # (n_samples, n_parents), rad
-        margin = radius[None, :] + HIER_EPS_RAD
-        inside = alt - margin >= floor_rad
-        outside = alt + margin < floor_rad
-        for a, b, hz in hz_rows:  # children pass where alt >= the profile at their azimuth too
-            lo_rad, hi_rad = _profile_bounds(hz, alt[a:b], margin, east[a:b] @ centre, north[a:b] @ centre)
-            inside[a:b] &= alt[a:b] - margin >= hi_rad
-            outside[a:b] |= alt[a:b] + margin < lo_rad
-        if ctx.moon_rule:
-            cos_sep = moon @ centre
-            limit = math.radians(ctx.moon_rule)
-            inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
-            outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
-        in_count = np.add.reduceat(inside.view(np.uint8), seg_start, axis=0, dtype=np.uint16)  # (n_seg, n_parents)
-        weights = np.stack([skymap.prob[sl], area90_deg2[sl]], axis=1)  # (m, 2): probability, 90 % area
-        count = np.repeat(in_count, kids, axis=1) if obs is not None else None  # per pixel only for the flags
-        # parents passed at some sample: all their children seen; the children of the others by the refinement
-        sums = _refine(count, in_count, ~(inside | outside), xyz.astype(np.float32), weights, ctx,
-                       [hz_site[i] for i in cols.site[seg_start]])
-        parent_w = weights.reshape(-1, kids, 2).sum(axis=1)  # (n_parents, 2)
-        seen_parent = (in_count > 0).astype(np.float64) @ parent_w
-        prob_obs += seen_parent[:, 0] + sums[:, 0]
-        area += seen_parent[:, 1] + sums[:, 1]
-        hours += (in_count.astype(np.float64) @ parent_w[:, 0] + sums[:, 2]) * dt_h
-        if obs is not None:
-            obs[sl, seg_record] = (count > 0).T
+    totals = np.zeros((seg_start.size, 3))
+    for part in _map_threads(chunk, range(0, n_par, step)):  # summed in block order: as a sequential loop
+        totals[:, :2] += part[:, :2]
+        totals[:, 2] += part[:, 2] * dt_h
+    prob_obs, area, hours = totals[:, 0], totals[:, 1], totals[:, 2]
     for s, k in enumerate(seg_record):
         records[k].observable_probability = float(min(prob_obs[s], 1.0))
         records[k].weighted_hours = float(hours[s])
         records[k].area90_observable_deg2 = float(area[s])
+
+
+def _map_threads(fn, items):
+    """``fn`` over ``items`` on up to COVERAGE_THREADS threads (numpy releases the GIL), results in order."""
+    import os
+    from concurrent.futures import ThreadPoolExecutor
+
+    items = list(items)
+    workers = min(COVERAGE_THREADS, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else
+                  (os.cpu_count() or 1), len(items))
+    if workers <= 1:
+        return [fn(x) for x in items]
+    with ThreadPoolExecutor(max_workers=workers) as pool:
+        return list(pool.map(fn, items))
+
+
+def _hier_chunk(skymap, sl, mask90, ctx, frames, floor_rad, hz_rows, seg_hz, seg_record, obs) -> np.ndarray:
+    """Coarse-to-fine sums of one block of whole parents ``sl``: (n_seg, 3) probability seen, 90 % area
+    seen, probability x samples; fills ``obs[sl]`` when given."""
+    kids = 4 ** HIER_DEPTH
+    zen, north, east, moon = frames  # float64 (n_samples, 3): the parents' test
+    xyz = skymap.xyz[:, sl]
+    centre, radius = _parents(xyz, kids)
+    alt = np.arcsin(np.clip(dot_rows(zen, centre), -1.0, 1.0))  # (n_samples, n_parents), rad
+    margin = radius[None, :] + HIER_EPS_RAD
+    inside = alt - margin >= floor_rad
+    outside = alt + margin < floor_rad
+    for a, b, hz in hz_rows:  # children pass where alt >= the profile at their azimuth too
+        lo_rad, hi_rad = _profile_bounds(hz, alt[a:b], margin, dot_rows(east[a:b], centre),
+                                         dot_rows(north[a:b], centre))
+        inside[a:b] &= alt[a:b] - margin >= hi_rad
+        outside[a:b] |= alt[a:b] + margin < lo_rad
+    if ctx.moon_rule:
+        cos_sep = dot_rows(moon, centre)
+        limit = math.radians(ctx.moon_rule)
+        inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
+        outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
+    in_count = np.add.reduceat(inside.view(np.uint8), ctx.seg_start, axis=0, dtype=np.uint16)  # (n_seg, n_parents)
+    area90 = np.where(mask90[sl], skymap.area_sr[sl] * SR_TO_DEG2, 0.0)
+    weights = np.stack([skymap.prob[sl], area90], axis=1)  # (m, 2): probability, 90 % area
+    count = np.repeat(in_count, kids, axis=1) if obs is not None else None  # per pixel only for the flags
+    # parents passed at some sample: all their children seen; the children of the others by the refinement
+    sums = _refine(count, in_count, ~(inside | outside), xyz.astype(np.float32), weights, ctx, seg_hz)
+    parent_w = weights.reshape(-1, kids, 2).sum(axis=1)  # (n_parents, 2)
+    seen_parent = np.einsum("sp,pc->sc", (in_count > 0).astype(np.float64), parent_w)
+    if obs is not None:
+        obs[sl, seg_record] = (count > 0).T
+    return np.stack([seen_parent[:, 0] + sums[:, 0], seen_parent[:, 1] + sums[:, 1],
+                     np.einsum("sp,p->s", in_count.astype(np.float64), parent_w[:, 0]) + sums[:, 2]], axis=1)
 
 
 @dataclass(frozen=True)
