@@ -213,26 +213,41 @@ def iso_utc(t) -> str | None:
 
 
 def iso_utc_mjd(mjd: float) -> str | None:
-    """:func:`iso_utc` of ``Time(mjd, format="mjd", scale="utc")`` without building the Time (the same
-    two-part Julian date, split as astropy's MJD format does); None for None or NaN."""
-    if mjd is None or not math.isfinite(mjd):
-        return None
+    """:func:`iso_utc` of ``Time(mjd, format="mjd", scale="utc")`` without building the Time; None for
+    None or NaN."""
+    return iso_utc_mjds([mjd])[0]
+
+
+def iso_utc_mjds(mjds) -> list[str | None]:
+    """:func:`iso_utc_mjd` of many MJDs (UTC) in one vectorized pass: the same two-part Julian dates
+    as astropy's MJD format (``day_frac`` twice), then ``erfa.d2dtf`` on all of them."""
     import erfa
     from astropy.time.utils import day_frac
 
-    jd1, jd2 = day_frac(float(mjd), 0.0)
-    text = _iso_jd(*day_frac(jd1 + erfa.DJM0, jd2))
-    return text if text is not None else iso_utc(Time(mjd, format="mjd", scale="utc"))
+    mjd = np.array([np.nan if m is None else m for m in mjds], dtype=float)
+    ok = np.isfinite(mjd)
+    out: list[str | None] = [None] * mjd.size
+    if not ok.any():
+        return out
+    jd1, jd2 = day_frac(mjd[ok], 0.0)
+    jd1, jd2 = day_frac(jd1 + erfa.DJM0, jd2)
+    for k, text in zip(np.flatnonzero(ok).tolist(), _iso_jds(jd1, jd2)):
+        out[k] = text if text is not None else iso_utc(Time(mjd[k], format="mjd", scale="utc"))
+    return out
 
 
 def _iso_jd(jd1: float, jd2: float) -> str | None:
     """``YYYY-MM-DDTHH:MM:SSZ`` of a UTC two-part Julian date (seconds truncated), None outside years 1000-9999."""
+    return _iso_jds(np.atleast_1d(jd1), np.atleast_1d(jd2))[0]
+
+
+def _iso_jds(jd1: np.ndarray, jd2: np.ndarray) -> list[str | None]:
     import erfa
 
     y, mo, d, hmsf = erfa.d2dtf("UTC", 3, jd1, jd2)
-    if not 1000 <= y <= 9999:
-        return None
-    return f"{int(y):04d}-{int(mo):02d}-{int(d):02d}T{int(hmsf['h']):02d}:{int(hmsf['m']):02d}:{int(hmsf['s']):02d}Z"
+    return [f"{y:04d}-{mo:02d}-{d:02d}T{h:02d}:{m:02d}:{sec:02d}Z" if 1000 <= y <= 9999 else None
+            for y, mo, d, h, m, sec in zip(y.tolist(), mo.tolist(), d.tolist(), hmsf["h"].tolist(),
+                                           hmsf["m"].tolist(), hmsf["s"].tolist())]
 
 
 def to_jsonable(obj):

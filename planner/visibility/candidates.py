@@ -39,13 +39,16 @@ class RankedCandidate:
         """The time of the best airmass (that of the best window's ``best_time``), or None."""
         return None if self.best_mjd is None else Time(self.best_mjd, format="mjd", scale="utc")
 
-    def summary(self) -> dict:
-        from kncast.planner.output import iso_utc_mjd
+    def summary(self, best_utc: str | None = None) -> dict:
+        """JSON dict; ``best_utc``: ``best_time`` already formatted (:func:`kncast.planner.output.iso_utc_mjds`)."""
+        if best_utc is None and self.best_mjd is not None:
+            from kncast.planner.output import iso_utc_mjd
 
+            best_utc = iso_utc_mjd(self.best_mjd)
         return {"rank": self.rank, "id": self.candidate.id, "ra_deg": self.candidate.ra_deg,
                 "dec_deg": self.candidate.dec_deg, "hours": round(self.hours, 4),
                 "best_airmass": None if self.best_airmass is None else round(self.best_airmass, 4),
-                "best_utc": iso_utc_mjd(self.best_mjd),
+                "best_utc": best_utc,
                 "moon_sep_deg": None if self.moon_sep_deg is None else round(self.moon_sep_deg, 3),
                 "windows": len(self.windows), "note": self.note}
 
@@ -66,10 +69,11 @@ class CandidateNight:
         return self.ranking[0] if self.ranking and self.ranking[0].observable else None
 
     def summary(self) -> dict:
-        from kncast.planner.output import iso_utc
+        from kncast.planner.output import iso_utc, iso_utc_mjds
 
+        best = iso_utc_mjds([r.best_mjd for r in self.ranking])  # every candidate's in one pass
         return {"site": self.site.id, "night": self.night.isoformat(), "dusk_utc": iso_utc(self.dusk),
-                "dawn_utc": iso_utc(self.dawn), "candidates": [r.summary() for r in self.ranking]}
+                "dawn_utc": iso_utc(self.dawn), "candidates": [r.summary(b) for r, b in zip(self.ranking, best)]}
 
 
 def rank_candidates(event, sites, nights: int = 3, **visibility_options) -> list[CandidateNight]:

@@ -21,8 +21,8 @@ from kncast.planner.visibility import sky
 from kncast.planner.errors import ParameterError
 from kncast.planner.visibility.nights import dusk_dawn, night_bounds_mjd, twilight_altitude_deg
 from kncast.planner.visibility.rootfind import positive_intervals
-from kncast.planner.visibility.windows import (Rules, Sky, combined_margin, grid_margins, night_notes, split_at_bounds,
-                                              window_margin_fn)
+from kncast.planner.visibility.windows import (Rules, Sky, combined_margin, grid_margins, night_edges, night_notes,
+                                              split_at_bounds, window_margin_fn)
 
 # Published sources cited below (the ``max_airmass`` rule), as data (records in kncast.forecast.references).
 REFERENCES = (KASTEN_YOUNG_1989,)
@@ -222,13 +222,12 @@ def compute_visibility_many(event, sites, nights: int = 3, twilight: str = "naut
     sun_fn = lambda t, r: rules.twilight_deg - sun_sky.sun_altitude_deg(t, r)  # noqa: E731
     dark = dusk_dawn(*positive_intervals(sun_fn, grid, sun, EDGE_TOL_S), bounds)
 
-    night_of = (grid[None, None, :] >= bounds[:, :, None]).sum(axis=1) - 1
-    night_of[night_of >= nights] = -1
+    edges = night_edges(grid, bounds)
     per_chunk = max(1, MAX_CHUNK_SAMPLES // (len(sites) * n_grid))
     out = []
     for c in range(0, len(targets), per_chunk):  # groups of targets, each evaluated in one pass
         skyq = Sky(eph, sites, targets=targets[c:c + per_chunk])
-        records = _target_records(skyq, rules, grid, sun, night_of, bounds, dates, dark, twilight, nights)
+        records = _target_records(skyq, rules, grid, sun, edges, bounds, dates, dark, twilight, nights)
         out += [VisibilityResult(event=event, sites=sites, nights=recs, twilight=twilight, rules=rules,
                                  ephemeris=eph, night_bounds_mjd=bounds, target_index=int(k))
                 for k, recs in zip(skyq.targets, records)]
@@ -257,11 +256,12 @@ def _setup(event, sites, nights, twilight, min_altitude_deg, max_airmass, min_mo
     return sites, nights, rules, dates, bounds
 
 
-def _target_records(skyq: Sky, rules: Rules, grid, sun, night_of, bounds, dates, dark, twilight, nights):
+def _target_records(skyq: Sky, rules: Rules, grid, sun, edges, bounds, dates, dark, twilight, nights):
     """NightRecords of every target of ``skyq`` (a list per target, site by site, night by night).
 
-    ``sun`` and ``night_of`` (n_sites, n_grid) are the twilight margin and night index on ``grid``;
-    ``dark`` is (dusk, dawn, dark hours) per site and night.
+    ``sun`` (n_sites, n_grid) is the twilight margin on ``grid``, ``edges`` (n_sites, nights + 1)
+    the grid index where each night begins (:func:`night_edges`); ``dark`` is (dusk, dawn, dark
+    hours) per site and night.
     """
     n_targets, n_sites = skyq.targets.size, len(skyq.sites)
     m = grid_margins(skyq, rules, grid, sun)
@@ -269,7 +269,7 @@ def _target_records(skyq: Sky, rules: Rules, grid, sun, night_of, bounds, dates,
     w_rows, w_start, w_end, *_ = positive_intervals(window_margin_fn(skyq, rules), grid, combined_margin(m), EDGE_TOL_S)
     w_rows, w_night, w_start, w_end = split_at_bounds(w_rows, w_start, w_end, bounds[skyq.site_of])
     details = _window_details(skyq, skyq.eph, w_rows, w_start, w_end)
-    notes = night_notes(m, np.tile(night_of, (n_targets, 1)), rules, twilight, nights, skyq.site_of)
+    notes = night_notes(m, edges[skyq.site_of], rules, twilight, skyq.site_of)
     records = _records(skyq.sites, skyq.site_of, dates, *dark, notes, rules, w_rows, w_night, w_start, w_end, details)
     per_target = n_sites * nights
     return [records[k * per_target:(k + 1) * per_target] for k in range(n_targets)]

@@ -117,10 +117,10 @@ def radec_deg(xyz: np.ndarray):
 def altaz_deg(lat_deg, lst_deg, ra_deg, dec_deg):
     """Geometric altitude and azimuth (N=0, E=90), degrees; inputs broadcast together."""
     lat, ha, dec = np.radians(lat_deg), np.radians(lst_deg - ra_deg), np.radians(dec_deg)
-    sin_alt = np.sin(lat) * np.sin(dec) + np.cos(lat) * np.cos(dec) * np.cos(ha)
+    sin_lat, cos_lat, sin_dec, cos_dec, cos_ha = np.sin(lat), np.cos(lat), np.sin(dec), np.cos(dec), np.cos(ha)
+    sin_alt = sin_lat * sin_dec + cos_lat * cos_dec * cos_ha
     alt = np.degrees(np.arcsin(np.clip(sin_alt, -1.0, 1.0)))
-    az = np.degrees(np.arctan2(-np.cos(dec) * np.sin(ha),
-                               np.sin(dec) * np.cos(lat) - np.cos(dec) * np.sin(lat) * np.cos(ha))) % 360.0
+    az = np.degrees(np.arctan2(-cos_dec * np.sin(ha), sin_dec * cos_lat - cos_dec * sin_lat * cos_ha)) % 360.0
     return alt, az
 
 

@@ -172,22 +172,23 @@ def split_at_bounds(rows, start, end, bounds):
     return rows[r], n, s[r, n], e[r, n]
 
 
-def night_notes(m: dict[str, np.ndarray], night_of, rules: Rules, twilight: str, n_nights: int, site_of=None):
+def night_notes(m: dict[str, np.ndarray], edges, rules: Rules, twilight: str, site_of=None):
     """Why each night holds no window, from margins sampled on a grid.
 
-    ``m`` holds margins of shape (n_rows, n_grid); ``night_of`` (n_rows, n_grid)
-    the night index of every sample (-1 outside all nights); ``site_of`` the site index of each
-    row (:attr:`Sky.site_of`; default: the rows are the sites).  Returns a
-    (n_rows, n_nights) array of reasons (checked in order, first one wins).
+    ``m`` holds margins of shape (n_rows, n_grid); ``edges`` (n_rows, n_nights + 1) the grid
+    index of the first sample of each night and, last, the index after the last night's final
+    sample (:func:`night_edges`); ``site_of`` the site index of each row (:attr:`Sky.site_of`;
+    default: the rows are the sites).  Returns a (n_rows, n_nights) array of reasons (checked in
+    order, first one wins).
     """
-    n_sites = night_of.shape[0]  # rows
-    site = np.arange(n_sites) if site_of is None else np.asarray(site_of)
-    label = np.where(night_of >= 0, np.arange(n_sites)[:, None] * n_nights + night_of, n_sites * n_nights)
-    size = n_sites * n_nights + 1
+    edges = np.asarray(edges)
+    n_rows, n_nights = edges.shape[0], edges.shape[1] - 1
+    site = np.arange(n_rows) if site_of is None else np.asarray(site_of)
+    counts = np.zeros((n_rows, m["sun"].shape[1] + 1), dtype=np.int32)
 
-    def anywhere(mask):
-        return np.bincount(label.ravel(), weights=mask.ravel().astype(float), minlength=size)[:-1].reshape(
-            n_sites, n_nights) > 0
+    def anywhere(mask):  # a sample of each night where ``mask`` holds: counted by cumulative sums
+        np.cumsum(mask, axis=1, out=counts[:, 1:])
+        return np.diff(np.take_along_axis(counts, edges, axis=1), axis=1) > 0
 
     dark = m["sun"] > 0
     up_limit = m["site_limit"] > 0
@@ -205,14 +206,21 @@ def night_notes(m: dict[str, np.ndarray], night_of, rules: Rules, twilight: str,
         (~anywhere(up & dark & after & moon_ok),
          lambda i: f"Moon closer than {rules.min_moon_sep_deg:g} deg whenever the target is up in darkness"),
     ]
-    notes = np.full((n_sites, n_nights), "no window longer than a few minutes", dtype=object)
-    decided = np.zeros((n_sites, n_nights), dtype=bool)
+    notes = np.full((n_rows, n_nights), "no window longer than a few minutes", dtype=object)
+    decided = np.zeros((n_rows, n_nights), dtype=bool)
     for fails, reason in checks:
         new = fails & ~decided
         for i, j in zip(*np.nonzero(new)):  # one message per failing night
             notes[i, j] = reason(i)
         decided |= new
     return notes
+
+
+def night_edges(grid_mjd, bounds) -> np.ndarray:
+    """Grid index of the first sample at or after each night bound: (n_sites, n_nights + 1) for
+    ``bounds`` (n_sites, n_nights + 1) MJD; night j holds samples edges[j] to edges[j + 1] - 1."""
+    bounds = np.asarray(bounds)
+    return np.searchsorted(grid_mjd, bounds.ravel(), side="left").reshape(bounds.shape)
 
 
 def _floor_reason(rules: Rules, i: int) -> str:
