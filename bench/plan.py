@@ -17,8 +17,8 @@ Each repeat, interleaved so that all see the same machine load:
 Then one instrumented run (a fresh process calling the same CLI ``main``) for the breakdown: time in
 imports (outermost ``import`` statements, wherever they run), the ephemeris
 (``sky.Ephemeris.build``), the rest of the plan (``build_plan``), the exposure and feature
-measurements (``evaluate_setups``), tables (ECSV and plan.json), figures (``write_figures``, its
-worker processes included), the report, and the rest (interpreter start-up, argument parsing,
+measurements (``evaluate_setups``), tables (ECSV and plan.json, written while the figure workers
+draw), figures (starting the workers and then waiting for them: ``FigureRun``), the report, and the rest (interpreter start-up, argument parsing,
 event and site files, the terminal summary).  Each stage is counted without the stages and imports
 nested in it, so the parts add up to the total.  After the run the same process draws every figure
 of the plan once more, one at a time, and prints the seconds of each (goal: each under 0.25 s at
@@ -166,7 +166,8 @@ def instrumented_main(out: str, report: str) -> None:
     core.evaluate_setups = stages.wrap("exposures", core.evaluate_setups)
     for mod, name in ((folder, "write_tables"), (folder, "document"), (output, "write_json")):
         setattr(mod, name, stages.wrap("tables", getattr(mod, name)))
-    folder.write_figures = stages.wrap("figures", folder.write_figures)
+    folder.FigureRun.__init__ = stages.wrap("figures", folder.FigureRun.__init__)
+    folder.FigureRun.finish = stages.wrap("figures", folder.FigureRun.finish)
     plan_report.write_report = stages.wrap("report", plan_report.write_report)
     plans = []
     build_plan = core.build_plan

@@ -210,12 +210,10 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
         out.absolute().parent.mkdir(parents=True, exist_ok=True)
     except OSError as err:
         raise OptionError("--out", str(out), f"a folder that can be created ({err.strerror})") from None
-    with atomic_dir(out) as tmp:
-        say("tables")
+    with atomic_dir(out) as tmp, plan_outputs.start_figures(plan, tmp, figures) as drawing:
+        say("tables and figures")  # the figure workers draw while the tables are written
         files = plan_outputs.write_tables(plan, tmp)
-        say("figures")
-        drawn = plan_outputs.write_figures(plan, tmp, figures)
-        files["figures"] = [f["path"] for f in drawn]
+        files["figures"] = drawing.paths
         files.update(plan="plan.json", report_md="report.md", report_html="report.html")
         files["blocks"] = "blocks.txt"
         previous = previous_plan(out, plan.event.id)
@@ -231,6 +229,8 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
         from kncast.planner.plan.exports import blocks_text
 
         (tmp / "blocks.txt").write_text(blocks_text(doc))
+        say("figures")
+        drawn = drawing.finish()
         say("report")
         from kncast.planner.plan.report import write_report
 

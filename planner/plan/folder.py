@@ -25,11 +25,11 @@ FIGURE_DPI = 90
 
 
 # ---------------------------------------------------------------------------- figures
-def _save(fig, folder: Path, name: str) -> str:
-    """Save ``fig`` as figures/NAME.png at its own fixed layout (no tight bounding box: one draw)."""
+def _save(fig, folder: Path, kind: str, arg=None) -> str:
+    """Save ``fig`` as :func:`figure_path` at its own fixed layout (no tight bounding box: one draw)."""
     from kncast.planner.output import save_figure
 
-    rel = f"figures/{name}.png"
+    rel = figure_path(kind, arg)
     save_figure(fig, folder / rel, dpi=FIGURE_DPI, bbox_inches=None)
     return rel
 
@@ -46,39 +46,91 @@ def write_figures(plan, folder: Path, figures: str = "chosen") -> list[dict]:
     """Campaign chart, light curve, one spectral panel per chosen epoch, S/N curves (PNG under figures/).
 
     ``figures`` (one of FIGURE_SETS): ``"chosen"`` draws S/N spectra for the most often chosen setups
-    (at most MAX_SNR_FIGURES), ``"all"`` for every setup with a measured epoch.  The figures are
-    independent: two forked worker processes draw them where the platform can fork and the estimated
-    time saved (:func:`use_pool`) exceeds the cost of the workers; otherwise they are drawn in turn.
+    (at most MAX_SNR_FIGURES), ``"all"`` for every setup with a measured epoch.  The same as
+    ``start_figures(...).finish()``.
     """
-    import multiprocessing
+    return start_figures(plan, folder, figures).finish()
 
-    import matplotlib
 
-    matplotlib.use("Agg")
-    import matplotlib.pyplot  # noqa: F401  (loaded once, before any fork)
+class FigureRun:
+    """Figures being drawn: by two forked worker processes (started at once, so the caller can write the
+    tables meanwhile) where the platform can fork and the estimated time saved (:func:`use_pool`) exceeds
+    the cost of the workers; otherwise in turn, in this process, when :meth:`finish` is called.
 
-    (folder / "figures").mkdir(exist_ok=True)
-    jobs = figure_jobs(plan, figures)
-    global _JOB_STATE
-    _JOB_STATE = (plan, folder)
-    try:
-        workers = min(2, os.cpu_count() or 1, len(jobs))
-        if use_pool([cost for *_, cost in jobs], workers) and "fork" in multiprocessing.get_all_start_methods():
+    ``paths``: the figure files (relative to the folder) in report order, known before any is drawn.
+    """
+
+    def __init__(self, plan, folder: Path, figures: str = "chosen"):
+        import multiprocessing
+
+        import matplotlib
+
+        matplotlib.use("Agg")
+        import matplotlib.pyplot  # noqa: F401  (loaded once, before any fork)
+
+        (folder / "figures").mkdir(exist_ok=True)
+        self.jobs = figure_jobs(plan, figures)
+        self.paths = [figure_path(kind, arg) for kind, arg, _ in self.jobs]
+        self._state = (plan, folder)
+        self._pool = self._pending = None
+        workers = min(2, os.cpu_count() or 1, len(self.jobs))
+        if use_pool([cost for *_, cost in self.jobs], workers) and "fork" in multiprocessing.get_all_start_methods():
+            global _JOB_STATE
             _line_inputs()  # read the line list once, before the fork
-            heavy_first = sorted(range(len(jobs)), key=lambda k: -jobs[k][2])
-            with multiprocessing.get_context("fork").Pool(workers) as pool:
-                done = pool.map(_run_job, [jobs[k][:2] for k in heavy_first], chunksize=1)
-            results = [None] * len(jobs)
-            for k, r in zip(heavy_first, done):
+            _JOB_STATE = self._state
+            try:
+                self._order = sorted(range(len(self.jobs)), key=lambda k: -self.jobs[k][2])  # heavy first
+                self._pool = multiprocessing.get_context("fork").Pool(workers)
+                self._pending = self._pool.map_async(_run_job, [self.jobs[k][:2] for k in self._order], chunksize=1)
+            finally:
+                _JOB_STATE = None  # the workers hold their copy
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    def close(self) -> None:
+        """Stop the workers (figures not yet drawn are abandoned)."""
+        if self._pool is not None:
+            self._pool.terminate()
+            self._pool.join()
+
+    def finish(self) -> list[dict]:
+        """Wait for (or draw) every figure; their {"title", "path", "caption"} in report order."""
+        global _JOB_STATE
+        if self._pool is not None:
+            try:
+                done = self._pending.get()
+            finally:
+                self.close()
+            results = [None] * len(self.jobs)
+            for k, r in zip(self._order, done):
                 results[k] = r
         else:
-            results = [_run_job(j[:2]) for j in jobs]
-    finally:
-        _JOB_STATE = None
-    failed = [r for r in results if r is not None and "error" in r]
-    if failed:
-        raise FigureError(failed[0]["error"], failed[0]["trace"])
-    return [r for r in results if r is not None]
+            _JOB_STATE = self._state
+            try:
+                results = [_run_job(j[:2]) for j in self.jobs]
+            finally:
+                _JOB_STATE = None
+        failed = [r for r in results if "error" in r]
+        if failed:
+            raise FigureError(failed[0]["error"], failed[0]["trace"])
+        if [r["path"] for r in results] != self.paths:
+            raise FigureError(f"figure files {[r['path'] for r in results]} differ from those announced {self.paths}")
+        return results
+
+
+def start_figures(plan, folder: Path, figures: str = "chosen") -> FigureRun:
+    """Start drawing the figures of ``plan`` into ``folder/figures`` (see :class:`FigureRun`)."""
+    return FigureRun(plan, folder, figures)
+
+
+def figure_path(kind: str, arg) -> str:
+    """The file of one figure job, relative to the plan folder."""
+    name = {"spectrum": lambda: f"spectrum-day{arg:02d}", "snr": lambda: "snr-" + _file_part(arg)}.get(kind, lambda: kind)()
+    return f"figures/{name}.png"
 
 
 def use_pool(costs_s: list[float], workers: int) -> bool:
@@ -203,7 +255,7 @@ def spectral_figure(plan, folder, day):
     words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
                                                               for p in g) for g in groups)
     return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
-            "path": _save(fig, folder, f"spectrum-day{day:02d}"),
+            "path": _save(fig, folder, "spectrum", day),
             "caption": f"Feature map: one row per chosen epoch, top to bottom (epochs within {SAME_EPOCH_D * 24:.1f} h "
                        f"share a row): {words}. Each feature keeps its lane and colour (key at the right); top: the "
                        f"sky transmission at airmass {airmass:.2f}, PWV {pwv:g} mm (hatched columns: correctable "
@@ -257,7 +309,7 @@ def snr_spectrum(plan, folder, setup_id):
     fig = exposure_figure(res, reference_feature=c.feature)
     what = (f"the time for {sigma:g} sigma on the {c.words} trough" if c.time_to_sigma_s else "the usable time")
     return {"title": f"S/N spectrum, {setup_id}",
-            "path": _save(fig, folder, "snr-" + _file_part(setup_id)),
+            "path": _save(fig, folder, "snr", setup_id),
             "caption": f"Continuum S/N per resolution element for {res['nexp']} x {res['time_s'] / res['nexp']:.0f} s "
                        f"({what}) on day {p.phase_d:.2f}, night of {p.record.night.isoformat()} at airmass "
                        f"{forecast_airmass(w):.2f}: {why}."}

@@ -365,11 +365,11 @@ def test_bad_event_file_names_the_file(tmp_path, run_cli):
 def test_a_failure_while_writing_leaves_no_folder(tmp_path, run_cli, monkeypatch):
     import kncast.planner.plan.folder as outputs
 
-    def broken(plan, folder):
+    def broken(plan, folder, figures="chosen"):
         (folder / "figures").mkdir()
         raise RuntimeError("disk full")
 
-    monkeypatch.setattr(outputs, "write_figures", broken)
+    monkeypatch.setattr(outputs, "start_figures", broken)
     status, _, err = run_cli("plan", "--event", SOUTH, "--nights", "1", "--sites", "paranal",
                              "--out", tmp_path / "out")
     assert status == 1 and "internal error" in err

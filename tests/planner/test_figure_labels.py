@@ -7,6 +7,7 @@ Internal ids are the bundled line list's feature ids (``sr2-nir``) and speclite 
 from __future__ import annotations
 
 import re
+from pathlib import Path
 
 import pytest
 
@@ -31,10 +32,11 @@ def drawn(tmp_path_factory):
     out, seen = tmp_path_factory.mktemp("figures"), {}
     save = folder._save
 
-    def record(fig, where, name):
+    def record(fig, where, kind, arg=None):
         from matplotlib.backends.backend_agg import FigureCanvasAgg
 
-        rel = save(fig, where, name)
+        rel = save(fig, where, kind, arg)
+        name = Path(rel).stem
         canvas = FigureCanvasAgg(fig)  # laid out again as saved (saving closes the figure)
         fig.set_dpi(folder.FIGURE_DPI)
         canvas.draw()
