@@ -114,12 +114,15 @@ def radec_deg(xyz: np.ndarray):
     return np.degrees(np.arctan2(y, x)) % 360.0, np.degrees(np.arctan2(z, np.hypot(x, y)))
 
 
-def altaz_deg(lat_deg, lst_deg, ra_deg, dec_deg):
-    """Geometric altitude and azimuth (N=0, E=90), degrees; inputs broadcast together."""
+def altaz_deg(lat_deg, lst_deg, ra_deg, dec_deg, azimuth: bool = True):
+    """Geometric altitude and azimuth (N=0, E=90), degrees; inputs broadcast together.  ``azimuth``
+    False: the altitude alone (and None)."""
     lat, ha, dec = np.radians(lat_deg), np.radians(lst_deg - ra_deg), np.radians(dec_deg)
     sin_lat, cos_lat, sin_dec, cos_dec, cos_ha = np.sin(lat), np.cos(lat), np.sin(dec), np.cos(dec), np.cos(ha)
     sin_alt = sin_lat * sin_dec + cos_lat * cos_dec * cos_ha
     alt = np.degrees(np.arcsin(np.clip(sin_alt, -1.0, 1.0)))
+    if not azimuth:
+        return alt, None
     az = np.degrees(np.arctan2(-cos_dec * np.sin(ha), sin_dec * cos_lat - cos_dec * sin_lat * cos_ha)) % 360.0
     return alt, az
 

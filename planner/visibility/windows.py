@@ -95,12 +95,24 @@ class Sky:
         grid = np.asarray(grid, dtype=float)
         return self.eph.target(grid[None, :], self.targets[:, None])[:, :, None, :]
 
-    def grid_altaz_deg(self, grid):
-        """Target (altitude, azimuth) deg of every row at every ``grid`` time, each (n_rows, n_grid)."""
+    def grid_altaz_deg(self, grid, azimuth_sites=None):
+        """Target (altitude, azimuth) deg of every row at every ``grid`` time, each (n_rows, n_grid).
+
+        ``azimuth_sites`` (bool per site): azimuths only for those sites' rows (NaN in the others;
+        None when no site is marked); default: every site.
+        """
         a = self.site_arrays
         ra, dec = sky.radec_deg(self._grid_targets(grid))  # (n_targets, 1, n_grid)
         lst = self.eph.gast(grid) + a.lon_deg  # (n_sites, n_grid)
-        return tuple(x.reshape(self.n_rows, -1) for x in sky.altaz_deg(a.lat_deg, lst, ra, dec))
+        if azimuth_sites is None:
+            return tuple(x.reshape(self.n_rows, -1) for x in sky.altaz_deg(a.lat_deg, lst, ra, dec))
+        alt = sky.altaz_deg(a.lat_deg, lst, ra, dec, azimuth=False)[0].reshape(self.n_rows, -1)
+        some = np.flatnonzero(azimuth_sites)
+        if some.size == 0:
+            return alt, None
+        az = np.full((self.targets.size, len(self.sites), lst.shape[-1]), np.nan)
+        az[:, some] = sky.altaz_deg(a.lat_deg[some], lst[some], ra, dec)[1]
+        return alt, az.reshape(self.n_rows, -1)
 
     def grid_moon_sep_deg(self, grid) -> np.ndarray:
         """Moon-target separation (deg) of every row at every ``grid`` time, (n_rows, n_grid): the
@@ -110,7 +122,8 @@ class Sky:
 
 
 def altitude_floor_deg(rules: Rules, rows, azimuth_deg) -> np.ndarray:
-    """Lowest allowed target altitude (deg) at the given site rows and azimuths."""
+    """Lowest allowed target altitude (deg) at the given site rows and azimuths (read only at sites
+    with a horizon profile; may be None when there are none)."""
     rows = np.asarray(rows)
     floor = np.maximum(rules.min_altitude_deg[rows], rules.airmass_altitude_deg)
     floor = np.broadcast_to(floor, np.broadcast_shapes(floor.shape, np.shape(azimuth_deg))).copy()
@@ -132,7 +145,7 @@ def margins(skyq: Sky, rules: Rules, mjd, rows) -> dict[str, np.ndarray]:
 def grid_margins(skyq: Sky, rules: Rules, grid, sun) -> dict[str, np.ndarray]:
     """:func:`margins` of every row at every ``grid`` time, (n_rows, n_grid), by broadcasting
     targets x sites x times; ``sun`` (n_sites, n_grid) is the twilight margin of the sites there."""
-    alt, az = skyq.grid_altaz_deg(grid)
+    alt, az = skyq.grid_altaz_deg(grid, [h is not None for h in rules.horizons])  # azimuths for horizon profiles
     sep = skyq.grid_moon_sep_deg(grid) if rules.min_moon_sep_deg is not None else None
     return _margins(rules, skyq.site_of[:, None], grid, alt, az, np.tile(sun, (skyq.targets.size, 1)), sep)
 
@@ -152,7 +165,7 @@ def _margins(rules: Rules, site_rows, mjd, alt, az, sun, moon_sep) -> dict[str, 
 def combined_margin(m: dict[str, np.ndarray]) -> np.ndarray:
     """The margin of all rules together: the smallest one."""
     keys = ["sun", "altitude", "t0"] + (["moon"] if "moon" in m else [])
-    return np.minimum.reduce([m[k] for k in keys])
+    return functools.reduce(np.minimum, [m[k] for k in keys])  # pairwise: no stacked copy of the margins
 
 
 def window_margin_fn(skyq: Sky, rules: Rules):
