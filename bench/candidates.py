@@ -41,6 +41,7 @@ from pathlib import Path
 ROOT = Path(__file__).resolve().parents[1]
 EVENT = ROOT / "demo_events" / "kn-demo-south.toml"
 N_CANDIDATES = 100
+NIGHTS = 7  # kncast plan's default
 SCATTER_DEG = 10.0  # half-width of the invented candidate scatter around the event position
 SEED = 19
 REPEATS = 3
@@ -66,7 +67,8 @@ def write_event(path: Path) -> Path:
 
 def plan_cmd(event: Path, out: Path) -> list[str]:
     code = f"{LIFT_CAP}; import sys; from kncast.planner.cli import main; sys.exit(main(sys.argv[1:]))"
-    return [sys.executable, "-c", code, "plan", "--event", str(event), "--out", str(out), "--force"]
+    return [sys.executable, "-c", code, "plan", "--event", str(event), "--nights", str(NIGHTS), "--out", str(out),
+            "--force"]
 
 
 def timed(cmd: list[str], what: str) -> float:
@@ -115,7 +117,7 @@ def breakdown(event, sites, registry) -> tuple[dict, object]:
     vis_core.compute_visibility = timers.wrap("visibility", saved[1])
     candidates.rank_candidates = timers.wrap("ranking", saved[2])
     try:
-        plan = timers.wrap("rest of the plan", saved[0])(event, sites, registry=registry)
+        plan = timers.wrap("rest of the plan", saved[0])(event, sites, nights=NIGHTS, registry=registry)
         timers.wrap("plan document", saved[3])(plan)
     finally:
         core.build_plan, vis_core.compute_visibility, candidates.rank_candidates, core.plan_document = saved
@@ -128,7 +130,7 @@ def one_at_a_time(event, sites, ephemeris):
     from kncast.planner.visibility.core import compute_visibility
 
     targets = event.targets()
-    per_target = [compute_visibility(event, sites, nights=7, target_index=i, ephemeris=ephemeris).nights
+    per_target = [compute_visibility(event, sites, nights=NIGHTS, target_index=i, ephemeris=ephemeris).nights
                   for i in range(len(targets))]
     out = []
     for k, base in enumerate(per_target[0]):
@@ -171,7 +173,7 @@ def in_process(event1, event100, profile: bool) -> dict:
     base = one_at_a_time(event100, sites, eph)
     base_s = time.perf_counter() - t
     t = time.perf_counter()
-    ours = rank_candidates(event100, sites, nights=7, ephemeris=eph)
+    ours = rank_candidates(event100, sites, nights=NIGHTS, ephemeris=eph)
     rank_s = time.perf_counter() - t
     if profile:
         import cProfile
@@ -204,7 +206,7 @@ def main(repeats: int = REPEATS, profile: bool = False) -> int:
     added = {k: r["hundred"].get(k, 0.0) - r["single"].get(k, 0.0) for k in r["hundred"]}
     print("added by the candidates in-process (s): " + ", ".join(f"{k} {v:+.2f}" for k, v in added.items())
           + f"; total {sum(added.values()):+.2f}")
-    print(f"ranking {N_CANDIDATES} candidates x {7} nights x every site: rank_candidates {r['rank_s']:.2f} s, "
+    print(f"ranking {N_CANDIDATES} candidates x {NIGHTS} nights x every site: rank_candidates {r['rank_s']:.2f} s, "
           f"one target at a time {r['base_s']:.2f} s")
     single, hundred = statistics.median(singles), statistics.median(hundreds)
     print(f"kncast plan as a process: single {single:.2f} s, {N_CANDIDATES} candidates {hundred:.2f} s, "
