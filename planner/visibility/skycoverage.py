@@ -272,7 +272,7 @@ def _hier_chunk(skymap, sl, mask90, ctx, frames, floor_rad, hz_rows, seg_hz, seg
     seen, probability x samples; fills ``obs[sl]`` when given."""
     kids = 4 ** HIER_DEPTH
     zen, north, east, moon = frames  # float64 (n_samples, 3): the parents' test
-    xyz = skymap.xyz[:, sl]
+    xyz = skymap.pixel_vectors(sl)
     centre, radius = _parents(xyz, kids)
     alt = np.arcsin(np.clip(dot_rows(zen, centre), -1.0, 1.0))  # (n_samples, n_parents), rad
     margin = radius[None, :] + HIER_EPS_RAD
@@ -320,6 +320,8 @@ def _hier_level(skymap: SkyMap):
     """The order of a single-order map whose pixels run in whole NESTED groups of 4^HIER_DEPTH children
     (a flat map, or whole parents of one), else None."""
     kids = 4 ** HIER_DEPTH
+    if skymap.implied_level is not None:  # a flat map: pixel k is NESTED index k
+        return skymap.implied_level if skymap.npix % kids == 0 else None
     if skymap.npix % kids or np.any(skymap.level != skymap.level[0]):
         return None
     groups = skymap.ipix.reshape(-1, kids)
@@ -424,12 +426,12 @@ def _accumulate_direct(skymap: SkyMap, vis, cols: _Columns, records, obs: np.nda
     seg_record = cols.record[seg_start]
     moon_reach = _moon_reach(moon, seg_start, seg_end, moon_rule) if moon_rule else None
     dt_h = cols.dt_h[seg_record]
-    area90_deg2 = np.where(skymap.credible_mask(CREDIBLE_LEVEL), skymap.area_sr * SR_TO_DEG2, 0.0)
+    mask90 = skymap.credible_mask(CREDIBLE_LEVEL)
     chunk = max(1024, CHUNK_ELEMENTS // cols.mjd.size)
     prob_obs, hours, area = np.zeros(seg_start.size), np.zeros(seg_start.size), np.zeros(seg_start.size)
     for lo in range(0, skymap.npix, chunk):  # blocks of pixels (memory bound), each vectorized over all samples
         sl = slice(lo, min(lo + chunk, skymap.npix))
-        pix = skymap.xyz[:, sl].astype(np.float32)  # (3, m)
+        pix = skymap.pixel_vectors(sl).astype(np.float32)  # (3, m)
         sin_alt = dot_rows(zen, pix)  # (n_samples, m)
         ok = sin_alt >= sin_floor
         for (a, b), hz in horizons:  # sites with a horizon profile: the floor depends on azimuth
@@ -444,7 +446,7 @@ def _accumulate_direct(skymap: SkyMap, vis, cols: _Columns, records, obs: np.nda
         p = skymap.prob[sl]
         prob_obs += np.where(seen, p, 0.0).sum(axis=1)
         hours += (count * p).sum(axis=1) * dt_h
-        area += np.where(seen, area90_deg2[sl], 0.0).sum(axis=1)
+        area += np.where(seen, np.where(mask90[sl], skymap.area_sr[sl] * SR_TO_DEG2, 0.0), 0.0).sum(axis=1)
     for s, k in enumerate(seg_record):
         records[k].observable_probability = float(min(prob_obs[s], 1.0))
         records[k].weighted_hours = float(hours[s])
