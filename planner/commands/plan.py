@@ -70,8 +70,9 @@ def add_arguments(p) -> None:
     from kncast.planner.plan.folder import FIGURE_SETS, MAX_SNR_FIGURES
 
     o.add_argument("--figures", choices=FIGURE_SETS, default=FIGURE_SETS[0],
-                   help=f"S/N spectra for the most often chosen setups (at most {MAX_SNR_FIGURES}; default) "
-                        "or for every setup with a measured epoch")
+                   help=f"'chosen' (default): the campaign's feature map (a row per day) and S/N spectra of the "
+                        f"most often chosen setups (at most {MAX_SNR_FIGURES}); 'all': also a feature map per day "
+                        "(a row per chosen epoch) and S/N spectra of every setup with a measured epoch")
     from kncast.planner.commands._model_options import add_model_options
 
     add_model_options(p)
@@ -201,7 +202,7 @@ def previous_plan(out: Path, event_id: str) -> dict | None:
 def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen") -> dict:
     """Write every output file of ``plan`` into ``out`` atomically; returns the plan document.
 
-    ``figures`` picks the S/N spectra drawn (kncast.planner.plan.folder.FIGURE_SETS)."""
+    ``figures`` picks the figure set (kncast.planner.plan.folder.FIGURE_SETS)."""
     from kncast.planner.plan import folder as plan_outputs
     from kncast.planner.errors import OptionError
     from kncast.planner.output import atomic_dir, write_json
@@ -210,9 +211,9 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
         out.absolute().parent.mkdir(parents=True, exist_ok=True)
     except OSError as err:
         raise OptionError("--out", str(out), f"a folder that can be created ({err.strerror})") from None
+    say("figures")  # before the figure workers fork (the progress display pauses its thread)
     with atomic_dir(out) as tmp, plan_outputs.start_figures(plan, tmp, figures) as drawing:
-        say("tables and figures")  # the figure workers draw while the tables are written
-        files = plan_outputs.write_tables(plan, tmp)
+        files = plan_outputs.write_tables(plan, tmp)  # while the workers draw
         files["figures"] = drawing.paths
         files.update(plan="plan.json", report_md="report.md", report_html="report.html")
         files["blocks"] = "blocks.txt"
@@ -229,7 +230,6 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
         from kncast.planner.plan.exports import blocks_text
 
         (tmp / "blocks.txt").write_text(blocks_text(doc))
-        say("figures")
         drawn = drawing.finish()
         say("report")
         from kncast.planner.plan.report import write_report

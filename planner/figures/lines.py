@@ -181,19 +181,21 @@ def _key(ax, labels, colors):
 
 
 def _reference_marks(ax, result, n_feat, references) -> bool:
-    """Outline, in each row, the absorption bar of that row's reference feature (id, or None); True if any."""
+    """Outline, in each row, the absorption bars of that row's reference features (an id, a tuple of ids, or
+    None); True if any."""
     from matplotlib.collections import PolyCollection
 
     ids = [getattr(f, "id", None) for f in result.features[:n_feat]]
     lane = 0.84 / n_feat
     w = result.windows
     boxes = []
-    for row, fid in enumerate(references or []):
-        if fid in ids:
-            k = ids.index(fid)
-            y = row + 0.08 + lane * (k + 0.5)
-            boxes.append(_rects(w.absorption_lo_A[row:row + 1, k], w.absorption_hi_A[row:row + 1, k],
-                                np.array([y - 0.6 * lane]), np.array([y + 0.6 * lane]))[0])
+    for row, marks in enumerate(references or []):
+        for fid in marks if isinstance(marks, (tuple, list)) else (marks,):
+            if fid in ids:
+                k = ids.index(fid)
+                y = row + 0.08 + lane * (k + 0.5)
+                boxes.append(_rects(w.absorption_lo_A[row:row + 1, k], w.absorption_hi_A[row:row + 1, k],
+                                    np.array([y - 0.6 * lane]), np.array([y + 0.6 * lane]))[0])
     if boxes:
         ax.add_collection(PolyCollection(boxes, facecolors="none", edgecolors="black", linewidths=1.6, zorder=6))
     return bool(boxes)
@@ -209,8 +211,8 @@ def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.
                  telluric_threshold=None, references=None):
     """A matplotlib Figure of the line forecast (see the module docstring).
 
-    ``references``: per row (epoch), the id of the feature the chosen setup is judged on (or None),
-    outlined in black.
+    ``references``: per row (epoch), the id of the feature the chosen setup is judged on (or a tuple of
+    ids, or None), outlined in black.
 
     ``telluric_threshold``: transmission below which a band is lost (default
     ``kncast.forecast.tellurics.CORRECTABLE_TRANSMISSION``).
@@ -263,7 +265,7 @@ def lines_figure(transient, result, refs, tellurics=None, airmass=1.2, pwv_mm=2.
     fig.suptitle(f"{head}where each feature falls per epoch (solid: absorption, tick = expected trough; "
                  "pale: emission) and which setups record it", fontsize=FONT_PT + 2, x=0.01, ha="left",
                  y=1 - 0.12 / total_h)
-    fig.text(0.01, 0.06 / total_h, ("Outlined in black: the reference feature of the setup chosen in that row. "
+    fig.text(0.01, 0.06 / total_h, ("Outlined in black: the reference feature of the setups chosen in that row. "
                                      if marked else "") + "Model estimates; the observatory's own tools and rules take precedence.",
              fontsize=FONT_PT, color="0.35")
     return fig

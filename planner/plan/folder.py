@@ -34,7 +34,9 @@ def _save(fig, folder: Path, kind: str, arg=None) -> str:
     return rel
 
 
-FIGURE_SETS = ("chosen", "all")  # S/N spectra of the most often chosen setups only, or of every setup
+# "chosen": the campaign's feature map (a row per day) and S/N spectra of the most often chosen setups;
+# "all": also one feature map per day (a row per chosen epoch) and S/N spectra of every setup
+FIGURE_SETS = ("chosen", "all")
 # Seconds to draw and save each kind of figure (measured on the 2-core machine, demo plan; a spectral
 # figure with one panel, each further panel adds half): they decide whether the worker processes pay
 # for themselves and which figure starts first.
@@ -45,8 +47,9 @@ POOL_OVERHEAD_S = 0.05  # forking two workers, handing out the jobs, collecting 
 def write_figures(plan, folder: Path, figures: str = "chosen") -> list[dict]:
     """Campaign chart, light curve, one spectral panel per chosen epoch, S/N curves (PNG under figures/).
 
-    ``figures`` (one of FIGURE_SETS): ``"chosen"`` draws S/N spectra for the most often chosen setups
-    (at most MAX_SNR_FIGURES), ``"all"`` for every setup with a measured epoch.  The same as
+    ``figures`` (one of FIGURE_SETS): ``"chosen"`` draws the campaign's feature map and S/N spectra for
+    the most often chosen setups (at most MAX_SNR_FIGURES), ``"all"`` adds a feature map per day and S/N
+    spectra for every setup with a measured epoch.  The same as
     ``start_figures(...).finish()``.
     """
     return start_figures(plan, folder, figures).finish()
@@ -178,10 +181,11 @@ def figure_jobs(plan, figures: str = "chosen") -> list[tuple]:
     """(figure kind, argument, estimated seconds) in report order."""
     cost = FIGURE_COST_S
     jobs = [("campaign", None, cost["campaign"]), ("lightcurve", None, cost["lightcurve"])]
-    chosen = sorted(plan.useful(), key=lambda p: p.phase_d)
-    for day in sorted({int(p.phase_d) for p in chosen}):  # one panel per epoch group; each adds half a figure
-        panels = len(epoch_groups([p for p in chosen if int(p.phase_d) == day]))
-        jobs.append(("spectrum", day, cost["spectrum"] * (1 + panels) / 2))
+    days = sorted({int(p.phase_d) for p in plan.useful()})
+    if days:
+        jobs.append(("spectrum-campaign", None, cost["spectrum"]))
+    if figures == "all":
+        jobs += [("spectrum", day, cost["spectrum"]) for day in days]
     jobs += [("snr", sid, cost["snr"]) for sid in snr_figure_setups(plan, figures)]
     if any(o.significance is not None for p in plan.nights for o in p.outcomes):
         jobs.append(("snr-campaign", None, cost["snr-campaign"]))
@@ -233,34 +237,58 @@ def epoch_groups(nights: list) -> list[list]:
     return groups
 
 
-def spectral_figure(plan, folder, day):
-    """One spectral forecast panel per chosen epoch of days [day, day + 1) since t0 (the lines chart);
-    epochs within SAME_EPOCH_D of each other share a panel."""
+def _feature_chart(plan, rows: list[list], title: str):
+    """The lines chart of chosen epochs: one row per list of chosen nights in ``rows`` (the row's epoch is its
+    first night's; its reference features, outlined, those of every choice in the row), the setups chosen
+    in any row below, the atmosphere at the median airmass and water vapour of all of them."""
     from kncast.forecast.features import forecast_features
     from kncast.planner.figures.lines import lines_figure
 
     refs = {r.id: r for r in plan.setup_refs}
-    groups = epoch_groups([p for p in plan.useful() if int(p.phase_d) == day])
-    members = [p for g in groups for p in g]
-    group_refs = list({p.choice.setup: refs[p.choice.setup] for p in members}.values())
+    members = [p for row in rows for p in row]
+    chart_refs = list({p.choice.setup: refs[p.choice.setup] for p in members}.values())
     airmass = float(np.median([forecast_airmass(p.window) for p in members]))
     pwv = float(np.median([plan.atmospheres[p.site.id].pwv_mm for p in members]))
     linelist, composition = _line_inputs()
-    fc = forecast_features(plan.transient, np.array([g[0].phase_d for g in groups]), linelist,
-                           setups=[r.setup for r in group_refs], tellurics=plan.tellurics, airmass=airmass,
-                           pwv_mm=pwv, composition=composition, setup_ids=[r.id for r in group_refs])
-    fig = lines_figure(plan.transient, fc, group_refs, plan.tellurics, airmass, pwv,
-                       f"Days {day}-{day + 1}", telluric_threshold=plan.settings.get("telluric_threshold"),
-                       references=[g[0].choice.feature for g in groups])
+    fc = forecast_features(plan.transient, np.array([row[0].phase_d for row in rows]), linelist,
+                           setups=[r.setup for r in chart_refs], tellurics=plan.tellurics, airmass=airmass,
+                           pwv_mm=pwv, composition=composition, setup_ids=[r.id for r in chart_refs])
+    fig = lines_figure(plan.transient, fc, chart_refs, plan.tellurics, airmass, pwv, title,
+                       telluric_threshold=plan.settings.get("telluric_threshold"),
+                       references=[tuple(dict.fromkeys(p.choice.feature for p in row)) for row in rows])
+    return fig, airmass, pwv
+
+
+def _chart_key(airmass: float, pwv: float) -> str:
+    return (f"Each feature keeps its lane and colour (key at the right); top: the sky transmission at airmass "
+            f"{airmass:.2f}, PWV {pwv:g} mm (hatched columns: correctable bands, cross-hatched: lost); bottom: "
+            f"the chosen setups' coverage and how many features are clear in each, per row.")
+
+
+def campaign_spectra(plan, folder, _arg):
+    """The lines chart of the whole campaign: one row per day with a chosen spectrum, at its first chosen epoch."""
+    days = sorted({int(p.phase_d) for p in plan.useful()})
+    rows = [sorted((p for p in plan.useful() if int(p.phase_d) == d), key=lambda n: n.phase_d) for d in days]
+    fig, airmass, pwv = _feature_chart(plan, rows, "Campaign")
+    words = "; ".join(f"day {row[0].phase_d:.2f}: {row[0].site.id} ({row[0].choice.setup})"
+                      + (f" and {len(row) - 1} more that day" if len(row) > 1 else "") for row in rows)
+    return {"title": "Spectral forecast across the campaign", "path": _save(fig, folder, "spectrum-campaign"),
+            "caption": f"Feature map: one row per day with a planned spectrum, at that day's first chosen epoch "
+                       f"({words}); outlined: the reference features of that day's choices. "
+                       + _chart_key(airmass, pwv) + " One map per day, a row per epoch: --figures all."}
+
+
+def spectral_figure(plan, folder, day):
+    """One spectral forecast panel per chosen epoch of days [day, day + 1) since t0 (the lines chart);
+    epochs within SAME_EPOCH_D of each other share a panel."""
+    groups = epoch_groups([p for p in plan.useful() if int(p.phase_d) == day])
+    fig, airmass, pwv = _feature_chart(plan, groups, f"Days {day}-{day + 1}")
     words = " | ".join(f"day {g[0].phase_d:.2f}: " + ", ".join(f"{p.site.id} ({p.choice.setup}, day {p.phase_d:.2f})"
                                                               for p in g) for g in groups)
     return {"title": f"Spectral forecast, days {day}-{day + 1} since t0",
             "path": _save(fig, folder, "spectrum", day),
             "caption": f"Feature map: one row per chosen epoch, top to bottom (epochs within {SAME_EPOCH_D * 24:.1f} h "
-                       f"share a row): {words}. Each feature keeps its lane and colour (key at the right); top: the "
-                       f"sky transmission at airmass {airmass:.2f}, PWV {pwv:g} mm (hatched columns: correctable "
-                       f"bands, cross-hatched: lost); bottom: the chosen setups' coverage and how many features are "
-                       f"clear in each, per epoch."}
+                       f"share a row): {words}. " + _chart_key(airmass, pwv)}
 
 
 MAX_SNR_FIGURES = 4
@@ -333,7 +361,8 @@ def snr_campaign(plan, folder, _arg):
                        "trough."}
 
 
-FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum": spectral_figure,
+FIGURES = {"campaign": campaign_chart, "lightcurve": light_curve, "spectrum-campaign": campaign_spectra,
+           "spectrum": spectral_figure,
            "snr": snr_spectrum, "snr-campaign": snr_campaign}
 
 

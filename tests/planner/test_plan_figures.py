@@ -98,3 +98,13 @@ def test_significance_grid_holds_each_nights_outcomes(demo_plan):
             filled += 1
     assert filled == int(np.isfinite(sig).sum()) > 0
     assert chosen.sum() == sum(p.choice is not None and p.choice.significance is not None for p in demo_plan.nights)
+
+
+def test_feature_maps_follow_the_figure_set(demo_plan):
+    # default: one campaign feature map; --figures all: also one map per day with a chosen spectrum
+    days = sorted({int(p.phase_d) for p in demo_plan.useful()})
+    jobs = lambda which: [(k, a) for k, a, _ in folder.figure_jobs(demo_plan, which) if k.startswith("spectrum")]  # noqa: E731
+    assert jobs("chosen") == [("spectrum-campaign", None)]
+    assert jobs("all") == [("spectrum-campaign", None)] + [("spectrum", d) for d in days]
+    assert folder.figure_path("spectrum", 3) == "figures/spectrum-day03.png"
+    assert folder.figure_path("snr", "a/b c") == "figures/snr-a_b_c.png"
