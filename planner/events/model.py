@@ -18,7 +18,7 @@ from kncast.planner.errors import InputError
 # DE421 (skyfield-data) spans 1899-07-28 .. 2053-10-08; keep a margin for the nights after t0.
 T0_MIN, T0_MAX = "1900-01-01", "2053-01-01"
 MAX_ID_CHARS = 100  # event and candidate ids (shown in tables, titles and folder names)
-MAX_CANDIDATES = 50  # candidate positions of one event (each is planned per site and night)
+MAX_CANDIDATES = 1000  # candidate positions of one event (each is planned per site and night; 100 rank in ~0.5 s)
 # control characters, line separators and bidirectional overrides/isolates: never in an id
 _UNSAFE_ID_CHARS = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069]")
 

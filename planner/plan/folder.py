@@ -275,7 +275,7 @@ def campaign_spectra(plan, folder, _arg):
     return {"title": "Spectral forecast across the campaign", "path": _save(fig, folder, "spectrum-campaign"),
             "caption": f"Feature map: one row per day with a planned spectrum, at that day's first chosen epoch "
                        f"({words}); outlined: the reference features of that day's choices. "
-                       + _chart_key(airmass, pwv) + " One map per day, a row per epoch: --figures all."}
+                       + _chart_key(airmass, pwv) + " The 'all' figure set adds one map per day with a row per chosen epoch."}
 
 
 def spectral_figure(plan, folder, day):

@@ -302,9 +302,11 @@ def test_size_and_nesting_limits(tmp_path, run_cli):
 
 def test_huge_fields_end_quickly(tmp_path, run_cli):
     started = time.monotonic()
-    many = "".join(f'\n[[candidate]]\nid = "c{i}"\nra = 10.0\ndec = -30.0\n' for i in range(200))
+    from kncast.planner.events.model import MAX_CANDIDATES
+
+    many = "".join(f'\n[[candidate]]\nid = "c{i}"\nra = 10.0\ndec = -30.0\n' for i in range(MAX_CANDIDATES + 1))
     refused(run_cli("visibility", "--event", event_file(tmp_path, extra=many), "--candidates"), "candidate",
-            "at most 50")
+            f"at most {MAX_CANDIDATES}")
     sites = tmp_path / "sites"
     sites.mkdir()
     points = ", ".join(f"{i * 0.01:.2f}" for i in range(20000))
