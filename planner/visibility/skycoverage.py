@@ -45,6 +45,7 @@ DEFAULT_STEP_MIN = 10.0
 CHUNK_ELEMENTS = 4_000_000  # pixels x samples per block: bounds memory to a few tens of MB
 CREDIBLE_LEVEL = 0.9
 HIER_DEPTH = 4  # coarse-to-fine test: parents 4 orders above the map (256 children each)
+HIER_SUB_DEPTH = 2  # ... then groups 2 orders above the map (16 children each) inside the undecided parents
 HIER_MIN_LEVEL = 8  # ... for flat maps from nside 256 (coarser maps: every pixel tested)
 HIER_EPS_RAD = 1e-5  # 2 arcsec: more than float32 rounding of the child-by-child test
 HIER_CHUNK_PIXELS = 1 << 18  # children per block: bounds memory to a few tens of MB
@@ -228,7 +229,7 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     seg_end = np.r_[seg_start[1:], cols.mjd.size]
     seg_record = cols.record[seg_start]
     ctx = _Hier(f32(zen), f32(north), f32(east), f32(moon), np.sin(np.radians(floor)).astype(np.float32)[:, None],
-                rules.min_moon_sep_deg, seg_start, seg_end)
+                rules.min_moon_sep_deg, seg_start, seg_end, (zen, north, east, moon), np.radians(floor)[:, None])
     dt_h = cols.dt_h[seg_record]
     mask90 = skymap.credible_mask(CREDIBLE_LEVEL)
     kids = 4 ** HIER_DEPTH
@@ -288,12 +289,14 @@ def _hier_chunk(skymap, sl, mask90, ctx, frames, floor_rad, hz_rows, seg_hz, seg
         limit = math.radians(ctx.moon_rule)
         inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
         outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
-    in_count = np.add.reduceat(inside.view(np.uint8), ctx.seg_start, axis=0, dtype=np.uint16)  # (n_seg, n_parents)
+    in_count = np.stack([inside[a:b].view(np.uint8).sum(axis=0, dtype=np.uint16)  # (n_seg, n_parents)
+                         for a, b in zip(ctx.seg_start, ctx.seg_end)])
     area90 = np.where(mask90[sl], skymap.area_sr[sl] * SR_TO_DEG2, 0.0)
     weights = np.stack([skymap.prob[sl], area90], axis=1)  # (m, 2): probability, 90 % area
     count = np.repeat(in_count, kids, axis=1) if obs is not None else None  # per pixel only for the flags
     # parents passed at some sample: all their children seen; the children of the others by the refinement
-    sums = _refine(count, in_count, ~(inside | outside), xyz.astype(np.float32), weights, ctx, seg_hz)
+    sub = _parents(xyz, 4 ** HIER_SUB_DEPTH)  # groups of 4^HIER_SUB_DEPTH children inside each parent
+    sums = _refine(count, in_count, ~(inside | outside), xyz.astype(np.float32), sub, weights, ctx, seg_hz)
     parent_w = weights.reshape(-1, kids, 2).sum(axis=1)  # (n_parents, 2)
     seen_parent = np.einsum("sp,pc->sc", (in_count > 0).astype(np.float64), parent_w)
     if obs is not None:
@@ -314,6 +317,8 @@ class _Hier:
     moon_rule: float | None
     seg_start: np.ndarray
     seg_end: np.ndarray
+    frames64: tuple  # float64 zenith, north, east, Moon (n_samples, 3): the bounds of the groups
+    floor_rad: np.ndarray  # (n_samples, 1)
 
 
 def _hier_level(skymap: SkyMap):
@@ -358,8 +363,9 @@ def _parents(xyz: np.ndarray, kids: int):
     return centre, np.arccos(np.clip(cos_max, -1.0, 1.0))
 
 
-def _refine(count, in_count, mixed, pix, weights, ctx: _Hier, seg_hz) -> np.ndarray:
-    """Test the children of the (sample, parent) pairs ``mixed`` one by one.
+def _refine(count, in_count, mixed, pix, sub, weights, ctx: _Hier, seg_hz) -> np.ndarray:
+    """Test the children of the (sample, parent) pairs ``mixed``: by groups (``sub``: centres and radii of
+    the runs of 4^HIER_SUB_DEPTH children), then the children of the groups neither passed nor failed one by one.
 
     Returns per site/night (n_seg, 3): the probability and 90 % area of the children seen only through
     these tests (their parent passed at no sample), and the probability x samples they add.  ``count``
@@ -367,34 +373,70 @@ def _refine(count, in_count, mixed, pix, weights, ctx: _Hier, seg_hz) -> np.ndar
     """
     n_seg, n_par = in_count.shape
     kids = pix.shape[1] // n_par
-    groups = pix.reshape(3, -1, kids)
-    w = weights.reshape(n_par, kids, 2)
+    n_sub = sub[1].size // n_par
+    per = kids // n_sub
+    sub = (sub[0].reshape(3, n_par, n_sub), sub[1].reshape(n_par, n_sub))
+    groups = pix.reshape(3, n_par, n_sub, per)
+    w_kid = weights.reshape(n_par, n_sub, per, 2)
+    w_group = w_kid.sum(axis=2)  # (n_par, n_sub, 2)
     out = np.zeros((n_seg, 3))
-    cos_sep = np.float32(math.cos(math.radians(ctx.moon_rule))) if ctx.moon_rule else None
     for s in range(n_seg):
         a, b = int(ctx.seg_start[s]), int(ctx.seg_end[s])
         parent, k = np.nonzero(mixed[a:b].T)  # grouped by parent
         if not parent.size:
             continue
-        k = k + a
-        child = groups[:, parent, :]  # (3, n_pairs, kids)
-        sin_alt = np.einsum("pj,jpk->pk", ctx.zen[k], child)
-        ok = sin_alt >= ctx.sin_floor[k]
-        hz = seg_hz[s]
-        if hz is not None:
-            _apply_horizon_pairs(ok, sin_alt, ctx.sin_floor[k], child, ctx.north[k], ctx.east[k], hz)
-        if cos_sep is not None:
-            ok &= np.einsum("pj,jpk->pk", ctx.moon[k], child) <= cos_sep
-        starts = np.flatnonzero(np.r_[True, parent[1:] != parent[:-1]])
-        par = parent[starts]
-        added = np.add.reduceat(ok.view(np.uint8), starts, axis=0, dtype=np.uint16)  # (n_parents hit, kids)
-        new = (added > 0) & (in_count[s, par] == 0)[:, None]
-        out[s, 0] = np.sum(w[par, :, 0][new])
-        out[s, 1] = np.sum(w[par, :, 1][new])
-        out[s, 2] = np.sum(added * w[par, :, 0])
+        par, whole, (h, j, ok) = _test_pairs(parent, k + a, groups, sub, ctx, seg_hz[s])
+        fresh = in_count[s, par] == 0  # parents passed at no sample of this night
+        w_par = w_group[par]  # (n_parents hit, n_sub, 2)
+        out[s, :2] = w_par[(whole > 0) & fresh[:, None]].sum(axis=0)  # groups passed whole at some sample
+        out[s, 2] = np.sum(whole * w_par[:, :, 0]) + np.sum(w_kid[par[h], j, :, 0][ok])
+        at = ((h * n_sub + j) * per)[:, None] + np.arange(per)  # (parent hit, child) of each child tested
+        new = fresh[h] & (whole[h, j] == 0)  # groups seen only child by child
+        seen = np.unique(at[new][ok[new]])  # their children observable at one sample at least
+        hh, rest = np.divmod(seen, n_sub * per)
+        out[s, :2] += w_kid[par[hh], rest // per, rest % per].sum(axis=0)
         if count is not None:
-            count.reshape(n_seg, -1, kids)[s, par] += added
+            added = np.repeat(whole, per, axis=1).astype(np.int64)
+            added += np.bincount(at[ok], minlength=added.size).reshape(added.shape)
+            count.reshape(n_seg, -1, kids)[s, par] += added.astype(np.uint16)
     return out
+
+
+def _test_pairs(parent, k, groups, sub, ctx: _Hier, hz):
+    """The parents hit by the (parent, sample k) pairs (grouped by parent), the samples at which each of their
+    groups passes whole (n_parents hit, n_sub), and the groups tested child by child: parent hit, group, children
+    observable (n_tested, children per group).  A group of children clear of the limits by its radius
+    (+ HIER_EPS_RAD) passes or fails whole, as a parent does in :func:`_accumulate`; the children of the other
+    groups are tested one by one, in float32 as :func:`_accumulate_direct` does."""
+    zen, north, east, moon = ctx.frames64
+    centre, radius = sub[0][:, parent, :], sub[1][parent]  # (3, n_pairs, n_sub), (n_pairs, n_sub)
+    dot = lambda v: np.einsum("pj,jpk->pk", v[k], centre)  # noqa: E731
+    alt = np.arcsin(np.clip(dot(zen), -1.0, 1.0))
+    margin = radius + HIER_EPS_RAD
+    floor = ctx.floor_rad[k]
+    inside = alt - margin >= floor
+    outside = alt + margin < floor
+    if hz is not None:
+        lo_rad, hi_rad = _profile_bounds(hz, alt, margin, dot(east), dot(north))
+        inside &= alt - margin >= hi_rad
+        outside |= alt + margin < lo_rad
+    if ctx.moon_rule:
+        cos_sep, limit = dot(moon), math.radians(ctx.moon_rule)
+        inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
+        outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
+    per, n_sub = groups.shape[3], inside.shape[1]
+    first = np.r_[True, parent[1:] != parent[:-1]]
+    local = np.cumsum(first) - 1  # the pair's parent among those hit
+    whole = np.add.reduceat(inside.view(np.uint8), np.flatnonzero(first), axis=0, dtype=np.uint16)
+    q, j = np.nonzero(~(inside | outside))
+    child, kq = groups[:, parent[q], j, :], k[q]  # (3, n_tested, per)
+    sin_alt = np.einsum("pj,jpk->pk", ctx.zen[kq], child)
+    ok = sin_alt >= ctx.sin_floor[kq]
+    if hz is not None and q.size:
+        _apply_horizon_pairs(ok, sin_alt, ctx.sin_floor[kq], child, ctx.north[kq], ctx.east[kq], hz)
+    if ctx.moon_rule:
+        ok &= np.einsum("pj,jpk->pk", ctx.moon[kq], child) <= np.float32(math.cos(math.radians(ctx.moon_rule)))
+    return parent[first], whole, (local[q], j, ok)
 
 
 def _apply_horizon_pairs(ok, sin_alt, sin_floor, child, north, east, hz) -> None:
