@@ -224,12 +224,14 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     f32 = lambda v: v.astype(np.float32)  # noqa: E731
     floor = np.maximum(rules.min_altitude_deg[cols.site], rules.airmass_altitude_deg)
     hz_site = list(rules.horizons)
-    hz_rows = [(*_row_range(cols.site, i), hz) for i, hz in enumerate(hz_site) if hz is not None and np.any(cols.site == i)]
+    cut = np.flatnonzero((cols.site[1:] != cols.site[:-1]) | (floor[1:] != floor[:-1])) + 1
+    row_blocks = [(int(a), int(b), hz_site[cols.site[a]]) for a, b in zip(np.r_[0, cut], np.r_[cut, floor.size])]
     seg_start = np.flatnonzero(np.r_[True, cols.record[1:] != cols.record[:-1]])
     seg_end = np.r_[seg_start[1:], cols.mjd.size]
     seg_record = cols.record[seg_start]
     ctx = _Hier(f32(zen), f32(north), f32(east), f32(moon), np.sin(np.radians(floor)).astype(np.float32)[:, None],
-                rules.min_moon_sep_deg, seg_start, seg_end, (zen, north, east, moon), np.radians(floor)[:, None])
+                rules.min_moon_sep_deg, seg_start, seg_end, (zen, north, east, moon), np.radians(floor)[:, None],
+                row_blocks)
     dt_h = cols.dt_h[seg_record]
     mask90 = skymap.credible_mask(CREDIBLE_LEVEL)
     kids = 4 ** HIER_DEPTH
@@ -239,10 +241,8 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
 
     def chunk(lo):  # one block of parents: (probability, 90 % area, probability x samples) per site/night
         sl = slice(lo * kids, min(lo + step, n_par) * kids)
-        return _hier_chunk(skymap, sl, mask90, ctx, (zen, north, east, moon), floor_rad, hz_rows, seg_hz,
-                           seg_record, obs)
+        return _hier_chunk(skymap, sl, mask90, ctx, seg_hz, seg_record, obs)
 
-    floor_rad = np.radians(floor)[:, None]
     totals = np.zeros((seg_start.size, 3))
     for part in _map_threads(chunk, range(0, n_par, step)):  # summed in block order: as a sequential loop
         totals[:, :2] += part[:, :2]
@@ -252,6 +252,36 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
         records[k].observable_probability = float(min(prob_obs[s], 1.0))
         records[k].weighted_hours = float(hours[s])
         records[k].area90_observable_deg2 = float(area[s])
+
+
+def _parent_bounds(centre, margin, ctx):
+    """(inside, outside) per sample and parent: all children within ``margin`` (rad) of the centre pass, or
+    all fail.  Row blocks of one site and floor at a time (small temporaries); above the floor by sines:
+    alt - margin >= floor iff sin(alt) >= sin(floor + margin) on [-pi/2, pi/2]."""
+    zen, north, east, moon = ctx.frames64
+    shape = (zen.shape[0], centre.shape[1])
+    inside, outside = np.empty(shape, dtype=bool), np.empty(shape, dtype=bool)
+    half = 0.5 * math.pi
+    threshold = lambda x: np.where(np.abs(x) <= half, np.sin(x), np.where(x > half, 2.0, -2.0))  # noqa: E731
+    if ctx.moon_rule:
+        limit = math.radians(ctx.moon_rule)
+        cos_in, cos_out = np.cos(np.minimum(limit + margin, math.pi)), np.cos(np.maximum(limit - margin, 0.0))
+    for a, b, hz in ctx.row_blocks:
+        sin_alt = dot_rows(zen[a:b], centre)
+        floor = float(ctx.floor_rad[a, 0])
+        inside[a:b] = sin_alt >= threshold(floor + margin)
+        outside[a:b] = sin_alt < threshold(floor - margin)
+        if hz is not None:  # children pass where alt >= the profile at their azimuth too
+            alt = np.arcsin(np.clip(sin_alt, -1.0, 1.0))
+            lo_rad, hi_rad = _profile_bounds(hz, alt, margin, dot_rows(east[a:b], centre),
+                                             dot_rows(north[a:b], centre))
+            inside[a:b] &= alt - margin >= hi_rad
+            outside[a:b] |= alt + margin < lo_rad
+        if ctx.moon_rule:
+            cos_sep = dot_rows(moon[a:b], centre)
+            inside[a:b] &= cos_sep < cos_in
+            outside[a:b] |= cos_sep > cos_out
+    return inside, outside
 
 
 def _map_threads(fn, items):
@@ -268,27 +298,13 @@ def _map_threads(fn, items):
         return list(pool.map(fn, items))
 
 
-def _hier_chunk(skymap, sl, mask90, ctx, frames, floor_rad, hz_rows, seg_hz, seg_record, obs) -> np.ndarray:
+def _hier_chunk(skymap, sl, mask90, ctx, seg_hz, seg_record, obs) -> np.ndarray:
     """Coarse-to-fine sums of one block of whole parents ``sl``: (n_seg, 3) probability seen, 90 % area
     seen, probability x samples; fills ``obs[sl]`` when given."""
     kids = 4 ** HIER_DEPTH
-    zen, north, east, moon = frames  # float64 (n_samples, 3): the parents' test
     xyz = skymap.pixel_vectors(sl)
     centre, radius = _parents(xyz, kids)
-    alt = np.arcsin(np.clip(dot_rows(zen, centre), -1.0, 1.0))  # (n_samples, n_parents), rad
-    margin = radius[None, :] + HIER_EPS_RAD
-    inside = alt - margin >= floor_rad
-    outside = alt + margin < floor_rad
-    for a, b, hz in hz_rows:  # children pass where alt >= the profile at their azimuth too
-        lo_rad, hi_rad = _profile_bounds(hz, alt[a:b], margin, dot_rows(east[a:b], centre),
-                                         dot_rows(north[a:b], centre))
-        inside[a:b] &= alt[a:b] - margin >= hi_rad
-        outside[a:b] |= alt[a:b] + margin < lo_rad
-    if ctx.moon_rule:
-        cos_sep = dot_rows(moon, centre)
-        limit = math.radians(ctx.moon_rule)
-        inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
-        outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
+    inside, outside = _parent_bounds(centre, radius + HIER_EPS_RAD, ctx)
     in_count = np.stack([inside[a:b].view(np.uint8).sum(axis=0, dtype=np.uint16)  # (n_seg, n_parents)
                          for a, b in zip(ctx.seg_start, ctx.seg_end)])
     area90 = np.where(mask90[sl], skymap.area_sr[sl] * SR_TO_DEG2, 0.0)
@@ -317,8 +333,9 @@ class _Hier:
     moon_rule: float | None
     seg_start: np.ndarray
     seg_end: np.ndarray
-    frames64: tuple  # float64 zenith, north, east, Moon (n_samples, 3): the bounds of the groups
+    frames64: tuple  # float64 zenith, north, east, Moon (n_samples, 3): the bounds of parents and groups
     floor_rad: np.ndarray  # (n_samples, 1)
+    row_blocks: list  # (first, end, horizon profile or None): runs of samples of one site and floor
 
 
 def _hier_level(skymap: SkyMap):
