@@ -403,3 +403,98 @@ def test_random_maps_keep_totals_in_range(tmp_path, registry):
         for level in (2, 4, 6):
             flat = m.resample_nested(m.density_per_sr, level)
             assert flat.sum() * 4 * math.pi / flat.size == pytest.approx(1.0, rel=1e-12)
+
+
+# --- fast paths against the direct computation (issue 19) ------------------------
+def _reference_credible_mask(m, level):
+    """The direct computation: every pixel sorted by decreasing density (stable), cumulative probability before it."""
+    order = np.argsort(-(m.prob / m.area_sr), kind="stable")
+    p = m.prob[order]
+    before = np.empty(m.npix)
+    before[order] = np.cumsum(p) - p
+    return before < level
+
+
+def test_block_reader_equals_astropy_columns(tmp_path, monkeypatch):
+    import gzip
+
+    from kncast.planner.events import skymap as sm
+
+    # reference: astropy.io.fits reading the same table (an independent library), row by row in file order
+    monkeypatch.setattr(sm, "PIXEL_BLOCK", 1000)  # several blocks and a partial last one
+    nside = 32
+    rng = np.random.default_rng(5)
+    p = rng.random(12 * nside * nside)
+    cols = {"DISTMU": rng.uniform(50, 150, p.size), "DISTSIGMA": rng.uniform(5, 30, p.size),
+            "DISTNORM": rng.uniform(0, 1e-4, p.size)}
+    path = write_flat(tmp_path / "d.fits", p / p.sum(), nside, columns=cols)
+    ref = fits.getdata(path, 1)
+    m = load_skymap(path)
+    assert np.array_equal(m.prob, ref["PROB"] / ref["PROB"].sum())
+    for name, arr in (("DISTMU", m.distmu_mpc), ("DISTSIGMA", m.distsigma_mpc), ("DISTNORM", m.distnorm_per_mpc2)):
+        assert arr.dtype == np.float32 and np.array_equal(arr, ref[name].astype(np.float32))
+    # the distance moments come from the float64 columns: as the direct sum over all pixels at once
+    mom = truncated_power_moments(ref["DISTMU"], ref["DISTSIGMA"], 4)
+    w = m.prob / m.prob.sum()
+    mean = float(np.sum(w * mom[3] / mom[2]))
+    std = math.sqrt(float(np.sum(w * mom[4] / mom[2])) - mean ** 2)
+    assert m.distance_moments_mpc() == pytest.approx((mean, std), rel=1e-12)
+    # the same bytes gzip-compressed are read the same
+    (tmp_path / "d.fits.gz").write_bytes(gzip.compress(path.read_bytes()))
+    z = load_skymap(tmp_path / "d.fits.gz")
+    assert np.array_equal(z.prob, m.prob) and np.array_equal(z.distmu_mpc, m.distmu_mpc)
+    # a vector column (64 values per row, an older HEALPix layout) holds the pixels row after row
+    hdu = fits.BinTableHDU.from_columns([fits.Column(name="PROB", format="64D", array=(p / p.sum()).reshape(-1, 64))])
+    hdu.header.update({"PIXTYPE": "HEALPIX", "ORDERING": "NESTED", "NSIDE": nside, "INDXSCHM": "IMPLICIT"})
+    fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(tmp_path / "v.fits")
+    assert np.array_equal(load_skymap(tmp_path / "v.fits").prob, m.prob)
+
+
+def test_flat_map_keeps_no_per_pixel_arrays(tmp_path):
+    from astropy_healpix import healpix_to_xyz
+
+    nside = 16
+    rng = np.random.default_rng(3)
+    p = rng.random(12 * nside * nside)
+    m = load_skymap(write_flat(tmp_path / "f.fits", p / p.sum(), nside))
+    assert all(m.__dict__[k] is None for k in ("_xyz", "_level", "_ipix")) and m.implied_level == 4
+    assert m.area_sr.strides == (0,)  # one broadcast value
+    # built on request, equal to astropy-healpix's centres (the reference) and the NESTED indices
+    assert np.array_equal(m.xyz, np.stack(healpix_to_xyz(np.arange(p.size), nside, order="nested")))
+    assert np.array_equal(m.ipix, np.arange(p.size)) and np.all(m.level == 4) and m.max_level == 4
+    # HEALPix pixels all have the area 4 pi / Npix (Gorski et al. 2005, ApJ 622, 759, sec. 4)
+    assert np.allclose(m.area_sr, 4 * math.pi / p.size, rtol=1e-15)
+    # the peak found block by block is the first pixel of highest density, as np.argmax over the whole map
+    k = int(np.argmax(m.density_per_sr))
+    x, y, z = m.xyz[:, k]
+    assert m.peak_radec_deg() == pytest.approx((math.degrees(math.atan2(y, x)) % 360.0, math.degrees(math.asin(z))),
+                                               abs=1e-12)
+
+
+@pytest.mark.parametrize("kind", ["lumpy", "plateaus", "sparse", "multi-order"])
+@pytest.mark.parametrize("first_cut", ["histogram", "too high"])
+def test_credible_region_prefix_equals_the_full_sort(tmp_path, monkeypatch, kind, first_cut):
+    from kncast.planner.events.skymap import SkyMap
+
+    if first_cut == "too high":  # the threshold is then lowered until its pixels hold the level
+        monkeypatch.setattr(SkyMap, "_density_cut", lambda self, level: float(self.density_per_sr.max()))
+    nside = 32
+    rng = np.random.default_rng(17)
+    if kind == "lumpy":
+        p = rng.random(12 * nside * nside) ** 12
+    elif kind == "plateaus":  # many equal densities: ties kept in index order, as the stable sort does
+        p = rng.integers(1, 6, 12 * nside * nside).astype(float) ** 4
+    else:
+        p = np.where(rng.random(12 * nside * nside) < 0.01, rng.random(12 * nside * nside), 0.0)
+    p /= p.sum()
+    if kind == "multi-order":
+        p = cap_prob(nside, dec_max_deg=-30) * (1 + (nested_xyz(nside)[0] > 0))
+        p /= p.sum()
+        m = load_skymap(write_uniq(tmp_path / "m.fits", *merged_uniq(p, nside)))
+        assert m.implied_level is None and len(np.unique(m.level)) == 2
+    else:
+        m = load_skymap(write_flat(tmp_path / f"{kind}.fits", p, nside))
+    for level in (0.1, 0.5, 0.9, 0.99, 1.0):
+        ref = _reference_credible_mask(m, level)
+        assert np.array_equal(m.credible_mask(level), ref)
+        assert m.credible_area_deg2(level) == float(np.sum(m.area_sr[ref]) * (180 / math.pi) ** 2)
