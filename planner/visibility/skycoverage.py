@@ -272,11 +272,12 @@ def _parent_bounds(centre, margin, ctx):
         inside[a:b] = sin_alt >= threshold(floor + margin)
         outside[a:b] = sin_alt < threshold(floor - margin)
         if hz is not None:  # children pass where alt >= the profile at their azimuth too
-            alt = np.arcsin(np.clip(sin_alt, -1.0, 1.0))
-            lo_rad, hi_rad = _profile_bounds(hz, alt, margin, dot_rows(east[a:b], centre),
-                                             dot_rows(north[a:b], centre))
-            inside[a:b] &= alt - margin >= hi_rad
-            outside[a:b] |= alt + margin < lo_rad
+            r, c = _profile_band(sin_alt, margin, outside[a:b], hz)
+            alt, m = np.arcsin(np.clip(sin_alt[r, c], -1.0, 1.0)), margin[c]
+            on = lambda v: np.einsum("ij,ji->i", v[a + r], centre[:, c])  # noqa: E731
+            lo_rad, hi_rad = _profile_bounds(hz, alt, m, on(east), on(north))
+            inside[a + r, c] &= alt - m >= hi_rad
+            outside[a + r, c] |= alt + m < lo_rad
         if ctx.moon_rule:
             cos_sep = dot_rows(moon[a:b], centre)
             inside[a:b] &= cos_sep < cos_in
@@ -350,6 +351,13 @@ def _hier_level(skymap: SkyMap):
     if np.any(groups[:, 0] % kids) or np.any(np.diff(groups, axis=1) != 1):
         return None
     return int(skymap.level[0])
+
+
+def _profile_band(sin_alt, margin, outside, hz):
+    """(rows, columns) of the points whose bound the horizon profile can change: not already below the floor,
+    and less than ``margin`` above the profile's highest point (higher up, every child clears the profile)."""
+    top = math.radians(float(hz.altitude_deg.max()))
+    return np.nonzero(~outside & (sin_alt < np.sin(np.minimum(top + margin, 0.5 * math.pi))))
 
 
 def _profile_bounds(hz, alt, margin, east, north):
@@ -434,9 +442,12 @@ def _test_pairs(parent, k, groups, sub, ctx: _Hier, hz):
     inside = alt - margin >= floor
     outside = alt + margin < floor
     if hz is not None:
-        lo_rad, hi_rad = _profile_bounds(hz, alt, margin, dot(east), dot(north))
-        inside &= alt - margin >= hi_rad
-        outside |= alt + margin < lo_rad
+        r, c = _profile_band(np.sin(alt), margin, outside, hz)
+        m = margin[r, c]
+        on = lambda v: np.einsum("ij,ji->i", v[k[r]], centre[:, r, c])  # noqa: E731
+        lo_rad, hi_rad = _profile_bounds(hz, alt[r, c], m, on(east), on(north))
+        inside[r, c] &= alt[r, c] - m >= hi_rad
+        outside[r, c] |= alt[r, c] + m < lo_rad
     if ctx.moon_rule:
         cos_sep, limit = dot(moon), math.radians(ctx.moon_rule)
         inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
