@@ -264,6 +264,11 @@ class SkyMap:
         (area-weighted) into their parent.
         """
         values = np.asarray(values, dtype=float)
+        flat = self.implied_level
+        if flat is not None:  # pixel k is NESTED k: its children (or its parent's group) are contiguous
+            if level >= flat:
+                return np.repeat(values, 4 ** (level - flat))
+            return values.reshape(-1, 4 ** (flat - level)).mean(axis=1)
         out = np.zeros(12 * 4 ** level)
         weight = np.zeros_like(out)
         coarse = self.level <= level

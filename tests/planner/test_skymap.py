@@ -462,6 +462,12 @@ def test_flat_map_keeps_no_per_pixel_arrays(tmp_path):
     # built on request, equal to astropy-healpix's centres (the reference) and the NESTED indices
     assert np.array_equal(m.xyz, np.stack(healpix_to_xyz(np.arange(p.size), nside, order="nested")))
     assert np.array_equal(m.ipix, np.arange(p.size)) and np.all(m.level == 4) and m.max_level == 4
+    # resampling without per-pixel arrays equals the general path on the same pixels given explicitly
+    explicit = dataclasses.replace(m, xyz=m.xyz, level=m.level, ipix=m.ipix)
+    assert explicit.implied_level is None
+    for level in (2, 4, 6):
+        assert np.allclose(m.resample_nested(m.density_per_sr, level),
+                           explicit.resample_nested(explicit.density_per_sr, level), rtol=1e-13, atol=0)
     # HEALPix pixels all have the area 4 pi / Npix (Gorski et al. 2005, ApJ 622, 759, sec. 4)
     assert np.allclose(m.area_sr, 4 * math.pi / p.size, rtol=1e-15)
     # the peak found block by block is the first pixel of highest density, as np.argmax over the whole map
