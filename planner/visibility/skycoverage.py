@@ -212,8 +212,10 @@ def _accumulate(skymap: SkyMap, vis, cols: _Columns, records, obs: np.ndarray | 
     4^HIER_DEPTH children of a parent pixel are contiguous, and all lie within an angle r (measured
     on the map) of the parent's centre.  At a sample, a parent whose centre stands more than r (+
     HIER_EPS_RAD) above the floor and away from the Moon limit passes all its children; one more than
-    r below them fails them all; only the other (parent, sample) pairs are tested child by child,
-    exactly as :func:`_accumulate_direct` tests every pixel.  Other maps go to that function.
+    r below them fails them all.  In the other (parent, sample) pairs the same test runs on groups of
+    4^HIER_SUB_DEPTH children, and only the children of the groups still undecided are tested one by
+    one, exactly as :func:`_accumulate_direct` tests every pixel.  Blocks of parents run on up to
+    COVERAGE_THREADS threads and are summed in block order.  Other maps go to that function.
     """
     level = _hier_level(skymap)
     if level is None or level < HIER_MIN_LEVEL:
@@ -452,7 +454,6 @@ def _test_pairs(parent, k, groups, sub, ctx: _Hier, hz):
         cos_sep, limit = dot(moon), math.radians(ctx.moon_rule)
         inside &= cos_sep < np.cos(np.minimum(limit + margin, math.pi))
         outside |= cos_sep > np.cos(np.maximum(limit - margin, 0.0))
-    per, n_sub = groups.shape[3], inside.shape[1]
     first = np.r_[True, parent[1:] != parent[:-1]]
     local = np.cumsum(first) - 1  # the pair's parent among those hit
     whole = np.add.reduceat(inside.view(np.uint8), np.flatnonzero(first), axis=0, dtype=np.uint16)

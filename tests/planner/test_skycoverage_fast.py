@@ -111,8 +111,6 @@ def test_threads_and_explicit_pixels_give_the_same_totals(tmp_path, monkeypatch)
 
 def test_full_resolution_map_coarse_to_fine_equals_sample_by_sample(monkeypatch):
     """A synthetic nside-1024 map (12.6 M pixels, invented: blobs of probability), built in memory."""
-    import dataclasses
-
     from astropy_healpix import healpix_to_xyz
 
     from kncast.planner.events.skymap import SkyMap
@@ -137,8 +135,8 @@ def test_full_resolution_map_coarse_to_fine_equals_sample_by_sample(monkeypatch)
     # every 64th parent (whole parents of 256 children): the coarse-to-fine path against the direct kernel
     kids = 4 ** cov.HIER_DEPTH
     sub = (np.arange(0, skymap.npix // kids, 64)[:, None] * kids + np.arange(kids)).ravel()
-    part = SkyMap(path="synthetic", ordering="NESTED", coordsys="C", xyz=np.stack(healpix_to_xyz(sub, nside, order="nested")),
-                  prob=prob[sub], level=np.full(sub.size, level), ipix=sub)
+    part = SkyMap(path="synthetic", ordering="NESTED", coordsys="C", prob=prob[sub], level=np.full(sub.size, level),
+                  ipix=sub, xyz=np.stack(healpix_to_xyz(sub, nside, order="nested")))
     assert cov._hier_level(part) == level
     fast = _run(monkeypatch, cov._accumulate, part, sites, **kw)
     ref = _run(monkeypatch, cov._accumulate_direct, part, sites, **kw)
