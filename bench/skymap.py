@@ -33,8 +33,8 @@ on ``COVERAGE_THREADS`` threads: a busy machine slows it).  Last line: ``RESULT 
 max_prob_diff=...``.
 
 Measured on the 2-core development machine (issue 19): 26-31 s and 1546 MiB before (whole-map arrays
-kept per pixel, the full credible-region sort, parents refined child by child on one thread); 7.4 s and
-490 MiB after, with max_prob_diff 1.4e-17.
+kept per pixel, the full credible-region sort, parents refined child by child on one thread); 6.2-6.9 s
+and 447-456 MiB after (8.7 s and 408 MiB with COVERAGE_THREADS = 1), with max_prob_diff 1.4e-17.
 """
 from __future__ import annotations
 
