@@ -28,6 +28,7 @@ REFERENCES = (FITZPATRICK_1999, FITZPATRICK_MASSA_2009)
 R_V = 3.1
 X_MIN_PER_MICRON, X_MAX_PER_MICRON = 0.3, 10.0  # F99 validity in dust_extinction
 IR_POWER_LAW_INDEX = 1.84  # Fitzpatrick & Massa 2009 near-IR slope (from memory)
+CACHED_GRIDS, CACHED_GRID_SIZE = 64, 65536  # wavelength grids (of at most that many points) whose curve is kept
 
 
 @functools.lru_cache(maxsize=1)
@@ -38,8 +39,22 @@ def _f99():
 
 
 def a_lambda_over_a_v(wavelength_A):
-    """A(lambda)/A(V) of F99 (R_V = 3.1) at vacuum wavelengths in Angstrom, any shape."""
-    lam = np.asarray(wavelength_A, dtype=float)
+    """A(lambda)/A(V) of F99 (R_V = 3.1) at vacuum wavelengths in Angstrom, any shape.
+
+    A plan asks for the same wavelength grids many times, and each evaluation of the law builds its
+    model anew (~1.5 ms): results are kept per grid (the exact values, by the grid's bytes)."""
+    lam = np.ascontiguousarray(wavelength_A, dtype=float)
+    if lam.size > CACHED_GRID_SIZE:
+        return _ratio(lam)
+    return _cached_ratio(lam.shape, lam.tobytes()).copy()
+
+
+@functools.lru_cache(maxsize=CACHED_GRIDS)
+def _cached_ratio(shape: tuple, grid_bytes: bytes) -> np.ndarray:
+    return _ratio(np.frombuffer(grid_bytes, dtype=float).reshape(shape))
+
+
+def _ratio(lam: np.ndarray) -> np.ndarray:
     x = 1e4 / lam  # micron^-1
     xc = np.clip(x, X_MIN_PER_MICRON, X_MAX_PER_MICRON)
     flat = xc.ravel()

@@ -332,3 +332,20 @@ def test_default_line_forming_velocity_matches_published_spectral_fits(name):
     lo, hi = FIT_V_3_5D_C
     assert np.all((ep.v_phot_c[1:] >= lo) & (ep.v_phot_c[1:] <= hi)), ep.v_phot_c
     assert np.all(np.diff(ep.v_phot_c) <= 0)   # receding, never accelerating
+
+
+def test_f99_kept_per_grid_equals_the_law_on_every_call():
+    # Reference library: dust_extinction.parameter_averages.F99; the values kept for a grid are the law's
+    # own, on the first and the repeated call, for a grid kept and one too large to keep, and a copy is
+    # returned (changing it changes nothing kept)
+    from dust_extinction.parameter_averages import F99
+
+    from kncast.forecast import extinction
+
+    small = np.linspace(1100.0, 33000.0, 700)
+    large = np.linspace(1100.0, 33000.0, extinction.CACHED_GRID_SIZE + 1)
+    for wave in (small, large):
+        ref = F99(Rv=3.1)(wave * u.AA)
+        first = extinction.a_lambda_over_a_v(wave)
+        first[:] = -1.0
+        assert np.allclose(extinction.a_lambda_over_a_v(wave), ref, rtol=1e-12)
