@@ -55,14 +55,35 @@ class Block:
 def plan_blocks(plan) -> list[Block]:
     """Every planned block of ``plan``, in time order."""
     refs = {r.id: r for r in plan.setup_refs}
-    out = []
-    for p in plan.nights:
-        for o in getattr(p, "choices", []) or []:
-            out.append(_block(plan, p, o, refs[o.setup]))
+    chosen = [(p, o) for p in plan.nights for o in getattr(p, "choices", []) or []]
+    fluxes = _reference_fluxes(plan, chosen)
+    out = [_block(plan, p, o, refs[o.setup], f) for (p, o), f in zip(chosen, fluxes)]
     return sorted(out, key=lambda b: b.start_mjd)
 
 
-def _block(plan, p, o, ref) -> Block:
+def _reference_record(o) -> dict | None:
+    """The feature record of ``o``'s reference feature, when it has a place to measure it."""
+    if o.feature is None:
+        return None
+    rec = next(f for f in o.features if f["id"] == o.feature)
+    return rec if rec["measured_A"] is not None else None
+
+
+def _reference_fluxes(plan, chosen: list) -> list:
+    """Source F_lambda (erg s^-1 cm^-2 A^-1) at each choice's reference trough and epoch (None without one),
+    all in one evaluation of the source."""
+    rows = [(k, p.phase_d, rec["measured_A"]) for k, (p, o) in enumerate(chosen)
+            if (rec := _reference_record(o)) is not None]
+    out = [None] * len(chosen)
+    if rows:
+        k, phase, lam = (np.array(v) for v in zip(*rows))
+        flux = plan.transient.flux_flam_rows(phase.astype(float), lam.astype(float)[:, None])
+        for i, f in zip(k, flux[:, 0]):
+            out[int(i)] = float(f)
+    return out
+
+
+def _block(plan, p, o, ref, flux) -> Block:
     w = p.window
     # a detection block holds the exposures reaching the target significance; a classification block
     # (nothing detected yet) takes the usable time
@@ -75,7 +96,7 @@ def _block(plan, p, o, ref) -> Block:
     b = Block(night=p, outcome=o, start_mjd=t0, end_mjd=t0 + length_d, n_exp=n_exp, exp_s=on_source / n_exp,
               kind="detection" if o.detected else "classification")
     _through_the_block(plan, p, b)
-    _exposure_figures(plan, p, o, ref, b, on_source)
+    _exposure_figures(plan, p, o, ref, b, on_source, flux)
     _refraction(p, ref, b)
     _standard_hint(plan, p, b)
     return b
@@ -105,23 +126,21 @@ def _through_the_block(plan, p, b: Block) -> None:
     b.parallactic_angle_deg = [round(float(v), 1) for v in q]
 
 
-def _exposure_figures(plan, p, o, ref, b: Block, on_source: float) -> None:
-    """Continuum S/N per bin and significance of this exposure at the reference trough."""
-    if o.feature is None:
+def _exposure_figures(plan, p, o, ref, b: Block, on_source: float, flux) -> None:
+    """Continuum S/N per bin and significance of this exposure at the reference trough, where the source
+    has F_lambda ``flux`` (None: no reference trough to measure)."""
+    rec = _reference_record(o)
+    if rec is None:
         return
     from kncast.forecast import exposure
     from kncast.forecast.detect import bin_width_A, significance, snr_per_bin
     from kncast.planner.observation import batched_conditions
 
-    rec = next(f for f in o.features if f["id"] == o.feature)
-    if rec["measured_A"] is None:
-        return
     lam = np.array([rec["measured_A"]])
     atm = plan.atmospheres[p.site.id]
     cond = batched_conditions([p.window], atm)
     grid = exposure.setup_grid(ref.telescope, ref.instrument, ref.setup, wavelength_A=lam)
-    flux = plan.transient.flux_flam(np.array([p.phase_d]), lam)
-    r = exposure.rates(flux, grid, cond, plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm))
+    r = exposure.rates(np.array([[flux]]), grid, cond, plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm))
     res = exposure.expose(r, on_source, b.n_exp)
     s_bin = float(np.ravel(snr_per_bin(res.snr_per_pixel, r.dispersion_A_per_pix, bin_width_A(
         lam, plan.settings["bin_kms"])))[0])
