@@ -191,5 +191,22 @@ def _say(line: str) -> None:
         print(line, file=sys.stderr)
 
 
+def run() -> None:
+    """The ``kncast`` program: :func:`main`, the exit handlers, then the end of the process with main's status.
+
+    Every output file is written and closed when main returns (atomic writes), and the exit handlers
+    (``atexit``: multiprocessing, logging) run as at a normal exit; only the interpreter's own teardown
+    is skipped, which frees the run's objects one by one (0.3 s after a plan, measured) for nothing.
+    """
+    import atexit
+
+    status = main()
+    atexit._run_exitfuncs()
+    for stream in (sys.stdout, sys.stderr):
+        with contextlib.suppress(OSError, ValueError):  # a closed pipe or terminal: nothing left to say
+            stream.flush()
+    os._exit(status)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    run()
