@@ -35,10 +35,10 @@ def run(args) -> int:
     skymap, notices = _load(args.map)
     for line in notices:
         print(f"kncast coverage: warning: {line}", file=sys.stderr)
-    from kncast.planner.visibility.skycoverage import compute_coverage
+    from kncast.planner.visibility.skycoverage import FIRST_NIGHTS, compute_coverage
 
     result = compute_coverage(skymap, sites, t0, **night_rules_from_args(args), step_min=args.step,
-                              pixel_flags=bool(args.plot))
+                              pixel_flags=FIRST_NIGHTS if args.plot else False)  # the chart's nights only
     doc = coverage_document(result, t0)
     fig = None
     if args.plot:

@@ -257,18 +257,29 @@ class SkyMap:
             sums += _moment_sums(self.prob[sl], self.distmu_mpc[sl], self.distsigma_mpc[sl])
         return _moments(sums, self.header_distance_mpc)
 
+    def density_at(self, level: int) -> np.ndarray:
+        """Probability density (per sr) averaged over each pixel of the flat NESTED grid of HEALPix order
+        ``level``: for a flat map at least as fine, the probability inside it over its area, without a
+        whole-map density array; otherwise :meth:`resample_nested` of :attr:`density_per_sr`."""
+        flat = self.implied_level
+        if flat is not None and level <= flat:
+            prob = self.prob.reshape(-1, 4 ** (flat - level)).sum(axis=1)
+            return prob / (4.0 * np.pi / prob.size)
+        return self.resample_nested(self.density_per_sr, level)
+
     def resample_nested(self, values, level: int) -> np.ndarray:
         """An intensive per-pixel quantity (density, fraction) on the flat NESTED grid of ``level``.
 
         Coarser pixels are repeated over their children; finer ones are averaged
         (area-weighted) into their parent.
         """
-        values = np.asarray(values, dtype=float)
         flat = self.implied_level
         if flat is not None:  # pixel k is NESTED k: its children (or its parent's group) are contiguous
+            values = np.asarray(values)  # flags stay bool: averaged into float64 at the coarse level only
             if level >= flat:
-                return np.repeat(values, 4 ** (level - flat))
-            return values.reshape(-1, 4 ** (flat - level)).mean(axis=1)
+                return np.repeat(values.astype(float, copy=False), 4 ** (level - flat))
+            return values.reshape(-1, 4 ** (flat - level)).mean(axis=1, dtype=float)
+        values = np.asarray(values, dtype=float)
         out = np.zeros(12 * 4 ** level)
         weight = np.zeros_like(out)
         coarse = self.level <= level

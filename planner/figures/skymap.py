@@ -9,6 +9,8 @@ x nights with the observable probability and probability-weighted hours.
 """
 from __future__ import annotations
 
+import textwrap
+
 import numpy as np
 
 from kncast.planner.figures.palette import SERIES
@@ -16,6 +18,7 @@ from kncast.planner.figures.text import plain
 
 PLOT_LEVEL_MAX = 7  # resample to at most nside 128 for drawing
 RA_STEP_DEG, DEC_STEP_DEG = 1.0, 1.0
+ROW_IN = 0.5  # height of one site's row in the table panel (two lines of 9 pt text)
 
 
 def coverage_figure(result):
@@ -29,8 +32,8 @@ def coverage_figure(result):
     level = min(skymap.max_level, PLOT_LEVEL_MAX)
     sites = result.sites
     n_nights = int(result.settings["nights"])
-    fig = plt.figure(figsize=(11.0, 6.2 + 0.28 * len(sites)))
-    grid = fig.add_gridspec(2, 1, height_ratios=[3.2, 0.6 + 0.28 * len(sites)], hspace=0.12)
+    fig = plt.figure(figsize=(11.0, 6.2 + ROW_IN * len(sites)))
+    grid = fig.add_gridspec(2, 1, height_ratios=[3.2, 0.6 + ROW_IN * len(sites)], hspace=0.12)
     ax = fig.add_subplot(grid[0], projection="mollweide")
     _sky_panel(ax, result, level)
     _table_panel(fig.add_subplot(grid[1]), result, sites, n_nights)
@@ -40,10 +43,14 @@ def coverage_figure(result):
 
 def _raster(skymap, values, level):
     """(x, y, image) of an intensive per-pixel quantity on an RA/Dec grid for pcolormesh/contour."""
+    return _raster_at(skymap.resample_nested(values, level), level)
+
+
+def _raster_at(flat, level):
+    """(x, y, image) of values on the flat NESTED grid of HEALPix order ``level``."""
     from astropy_healpix import lonlat_to_healpix
     import astropy.units as u
 
-    flat = skymap.resample_nested(values, level)
     ra = np.arange(0.0, 360.0, RA_STEP_DEG) + RA_STEP_DEG / 2  # cell centres: no duplicate at the seam
     dec = np.arange(-90.0, 90.0 + DEC_STEP_DEG / 2, DEC_STEP_DEG)
     rr, dd = np.meshgrid(ra, np.clip(dec, -89.999, 89.999))
@@ -56,11 +63,15 @@ def _raster(skymap, values, level):
     return x, np.radians(dec), image[:, order]
 
 
-def _credible_levels(skymap) -> np.ndarray:
-    """For each pixel, the probability of all pixels at least as dense (0 at the peak, 1 at the floor)."""
-    order = np.argsort(-skymap.density_per_sr, kind="stable")
-    cum = np.empty(skymap.npix)
-    cum[order] = np.cumsum(skymap.prob[order])
+def _credible_levels(skymap, level: int) -> np.ndarray:
+    """For each pixel of the drawing grid (HEALPix order ``level``, NESTED), the probability of all pixels
+    at least as dense (0 at the peak, 1 at the floor): the credible regions as drawn, without sorting the
+    whole map (12.6 M pixels at nside 1024)."""
+    density = skymap.density_at(level)
+    prob = density * (4.0 * np.pi / density.size)  # equal-area pixels
+    order = np.argsort(-density, kind="stable")
+    cum = np.empty(density.size)
+    cum[order] = np.cumsum(prob[order])
     return cum
 
 
@@ -69,18 +80,18 @@ def _sky_panel(ax, result, level):
     from matplotlib.colors import PowerNorm
 
     skymap = result.skymap
-    x, y, density = _raster(skymap, skymap.density_per_sr, level)
+    x, y, density = _raster_at(skymap.density_at(level), level)
     first = _first_nights(result)
     colours = lambda k: SERIES[k % len(SERIES)]  # noqa: E731
     masks = []
     for k, rec_index in enumerate(first.values()):  # underneath everything: each site's observable sky, shaded
-        _, _, img = _raster(skymap, result.observable[:, rec_index].astype(float), level)
+        _, _, img = _raster(skymap, result.flags_of(rec_index), level)
         masks.append(img)
         if np.nanmax(img) >= 0.5:
             ax.contourf(x, y, img, levels=[0.5, 1.01], colors=[colours(k)], alpha=max(0.05, 0.3 / len(first)))
     masked = np.ma.masked_less_equal(density, 0.01 * float(density.max()))  # faint tail left transparent
     ax.pcolormesh(x, y, masked, cmap="Purples", norm=PowerNorm(0.5, vmin=0.0), shading="nearest", rasterized=True)
-    _, _, cred = _raster(skymap, _credible_levels(skymap), level)
+    _, _, cred = _raster_at(_credible_levels(skymap, level), level)
     cs = ax.contour(x, y, cred, levels=[0.5, 0.9], colors=["#111111", "#555555"], linewidths=[1.2, 0.9],
                     linestyles=["solid", "dashed"])
     ax.clabel(cs, fmt={0.5: "50%", 0.9: "90%"}, fontsize=9)
@@ -106,11 +117,9 @@ def _sky_panel(ax, result, level):
 
 def _first_nights(result) -> dict[str, int]:
     """Per site, the index of its first night record with dark time after t0."""
-    out: dict[str, int] = {}
-    for k, rec in enumerate(result.nights):
-        if rec.samples > 0 and rec.site.id not in out:
-            out[rec.site.id] = k
-    return out
+    from kncast.planner.visibility.skycoverage import first_nights
+
+    return first_nights(result.nights)
 
 
 def _table_panel(ax, result, sites, n_nights):
@@ -124,9 +133,9 @@ def _table_panel(ax, result, sites, n_nights):
         j = seen[rec.site.id] = seen.get(rec.site.id, -1) + 1
         if rec.samples:
             prob[i, j] = rec.observable_probability
-            text[i][j] = f"{rec.night:%m-%d}  P {rec.observable_probability:.2f}  {rec.weighted_hours:.1f} h"
+            text[i][j] = f"{rec.night:%m-%d}\nP {rec.observable_probability:.2f}, {rec.weighted_hours:.1f} h"
         else:
-            text[i][j] = f"{rec.night:%m-%d}  {rec.note or 'no dark time'}"
+            text[i][j] = f"{rec.night:%m-%d}\n" + textwrap.fill(rec.note or "no dark time", 18)
     ax.imshow(np.nan_to_num(prob, nan=0.0), aspect="auto", cmap="YlGn", vmin=0.0, vmax=1.0)
     for i in range(len(ids)):
         for j in range(n_nights):

@@ -84,8 +84,13 @@ class CoverageResult:
     skymap: SkyMap
     sites: list
     nights: list[CoverageNight]
-    observable: np.ndarray | None  # bool (n_pixels, len(nights)); None with pixel_flags=False
+    observable: np.ndarray | None  # bool (n_pixels, len(flag_nights)); None with pixel_flags=False
     settings: dict
+    flag_nights: tuple = ()  # the index in ``nights`` of each column of ``observable``
+
+    def flags_of(self, night_index: int) -> np.ndarray:
+        """Per pixel, whether night record ``night_index`` can observe it (kept by ``pixel_flags``)."""
+        return self.observable[:, self.flag_nights.index(night_index)]
 
     def best(self) -> CoverageNight | None:
         return max(self.nights, key=lambda n: n.observable_probability, default=None)
@@ -108,8 +113,9 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
                      start_date=None) -> CoverageResult:
     """Observable probability, probability-weighted hours and observable 90 % area per site and night.
 
-    ``pixel_flags=False`` skips keeping the per-pixel observable flags (``observable`` is then None),
-    which only charts need.
+    ``pixel_flags``: which per-pixel observable flags to keep (only charts need them): True, every
+    night record's; ``"first"`` (FIRST_NIGHTS), each site's first night with dark time (what the sky
+    chart draws; at nside 1024 each kept night holds 12.6 MB); False, none (``observable`` is None).
     """
     from kncast.planner.events.model import Event
     from kncast.planner.visibility.core import compute_visibility
@@ -123,13 +129,54 @@ def compute_coverage(skymap: SkyMap, sites, t0: Time, nights: int = 1, twilight:
                              max_airmass=max_airmass, min_moon_sep_deg=min_moon_sep_deg)
     sites = vis.sites
     cols, records = sample_dark_time(vis, step_min)
-    obs = np.zeros((skymap.npix, len(records)), dtype=bool) if pixel_flags else None
+    kept = _flag_nights(records, pixel_flags)
+    obs = _PixelFlags(np.zeros((skymap.npix, len(kept)), dtype=bool), kept, len(records)) if pixel_flags else None
     if cols.mjd.size:
         _accumulate(skymap, vis, cols, records, obs)
     settings = vis.settings()
     settings.pop("target", None)
     settings.update(step_min=float(step_min), credible_level=CREDIBLE_LEVEL)
-    return CoverageResult(skymap=skymap, sites=sites, nights=records, observable=obs, settings=settings)
+    return CoverageResult(skymap=skymap, sites=sites, nights=records, observable=None if obs is None else obs.array,
+                          settings=settings, flag_nights=tuple(kept))
+
+
+FIRST_NIGHTS = "first"  # pixel_flags: each site's first night record with dark time
+
+
+def first_nights(records) -> dict:
+    """Per site id, the index of its first night record with dark time (samples > 0)."""
+    out: dict = {}
+    for k, rec in enumerate(records):
+        if rec.samples > 0 and rec.site.id not in out:
+            out[rec.site.id] = k
+    return out
+
+
+def _flag_nights(records, pixel_flags) -> list[int]:
+    if pixel_flags == FIRST_NIGHTS:
+        return sorted(first_nights(records).values())
+    if pixel_flags is True:
+        return list(range(len(records)))
+    if pixel_flags is False:
+        return []
+    raise ParameterError("pixel_flags", pixel_flags, f"True, False or {FIRST_NIGHTS!r}")
+
+
+class _PixelFlags:
+    """Per-pixel observable flags of the kept night records (``array`` columns in ``kept`` order)."""
+
+    def __init__(self, array: np.ndarray, kept: list[int], n_records: int):
+        self.array = array
+        self.column = np.full(n_records, -1)
+        self.column[kept] = np.arange(len(kept))
+
+    def wanted(self, seg_record: np.ndarray) -> np.ndarray:
+        """Which segments (by their night record) have flags to keep."""
+        return self.column[seg_record] >= 0
+
+    def put(self, sl, seg_record: np.ndarray, seen: np.ndarray) -> None:
+        """Store ``seen`` (n_wanted_segments, m): the flags of pixels ``sl`` for the wanted segments."""
+        self.array[sl, self.column[seg_record[self.wanted(seg_record)]]] = seen.T
 
 
 def sample_dark_time(vis, step_min: float):
@@ -319,7 +366,7 @@ def _hier_chunk(skymap, sl, mask90, ctx, seg_hz, seg_record, obs) -> np.ndarray:
     parent_w = weights.reshape(-1, kids, 2).sum(axis=1)  # (n_parents, 2)
     seen_parent = np.einsum("sp,pc->sc", (in_count > 0).astype(np.float64), parent_w)
     if obs is not None:
-        obs[sl, seg_record] = (count > 0).T
+        obs.put(sl, seg_record, (count > 0)[obs.wanted(seg_record)])
     return np.stack([seen_parent[:, 0] + sums[:, 0], seen_parent[:, 1] + sums[:, 1],
                      np.einsum("sp,p->s", in_count.astype(np.float64), parent_w[:, 0]) + sums[:, 2]], axis=1)
 
@@ -513,7 +560,7 @@ def _accumulate_direct(skymap: SkyMap, vis, cols: _Columns, records, obs: np.nda
         count = np.stack([ok[a:b].view(np.uint8).sum(axis=0, dtype=np.uint16) for a, b in zip(seg_start, seg_end)])
         seen = count > 0
         if obs is not None:
-            obs[sl, seg_record] = seen.T
+            obs.put(sl, seg_record, seen[obs.wanted(seg_record)])
         p = skymap.prob[sl]
         prob_obs += np.where(seen, p, 0.0).sum(axis=1)
         hours += (count * p).sum(axis=1) * dt_h

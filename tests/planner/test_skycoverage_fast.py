@@ -145,3 +145,17 @@ def test_full_resolution_map_coarse_to_fine_equals_sample_by_sample(monkeypatch)
         assert a.observable_probability == pytest.approx(b.observable_probability, abs=1e-6)
         assert a.weighted_hours == pytest.approx(b.weighted_hours, abs=1e-6 * max(a.dark_hours, 1.0))
         assert a.area90_observable_deg2 == pytest.approx(b.area90_observable_deg2, abs=1e-3)
+
+
+@pytest.mark.parametrize("kernel", ["_accumulate", "_accumulate_direct"])
+def test_first_night_flags_are_those_columns_of_all_flags(tmp_path, monkeypatch, kernel):
+    # the sky chart keeps only each site's first dark night: the same flags as keeping every night's
+    skymap = _map(tmp_path / "m.fits", 64 if kernel == "_accumulate_direct" else NSIDE)
+    sites = [s for s in SiteRegistry.load().select() if s.id in ("la-palma", "paranal", "hanle")]
+    every = _run(monkeypatch, getattr(cov, kernel), skymap, sites, nights=3)
+    first = _run(monkeypatch, getattr(cov, kernel), skymap, sites, nights=3, pixel_flags=cov.FIRST_NIGHTS)
+    kept = sorted(cov.first_nights(every.nights).values())
+    assert first.flag_nights == tuple(kept) and first.observable.shape == (skymap.npix, len(kept))
+    for k in kept:
+        assert np.array_equal(first.flags_of(k), every.observable[:, k])
+    assert [n.observable_probability for n in first.nights] == [n.observable_probability for n in every.nights]

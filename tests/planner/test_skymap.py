@@ -504,3 +504,21 @@ def test_credible_region_prefix_equals_the_full_sort(tmp_path, monkeypatch, kind
         ref = _reference_credible_mask(m, level)
         assert np.array_equal(m.credible_mask(level), ref)
         assert m.credible_area_deg2(level) == float(np.sum(m.area_sr[ref]) * (180 / math.pi) ** 2)
+
+
+def test_density_at_a_coarser_order_is_the_mean_of_the_finer_densities(tmp_path):
+    # flat map: probability inside each coarse pixel over its area (4 pi / npix sr, equal-area HEALPix
+    # pixels: Gorski et al. 2005, ApJ 622, 759) equals the mean density of its children
+    from astropy.io import fits
+
+    from kncast.planner.events.skymap import load_skymap
+
+    nside = 64
+    prob = np.random.default_rng(2).random(12 * nside * nside)
+    hdu = fits.BinTableHDU.from_columns([fits.Column(name="PROB", format="D", array=prob / prob.sum())])
+    hdu.header.update({"PIXTYPE": "HEALPIX", "ORDERING": "NESTED", "NSIDE": nside, "INDXSCHM": "IMPLICIT"})
+    fits.HDUList([fits.PrimaryHDU(), hdu]).writeto(tmp_path / "m.fits")
+    skymap = load_skymap(tmp_path / "m.fits")
+    for level in (3, 5, 6):
+        np.testing.assert_allclose(skymap.density_at(level), skymap.resample_nested(skymap.density_per_sr, level),
+                                   rtol=1e-12)
