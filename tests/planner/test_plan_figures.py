@@ -108,3 +108,22 @@ def test_feature_maps_follow_the_figure_set(demo_plan):
     assert jobs("all") == [("spectrum-campaign", None)] + [("spectrum", d) for d in days]
     assert folder.figure_path("spectrum", 3) == "figures/spectrum-day03.png"
     assert folder.figure_path("snr", "a/b c") == "figures/snr-a_b_c.png"
+
+
+def test_block_fluxes_in_one_evaluation_equal_one_evaluation_per_block(demo_plan):
+    # the blocks' reference-trough fluxes (one batched evaluation of the source) against the source
+    # evaluated alone at each block's epoch and trough, as the blocks were computed before
+    from kncast.planner.plan import blocks
+
+    chosen = [(p, o) for p in demo_plan.nights for o in getattr(p, "choices", []) or []]
+    fluxes = blocks._reference_fluxes(demo_plan, chosen)
+    checked = 0
+    for (p, o), flux in zip(chosen, fluxes):
+        rec = blocks._reference_record(o)
+        if rec is None:
+            assert flux is None
+            continue
+        alone = demo_plan.transient.flux_flam(np.array([p.phase_d]), np.array([rec["measured_A"]]))[0, 0]
+        assert flux == pytest.approx(float(alone), rel=1e-12)
+        checked += 1
+    assert checked > 10
