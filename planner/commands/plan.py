@@ -89,6 +89,18 @@ def run(args) -> int:
     check_out(out, event.id, force=getattr(args, "force", False))
     if args.ics:
         _common.check_output_file("--ics", args.ics)
+    from kncast.planner.plan.figureserver import FigureServer
+
+    # forked before the progress display starts its thread; loads the figure modules while the plan is built
+    server = FigureServer() if FigureServer.available() else None
+    try:
+        return _plan_and_write(args, event, registry, sites, overrides, out, quiet, server)
+    finally:
+        if server is not None:
+            server.close()
+
+
+def _plan_and_write(args, event, registry, sites, overrides, out: Path, quiet: bool, server) -> int:
     with _common.progress(disable=quiet) as bar:
         task = bar.add_task("planning", total=7)
 
@@ -110,7 +122,7 @@ def run(args) -> int:
                           features=feature_ids(args), snr_at_A=args.snr_at,
                           telluric_threshold=args.telluric_threshold, setups=_common.split_list(args.setups) or None,
                           anchors=anchors_from_args(args, event), draws=args.draws, seed=args.seed, **rules)
-        doc = write_folder(plan, out, say, figures=args.figures)
+        doc = write_folder(plan, out, say, figures=args.figures, server=server)
     if args.ics:
         from kncast.planner.output import atomic_path
         from kncast.planner.plan.exports import blocks_ics
@@ -199,10 +211,11 @@ def previous_plan(out: Path, event_id: str) -> dict | None:
     return doc if ok else None
 
 
-def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen") -> dict:
+def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen", server=None) -> dict:
     """Write every output file of ``plan`` into ``out`` atomically; returns the plan document.
 
-    ``figures`` picks the figure set (kncast.planner.plan.folder.FIGURE_SETS)."""
+    ``figures`` picks the figure set (kncast.planner.plan.folder.FIGURE_SETS); ``server``, a started
+    :class:`~kncast.planner.plan.figureserver.FigureServer`, draws them (else this process's workers)."""
     from kncast.planner.plan import folder as plan_outputs
     from kncast.planner.errors import OptionError
     from kncast.planner.output import atomic_dir, write_json
@@ -212,7 +225,7 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
     except OSError as err:
         raise OptionError("--out", str(out), f"a folder that can be created ({err.strerror})") from None
     say("figures")  # before the figure workers fork (the progress display pauses its thread)
-    with atomic_dir(out) as tmp, plan_outputs.start_figures(plan, tmp, figures) as drawing:
+    with atomic_dir(out) as tmp, _drawing(plan, tmp, figures, server) as drawing:
         files = plan_outputs.write_tables(plan, tmp)  # while the workers draw
         files["figures"] = drawing.paths
         files.update(plan="plan.json", report_md="report.md", report_html="report.html")
@@ -236,6 +249,14 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
 
         write_report(tmp, doc, drawn)
     return doc
+
+
+def _drawing(plan, folder: Path, figures: str, server):
+    """The figures of ``plan`` being drawn into ``folder``: by ``server`` when it can take the plan."""
+    from kncast.planner.plan import folder as plan_outputs
+
+    started = server.start(plan, folder, figures) if server is not None else None
+    return started or plan_outputs.start_figures(plan, folder, figures)
 
 
 def print_summary(plan, doc: dict, out: Path, quiet: bool = False, verbose: bool = False) -> None:
