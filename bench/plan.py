@@ -18,7 +18,8 @@ Then one instrumented run (a fresh process calling the same CLI ``main``) for th
 imports (outermost ``import`` statements, wherever they run), the ephemeris
 (``sky.Ephemeris.build``), the rest of the plan (``build_plan``), the exposure and feature
 measurements (``evaluate_setups``), tables (ECSV and plan.json, written while the figure workers
-draw), figures (starting the workers and then waiting for them: ``FigureRun``), the report, and the rest (interpreter start-up, argument parsing,
+draw), figures (forking the figure process, sending it the plan and waiting for it: ``FigureServer``; or
+the parent's own workers, ``FigureRun``), the report, and the rest (interpreter start-up, argument parsing,
 event and site files, the terminal summary).  Each stage is counted without the stages and imports
 nested in it, so the parts add up to the total.  After the run the same process draws every figure
 of the plan once more, one at a time, and prints the seconds of each (goal: each under 0.25 s at
@@ -166,8 +167,11 @@ def instrumented_main(out: str, report: str) -> None:
     core.evaluate_setups = stages.wrap("exposures", core.evaluate_setups)
     for mod, name in ((folder, "write_tables"), (folder, "document"), (output, "write_json")):
         setattr(mod, name, stages.wrap("tables", getattr(mod, name)))
-    folder.FigureRun.__init__ = stages.wrap("figures", folder.FigureRun.__init__)
-    folder.FigureRun.finish = stages.wrap("figures", folder.FigureRun.finish)
+    from kncast.planner.plan.figureserver import FigureServer
+
+    for cls, names in ((folder.FigureRun, ("__init__", "finish")), (FigureServer, ("__init__", "start", "finish"))):
+        for name in names:
+            setattr(cls, name, stages.wrap("figures", getattr(cls, name)))
     plan_report.write_report = stages.wrap("report", plan_report.write_report)
     plans = []
     build_plan = core.build_plan
@@ -187,6 +191,9 @@ def figure_seconds(plan, out: Path) -> dict[str, float]:
 
     scratch = out.parent / "figures-again"
     (scratch / "figures").mkdir(parents=True, exist_ok=True)
+    from kncast.planner.plan.figureserver import _warm_up
+
+    _warm_up(folder)  # matplotlib and the figure modules, loaded by the figure process in a real run
     seconds = {}
     for name, arg, _ in folder.figure_jobs(plan):
         t = time.perf_counter()

@@ -108,9 +108,7 @@ def _serve(conn, parents_end) -> None:
 
         from kncast.planner.plan import folder as plan_outputs
 
-        for name in ("campaign", "lightcurve", "lines", "exposure", "significance"):
-            __import__(f"kncast.planner.figures.{name}")
-        plan_outputs._line_inputs()
+        _warm_up(plan_outputs)
         try:
             plan, where, figures = pickle.loads(conn.recv_bytes())
         except (EOFError, OSError):
@@ -121,6 +119,39 @@ def _serve(conn, parents_end) -> None:
     finally:
         conn.close()
         os._exit(0)  # no interpreter teardown in a forked copy of the parent
+
+
+# What unpickling a plan and drawing its figures import, loaded while the parent computes the plan
+WARM_MODULES = ("kncast.planner.plan.core", "kncast.planner.plan.blocks", "kncast.planner.observation",
+                "kncast.planner.setups", "kncast.planner.visibility.core", "kncast.planner.visibility.windows",
+                "kncast.forecast.source", "kncast.forecast.features", "kncast.forecast.exposure",
+                "kncast.forecast.photosphere", "kncast.forecast.heating", "kncast.forecast.tellurics",
+                *(f"kncast.planner.figures.{name}" for name in ("campaign", "lightcurve", "lines", "exposure",
+                                                                 "significance")))
+
+
+def _warm_up(plan_outputs) -> None:
+    import importlib
+
+    from kncast.forecast import extinction
+
+    for name in WARM_MODULES:
+        importlib.import_module(name)
+    extinction.a_lambda_over_a_v(5500.0)  # loads the extinction law's library
+    plan_outputs._line_inputs()
+    _draw_text_once()
+
+
+def _draw_text_once() -> None:
+    """Draw a line of text off screen: matplotlib finds and loads its font files on first use (~0.2 s),
+    once here instead of in every worker."""
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure(figsize=(1, 1))
+    fig.text(0.5, 0.5, "kncast 0123456789 \u00c5", fontsize=9, fontweight="bold")
+    fig.add_subplot().plot([0, 1])
+    FigureCanvasAgg(fig).draw()
 
 
 def _draw(plan_outputs, plan, folder: Path, figures: str) -> tuple:
