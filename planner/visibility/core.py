@@ -122,6 +122,7 @@ class VisibilityResult:
     ephemeris: sky.Ephemeris
     night_bounds_mjd: np.ndarray  # (n_sites, n_nights + 1), local noons
     target_index: int = 0
+    start_date: dt.date | None = None  # local evening date of the first night, when given
 
     @property
     def t0_mjd(self) -> float:
@@ -139,6 +140,7 @@ class VisibilityResult:
                 "min_altitude_deg": {s.id: float(a) for s, a in zip(self.sites, r.min_altitude_deg)},
                 "max_airmass": r.max_airmass, "min_moon_sep_deg": r.min_moon_sep_deg,
                 "nights": self.night_bounds_mjd.shape[1] - 1,
+                "start_date": self.start_date.isoformat() if self.start_date else None,
                 "target": self.event.targets()[self.target_index].id}
 
 
@@ -229,7 +231,7 @@ def compute_visibility_many(event, sites, nights: int = 3, twilight: str = "naut
         skyq = Sky(eph, sites, targets=targets[c:c + per_chunk])
         records = _target_records(skyq, rules, grid, sun, edges, bounds, dates, dark, twilight, nights)
         out += [VisibilityResult(event=event, sites=sites, nights=recs, twilight=twilight, rules=rules,
-                                 ephemeris=eph, night_bounds_mjd=bounds, target_index=int(k))
+                                 ephemeris=eph, night_bounds_mjd=bounds, target_index=int(k), start_date=start_date)
                 for k, recs in zip(skyq.targets, records)]
     return out
 

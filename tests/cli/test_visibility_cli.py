@@ -1,6 +1,7 @@
 """``kncast visibility``: JSON schema of the issue, terminal tables, plot, and the error contract."""
 from __future__ import annotations
 
+import datetime as dt
 import json
 import re
 
@@ -77,6 +78,17 @@ def test_negative_sexagesimal_declination_is_a_value(run_cli, dec):
 def test_json_to_stdout(run_cli):
     status, out, _ = run_cli("visibility", *EVENT, "--sites", "pachon", "--nights", "1", "--json", "-")
     assert status == 0 and json.loads(out)["nights"][0]["site"] == "pachon"
+
+
+def test_settings_record_the_first_night(run_cli):
+    args = ("visibility", *EVENT, "--sites", "pachon", "--nights", "1", "--json", "-")
+    status, out, _ = run_cli(*args)
+    assert status == 0 and json.loads(out)["settings"]["start_date"] is None  # the night of t0
+    first = json.loads(out)["nights"][0]["night"]
+    later = (dt.date.fromisoformat(first) + dt.timedelta(days=2)).isoformat()
+    status, out, _ = run_cli(*args, "--start", later)
+    doc = json.loads(out)
+    assert status == 0 and doc["settings"]["start_date"] == later and doc["nights"][0]["night"] == later
 
 
 # --- the error contract: status 2, one line naming the option or file, no output file left ---
