@@ -79,9 +79,11 @@ def _sky_panel(ax, result, level):
     import matplotlib.pyplot as plt
     from matplotlib.colors import PowerNorm
 
+    from kncast.planner.visibility.skycoverage import first_nights
+
     skymap = result.skymap
     x, y, density = _raster_at(skymap.density_at(level), level)
-    first = _first_nights(result)
+    first = first_nights(result.nights)  # per site, its first night record with dark time
     colours = lambda k: SERIES[k % len(SERIES)]  # noqa: E731
     masks = []
     for k, rec_index in enumerate(first.values()):  # underneath everything: each site's observable sky, shaded
@@ -113,13 +115,6 @@ def _sky_panel(ax, result, level):
     if handles:
         ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.01, 1.0), fontsize=9, frameon=False,
                   title="observable (first dark night)", title_fontsize=9)
-
-
-def _first_nights(result) -> dict[str, int]:
-    """Per site, the index of its first night record with dark time after t0."""
-    from kncast.planner.visibility.skycoverage import first_nights
-
-    return first_nights(result.nights)
 
 
 def _table_panel(ax, result, sites, n_nights):

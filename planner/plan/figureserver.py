@@ -65,7 +65,7 @@ class FigureServer:
     def finish(self) -> list[dict]:
         """Wait for the figures: their {"title", "path", "caption"} in report order."""
         from kncast.planner.errors import InputError
-        from kncast.planner.plan.folder import FigureError
+        from kncast.planner.plan.folder import FigureError, check_announced
 
         try:
             kind, *rest = self._conn.recv()
@@ -77,9 +77,7 @@ class FigureServer:
             raise InputError(rest[0])
         if kind == "error":
             raise FigureError(*rest)
-        if [r["path"] for r in rest[0]] != self.paths:
-            raise FigureError(f"figure files {[r['path'] for r in rest[0]]} differ from those announced {self.paths}")
-        return rest[0]
+        return check_announced(rest[0], self.paths)
 
     def close(self) -> None:
         """Stop the server (and its workers) unless it has ended."""

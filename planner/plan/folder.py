@@ -37,10 +37,10 @@ def _save(fig, folder: Path, kind: str, arg=None) -> str:
 # "chosen": the campaign's feature map (a row per day) and S/N spectra of the most often chosen setups;
 # "all": also one feature map per day (a row per chosen epoch) and S/N spectra of every setup
 FIGURE_SETS = ("chosen", "all")
-# Seconds to draw and save each kind of figure (measured on the 2-core machine, demo plan; a spectral
-# figure with one panel, each further panel adds half): they decide whether the worker processes pay
-# for themselves and which figure starts first.
-FIGURE_COST_S = {"campaign": 0.17, "lightcurve": 0.19, "spectrum": 0.27, "snr": 0.10, "snr-campaign": 0.12}
+# Seconds to draw and save each kind of figure (bench/plan.py on the 2-core machine, demo plan; a feature
+# map, of the campaign or of one day, as "spectrum"): they decide whether the worker processes pay for
+# themselves and which figure starts first.
+FIGURE_COST_S = {"campaign": 0.15, "lightcurve": 0.20, "spectrum": 0.27, "snr": 0.12, "snr-campaign": 0.19}
 POOL_OVERHEAD_S = 0.05  # forking two workers, handing out the jobs, collecting the results (measured: 0.02-0.04)
 
 
@@ -99,6 +99,7 @@ class FigureRun:
         if self._pool is not None:
             self._pool.terminate()
             self._pool.join()
+            self._pool = None
 
     def finish(self) -> list[dict]:
         """Wait for (or draw) every figure; their {"title", "path", "caption"} in report order."""
@@ -120,9 +121,7 @@ class FigureRun:
         failed = [r for r in results if "error" in r]
         if failed:
             raise FigureError(failed[0]["error"], failed[0]["trace"])
-        if [r["path"] for r in results] != self.paths:
-            raise FigureError(f"figure files {[r['path'] for r in results]} differ from those announced {self.paths}")
-        return results
+        return check_announced(results, self.paths)
 
 
 def start_figures(plan, folder: Path, figures: str = "chosen") -> FigureRun:
@@ -132,8 +131,19 @@ def start_figures(plan, folder: Path, figures: str = "chosen") -> FigureRun:
 
 def figure_path(kind: str, arg) -> str:
     """The file of one figure job, relative to the plan folder."""
-    name = {"spectrum": lambda: f"spectrum-day{arg:02d}", "snr": lambda: "snr-" + _file_part(arg)}.get(kind, lambda: kind)()
-    return f"figures/{name}.png"
+    if kind == "spectrum":
+        return f"figures/spectrum-day{arg:02d}.png"
+    if kind == "snr":
+        return f"figures/snr-{_file_part(arg)}.png"
+    return f"figures/{kind}.png"
+
+
+def check_announced(results: list[dict], paths: list[str]) -> list[dict]:
+    """``results`` if their files are ``paths`` (those announced before drawing), else FigureError."""
+    drawn = [r["path"] for r in results]
+    if drawn != paths:
+        raise FigureError(f"figure files {drawn} differ from those announced {paths}")
+    return results
 
 
 def use_pool(costs_s: list[float], workers: int) -> bool:

@@ -170,13 +170,11 @@ class _PixelFlags:
         self.column = np.full(n_records, -1)
         self.column[kept] = np.arange(len(kept))
 
-    def wanted(self, seg_record: np.ndarray) -> np.ndarray:
-        """Which segments (by their night record) have flags to keep."""
-        return self.column[seg_record] >= 0
-
     def put(self, sl, seg_record: np.ndarray, seen: np.ndarray) -> None:
-        """Store ``seen`` (n_wanted_segments, m): the flags of pixels ``sl`` for the wanted segments."""
-        self.array[sl, self.column[seg_record[self.wanted(seg_record)]]] = seen.T
+        """Store the flags of pixels ``sl`` from ``seen`` (n_segments, m) for the segments whose night is kept."""
+        column = self.column[seg_record]
+        wanted = column >= 0
+        self.array[sl, column[wanted]] = seen[wanted].T
 
 
 def sample_dark_time(vis, step_min: float):
@@ -366,7 +364,7 @@ def _hier_chunk(skymap, sl, mask90, ctx, seg_hz, seg_record, obs) -> np.ndarray:
     parent_w = weights.reshape(-1, kids, 2).sum(axis=1)  # (n_parents, 2)
     seen_parent = np.einsum("sp,pc->sc", (in_count > 0).astype(np.float64), parent_w)
     if obs is not None:
-        obs.put(sl, seg_record, (count > 0)[obs.wanted(seg_record)])
+        obs.put(sl, seg_record, count > 0)
     return np.stack([seen_parent[:, 0] + sums[:, 0], seen_parent[:, 1] + sums[:, 1],
                      np.einsum("sp,p->s", in_count.astype(np.float64), parent_w[:, 0]) + sums[:, 2]], axis=1)
 
@@ -560,7 +558,7 @@ def _accumulate_direct(skymap: SkyMap, vis, cols: _Columns, records, obs: np.nda
         count = np.stack([ok[a:b].view(np.uint8).sum(axis=0, dtype=np.uint16) for a, b in zip(seg_start, seg_end)])
         seen = count > 0
         if obs is not None:
-            obs.put(sl, seg_record, seen[obs.wanted(seg_record)])
+            obs.put(sl, seg_record, seen)
         p = skymap.prob[sl]
         prob_obs += np.where(seen, p, 0.0).sum(axis=1)
         hours += (count * p).sum(axis=1) * dt_h
