@@ -135,7 +135,7 @@ def _warm_up(plan_outputs) -> None:
 
     for name in WARM_MODULES:
         importlib.import_module(name)
-    extinction.a_lambda_over_a_v(5500.0)  # loads the extinction law's library
+    extinction.a_lambda_over_a_v(5500.0)
     plan_outputs._line_inputs()
     _draw_text_once()
 

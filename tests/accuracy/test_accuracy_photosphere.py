@@ -334,18 +334,22 @@ def test_default_line_forming_velocity_matches_published_spectral_fits(name):
     assert np.all(np.diff(ep.v_phot_c) <= 0)   # receding, never accelerating
 
 
-def test_f99_kept_per_grid_equals_the_law_on_every_call():
-    # Reference library: dust_extinction.parameter_averages.F99; the values kept for a grid are the law's
-    # own, on the first and the repeated call, for a grid kept and one too large to keep, and a copy is
-    # returned (changing it changes nothing kept)
+def test_f99_equals_dust_extinction_at_its_joints_edges_and_on_a_2d_grid():
+    # Reference library: dust_extinction.parameter_averages.F99 (Fitzpatrick 1999, PASP 111, 63). Our
+    # numpy curve must equal it where the recipe changes form: every spline anchor (infinite wavelength
+    # excluded), the ultraviolet edge at 2700 A, the far-UV term's start at x = 5.9 micron^-1 and the
+    # range's ends, each approached from both sides, and on a 2-d grid (shape kept)
     from dust_extinction.parameter_averages import F99
 
     from kncast.forecast import extinction
 
-    small = np.linspace(1100.0, 33000.0, 700)
-    large = np.linspace(1100.0, 33000.0, extinction.CACHED_GRID_SIZE + 1)
-    for wave in (small, large):
-        ref = F99(Rv=3.1)(wave * u.AA)
-        first = extinction.a_lambda_over_a_v(wave)
-        first[:] = -1.0
-        assert np.allclose(extinction.a_lambda_over_a_v(wave), ref, rtol=1e-12)
+    joints = np.array([26500.0, 12200.0, 6000.0, 5470.0, 4670.0, 4110.0, 2700.0, 2600.0, 1e4 / 5.9,
+                       1e4 / 0.3, 1e4 / 10.0])
+    wave = np.concatenate([joints, joints * (1 + 1e-9), joints * (1 - 1e-9)])
+    wave = wave[(wave >= 1e4 / 10.0) & (wave <= 1e4 / 0.3)]
+    ref = F99(Rv=3.1)(wave * u.AA)
+    assert np.allclose(extinction.a_lambda_over_a_v(wave), ref, rtol=1e-12)
+    grid = np.geomspace(1000.0, 33333.0, 600).reshape(20, 30)
+    ours = extinction.a_lambda_over_a_v(grid)
+    assert ours.shape == grid.shape
+    assert np.allclose(ours, F99(Rv=3.1)(grid.ravel() * u.AA).reshape(grid.shape), rtol=1e-12)
