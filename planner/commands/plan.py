@@ -116,12 +116,14 @@ def _plan_and_write(args, event, registry, sites, overrides, out: Path, quiet: b
         from kncast.planner.plan.core import build_plan
 
         rules = _common.night_rules_from_args(args)
+        ready = _early_figures(server, args.figures) if server is not None else None
         plan = build_plan(event, sites, snr_target=args.snr, max_hours=args.max_hours,
                           overhead_s=args.overhead_min * 60.0, registry=registry,
                           overrides=overrides, progress=say, sigma=args.sigma, bin_kms=args.bin_kms,
                           features=feature_ids(args), snr_at_A=args.snr_at,
                           telluric_threshold=args.telluric_threshold, setups=_common.split_list(args.setups) or None,
-                          anchors=anchors_from_args(args, event), draws=args.draws, seed=args.seed, **rules)
+                          anchors=anchors_from_args(args, event), draws=args.draws, seed=args.seed,
+                          ready=ready, **rules)
         doc = write_folder(plan, out, say, figures=args.figures, server=server)
     if args.ics:
         from kncast.planner.output import atomic_path
@@ -251,12 +253,26 @@ def write_folder(plan, out: Path, say=lambda text: None, figures: str = "chosen"
     return doc
 
 
+def _early_figures(server, figures: str):
+    """build_plan's ``ready`` hook: the server draws the campaign chart from the visibility, and the other
+    figures from the plan once its choices are made."""
+    def ready(part, value):
+        if part == "visibility":
+            server.draw_visibility(value)
+        elif part == "choices":
+            server.start(value, figures)
+
+    return ready
+
+
 def _drawing(plan, folder: Path, figures: str, server):
-    """The figures of ``plan`` being drawn into ``folder``: by ``server`` when it can take the plan."""
+    """The figures of ``plan`` being drawn into ``folder``: by ``server`` when it has taken (or can take)
+    the plan, else by this process's workers."""
     from kncast.planner.plan import folder as plan_outputs
 
-    started = server.start(plan, folder, figures) if server is not None else None
-    return started or plan_outputs.start_figures(plan, folder, figures)
+    if server is not None and (server.started or server.start(plan, figures)):
+        return server.into(folder)
+    return plan_outputs.start_figures(plan, folder, figures)
 
 
 def print_summary(plan, doc: dict, out: Path, quiet: bool = False, verbose: bool = False) -> None:

@@ -175,7 +175,7 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
                features=None, min_depth: float = DEFAULT_MIN_DEPTH, snr_at_A: float | None = None,
                telluric_threshold: float = CORRECTABLE_TRANSMISSION, setups=None, min_altitude_deg=None,
                max_airmass=None, min_moon_sep_deg=None, start_date=None, anchors=None,
-               draws: int = DEFAULT_DRAWS, seed: int | None = DEFAULT_SEED) -> Plan:
+               draws: int = DEFAULT_DRAWS, seed: int | None = DEFAULT_SEED, ready=None) -> Plan:
     """Plan spectroscopy of ``event`` from ``sites`` over ``nights`` local nights after t0.
 
     A night is useful when a diagnostic feature reaches ``sigma`` (detection significance of its
@@ -193,7 +193,10 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     night (h); ``overhead_s`` is the acquisition + readout overhead per night
     (s).  ``registry`` (a SiteRegistry) supplies the setups; by default the
     registry of the given sites.  ``model``/``overrides`` choose the
-    photosphere model.  ``progress(step_text)`` is called before each step.
+    photosphere model.  ``progress(step_text)`` is called before each step.  ``ready(part, value)`` is
+    called as parts become final, for work that can start early (the figures): ``("visibility",
+    VisibilityResult)`` once the windows are computed, ``("choices", Plan)`` once every night's outcomes
+    and choice are (the ensemble, the campaign summary, the candidates and the blocks follow).
     """
     from kncast.planner.setups import all_setups
     from kncast.planner.source import transient_for_event
@@ -209,6 +212,8 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     rules = {"min_altitude_deg": min_altitude_deg, "max_airmass": max_airmass,
              "min_moon_sep_deg": min_moon_sep_deg, "start_date": start_date}
     vis = compute_visibility(event, sites, nights=nights, twilight=twilight, **rules)
+    tell = ready or (lambda part, value: None)
+    tell("visibility", vis)
     say("photosphere")
     transient = transient_for_event(event, model=model, overrides=overrides)
     anchoring = None
@@ -254,6 +259,7 @@ def build_plan(event, sites, nights: int = 7, snr_target: float = DEFAULT_SNR,
     evaluate_setups(plan, epochs, by_site, say)
     for p in plans:
         choose(p, settings, overhead_s)
+    tell("choices", plan)
     if draws:
         say("ensemble")
         _apply_ensemble(plan, epochs, by_site, draws, seed)

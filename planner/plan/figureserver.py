@@ -2,10 +2,18 @@
 
 Building a plan keeps one core busy and leaves the other idle; drawing its figures first needs matplotlib
 and the figure modules loaded (~0.3 s).  :class:`FigureServer` forks a process at the start of
-``kncast plan`` that loads them meanwhile and then waits.  Once the plan is built it is sent over a pipe
-(pickled: ~15 ms for the demo's 10 sites x 10 nights), and the server draws the figures with its own
-:class:`~kncast.planner.plan.folder.FigureRun` (two workers forked from it, both with matplotlib loaded)
-while the parent writes the tables.  The parent never loads matplotlib.
+``kncast plan`` that loads them meanwhile.  The parent sends it the parts of the plan as they become final:
+
+* the visibility, as soon as the windows are computed: the server draws the campaign chart, which needs
+  nothing else, while the parent evaluates the setups;
+* the plan once every night's choice is made (pickled: ~15 ms for the demo's 10 sites x 10 nights; no
+  figure shows the ensemble, the candidates or the blocks that follow): the server draws the other
+  figures with its own :class:`~kncast.planner.plan.folder.FigureRun` (two workers forked from it, both
+  with matplotlib loaded) while the parent finishes the plan and writes the tables.
+
+The server draws into a staging folder of its own and sends the PNG files back with their captions; the
+parent writes them into its output folder (:meth:`FigureServer.into`), so nothing is written beside the
+output before the plan is complete.  The parent never loads matplotlib.
 
 Where the platform cannot fork, the machine has one core, or the plan cannot be sent (larger than
 MAX_PLAN_BYTES), ``start`` returns None and the caller draws with a FigureRun of its own.
@@ -14,7 +22,10 @@ from __future__ import annotations
 
 import os
 import pickle
+import shutil
 import signal
+import tempfile
+import threading
 from pathlib import Path
 
 MAX_PLAN_BYTES = 256 * 1024 * 1024  # a plan larger than this (pickled) is drawn by the parent's own workers
@@ -33,6 +44,10 @@ class FigureServer:
         self._proc.start()
         theirs.close()
         self.paths: list[str] = []
+        self.started = False
+        self._folder: Path | None = None
+        self._sender: threading.Thread | None = None
+        self._send_failed = False
 
     @classmethod
     def available(cls) -> bool:
@@ -46,27 +61,63 @@ class FigureServer:
     def __exit__(self, *exc):
         self.close()
 
-    def start(self, plan, folder: Path, figures: str = "chosen"):
-        """Send the plan: the server starts drawing into ``folder``.  Returns self, or None when the plan
+    def _send(self, message: tuple) -> bool:
+        """Pickle and send ``message``; False when it cannot be pickled or is larger than MAX_PLAN_BYTES."""
+        try:
+            data = pickle.dumps(message, protocol=pickle.HIGHEST_PROTOCOL)
+        except (pickle.PicklingError, TypeError, AttributeError):
+            return False
+        if len(data) > MAX_PLAN_BYTES:
+            return False
+        self._wait_sent()
+        if self._send_failed:
+            return False
+        # written by a thread: the pipe takes the plan (megabytes) only as fast as the server reads it
+        self._sender = threading.Thread(target=self._write, args=(data,), name="kncast-figures-send", daemon=True)
+        self._sender.start()
+        return True
+
+    def _write(self, data: bytes) -> None:
+        try:
+            self._conn.send_bytes(data)
+        except OSError:  # the server has ended (it could not load its modules, say)
+            self._send_failed = True
+
+    def _wait_sent(self) -> None:
+        if self._sender is not None:
+            self._sender.join()
+            self._sender = None
+
+    def draw_visibility(self, visibility) -> None:
+        """Send the visibility: the server draws the campaign chart before the plan arrives (if it
+        cannot be sent, the chart is drawn with the other figures)."""
+        if self._proc is not None and not self.started:
+            self._send(("visibility", visibility))
+
+    def start(self, plan, figures: str = "chosen"):
+        """Send the plan (its choices made): the server starts drawing.  Returns self, or None when the plan
         cannot be sent (the server is then stopped)."""
         from kncast.planner.plan.folder import figure_jobs, figure_path
 
-        try:
-            data = pickle.dumps((plan, str(folder), figures), protocol=pickle.HIGHEST_PROTOCOL)
-        except (pickle.PicklingError, TypeError, AttributeError):
-            data = None
-        if data is None or len(data) > MAX_PLAN_BYTES:
+        if self._proc is None or not self._send(("plan", plan, figures)):
             self.close()
             return None
         self.paths = [figure_path(kind, arg) for kind, arg, _ in figure_jobs(plan, figures)]
-        self._conn.send_bytes(data)
+        self.started = True
+        return self
+
+    def into(self, folder: Path):
+        """The folder :meth:`finish` writes the figure files into; returns self."""
+        self._folder = Path(folder)
         return self
 
     def finish(self) -> list[dict]:
-        """Wait for the figures: their {"title", "path", "caption"} in report order."""
+        """Wait for the figures, write them into the :meth:`into` folder; their {"title", "path", "caption"}
+        in report order."""
         from kncast.planner.errors import InputError
         from kncast.planner.plan.folder import FigureError, check_announced
 
+        self._wait_sent()
         try:
             kind, *rest = self._conn.recv()
         except EOFError:
@@ -77,12 +128,18 @@ class FigureServer:
             raise InputError(rest[0])
         if kind == "error":
             raise FigureError(*rest)
-        return check_announced(rest[0], self.paths)
+        results, files = rest
+        for rel, data in files.items():
+            _write_file(self._folder / rel, data)
+        return check_announced(results, self.paths)
 
     def close(self) -> None:
         """Stop the server (and its workers) unless it has ended."""
         if self._proc is None:
             return
+        if self._sender is not None and self._sender.is_alive():
+            self._proc.terminate()  # it is not reading what is being sent: stop it, which ends the write
+        self._wait_sent()
         self._conn.close()  # a server still waiting for a plan sees the end of the pipe and ends
         self._proc.join(0.5)
         if self._proc.is_alive():  # drawing: it stops its workers on SIGTERM
@@ -94,10 +151,20 @@ class FigureServer:
         self._proc = None
 
 
+def _write_file(path: Path, data: bytes) -> None:
+    """Write a figure file inside the (temporary) output folder; a refusal of the disk is an OutputError."""
+    from kncast.planner.output import atomic_path
+
+    with atomic_path(path) as tmp:
+        Path(tmp).write_bytes(data)
+
+
 def _serve(conn, parents_end) -> None:
-    """The server: load the figure modules, wait for a plan, draw it, send back the outcome, end."""
+    """The server: load the figure modules, draw what the parent sends until the plan, send back the
+    figures, end."""
     parents_end.close()
     signal.signal(signal.SIGTERM, _stop)  # stop the workers (FigureRun's clean-up) before ending
+    staging = Path(tempfile.mkdtemp(prefix="kncast-figures-"))
     try:
         import matplotlib
 
@@ -107,16 +174,34 @@ def _serve(conn, parents_end) -> None:
         from kncast.planner.plan import folder as plan_outputs
 
         _warm_up(plan_outputs)
-        try:
-            plan, where, figures = pickle.loads(conn.recv_bytes())
-        except (EOFError, OSError):
-            return  # no plan is coming (the parent stopped or drew the figures itself)
-        conn.send(_draw(plan_outputs, plan, Path(where), figures))
+        drawn = {}
+        while True:
+            try:
+                kind, *message = pickle.loads(conn.recv_bytes())
+            except (EOFError, OSError):
+                return  # no plan is coming (the parent stopped or drew the figures itself)
+            if kind == "visibility":
+                drawn.update(_early_campaign(plan_outputs, message[0], staging))
+                continue
+            plan, figures = message
+            conn.send(_draw(plan_outputs, plan, staging, figures, drawn))
+            return
     except _Stopped:
         pass
     finally:
         conn.close()
+        shutil.rmtree(staging, ignore_errors=True)
         os._exit(0)  # no interpreter teardown in a forked copy of the parent
+
+
+def _early_campaign(plan_outputs, visibility, staging: Path) -> dict:
+    """{("campaign", None): result} drawn from the visibility alone, or {} if that fails (the chart is
+    then drawn with the plan, where a failure is reported)."""
+    try:
+        (staging / "figures").mkdir(exist_ok=True)
+        return {("campaign", None): plan_outputs.campaign_chart_of(visibility, staging)}
+    except Exception:  # noqa: BLE001 - drawn again, and reported, with the other figures
+        return {}
 
 
 # What unpickling a plan and drawing its figures import, loaded while the parent computes the plan
@@ -152,14 +237,16 @@ def _draw_text_once() -> None:
     FigureCanvasAgg(fig).draw()
 
 
-def _draw(plan_outputs, plan, folder: Path, figures: str) -> tuple:
+def _draw(plan_outputs, plan, folder: Path, figures: str, drawn: dict) -> tuple:
+    """("ok", results, {path: PNG bytes}) of every figure drawn into ``folder``, or the failure."""
     import traceback
 
     from kncast.planner.errors import InputError
 
     try:
-        with plan_outputs.start_figures(plan, folder, figures) as drawing:
-            return ("ok", drawing.finish())
+        with plan_outputs.start_figures(plan, folder, figures, drawn) as drawing:
+            results = drawing.finish()
+        return ("ok", results, {r["path"]: (folder / r["path"]).read_bytes() for r in results})
     except InputError as err:  # e.g. the disk is full: the user's to fix
         return ("input", str(err))
     except plan_outputs.FigureError as err:

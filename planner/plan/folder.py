@@ -61,9 +61,10 @@ class FigureRun:
     the cost of the workers; otherwise in turn, in this process, when :meth:`finish` is called.
 
     ``paths``: the figure files (relative to the folder) in report order, known before any is drawn.
+    ``drawn``: {(kind, argument): result} of figures already drawn into ``folder``, not drawn again.
     """
 
-    def __init__(self, plan, folder: Path, figures: str = "chosen"):
+    def __init__(self, plan, folder: Path, figures: str = "chosen", drawn: dict | None = None):
         import multiprocessing
 
         import matplotlib
@@ -74,17 +75,20 @@ class FigureRun:
         (folder / "figures").mkdir(exist_ok=True)
         self.jobs = figure_jobs(plan, figures)
         self.paths = [figure_path(kind, arg) for kind, arg, _ in self.jobs]
+        self._drawn = dict(drawn or {})
+        self._todo = [k for k, job in enumerate(self.jobs) if job[:2] not in self._drawn]
         self._state = (plan, folder)
         self._pool = self._pending = None
-        workers = min(2, os.cpu_count() or 1, len(self.jobs))
-        if use_pool([cost for *_, cost in self.jobs], workers) and "fork" in multiprocessing.get_all_start_methods():
+        workers = min(2, os.cpu_count() or 1, len(self._todo))
+        costs = [self.jobs[k][2] for k in self._todo]
+        if use_pool(costs, workers) and "fork" in multiprocessing.get_all_start_methods():
             global _JOB_STATE
             _line_inputs()  # read the line list once, before the fork
             _JOB_STATE = self._state
             try:
-                self._order = sorted(range(len(self.jobs)), key=lambda k: -self.jobs[k][2])  # heavy first
+                self._todo.sort(key=lambda k: -self.jobs[k][2])  # heavy first
                 self._pool = multiprocessing.get_context("fork").Pool(workers)
-                self._pending = self._pool.map_async(_run_job, [self.jobs[k][:2] for k in self._order], chunksize=1)
+                self._pending = self._pool.map_async(_run_job, [self.jobs[k][:2] for k in self._todo], chunksize=1)
             finally:
                 _JOB_STATE = None  # the workers hold their copy
 
@@ -109,24 +113,24 @@ class FigureRun:
                 done = self._pending.get()
             finally:
                 self.close()
-            results = [None] * len(self.jobs)
-            for k, r in zip(self._order, done):
-                results[k] = r
         else:
             _JOB_STATE = self._state
             try:
-                results = [_run_job(j[:2]) for j in self.jobs]
+                done = [_run_job(self.jobs[k][:2]) for k in self._todo]
             finally:
                 _JOB_STATE = None
+        results = [self._drawn.get(job[:2]) for job in self.jobs]
+        for k, r in zip(self._todo, done):
+            results[k] = r
         failed = [r for r in results if "error" in r]
         if failed:
             raise FigureError(failed[0]["error"], failed[0]["trace"])
         return check_announced(results, self.paths)
 
 
-def start_figures(plan, folder: Path, figures: str = "chosen") -> FigureRun:
+def start_figures(plan, folder: Path, figures: str = "chosen", drawn: dict | None = None) -> FigureRun:
     """Start drawing the figures of ``plan`` into ``folder/figures`` (see :class:`FigureRun`)."""
-    return FigureRun(plan, folder, figures)
+    return FigureRun(plan, folder, figures, drawn)
 
 
 def figure_path(kind: str, arg) -> str:
@@ -203,9 +207,14 @@ def figure_jobs(plan, figures: str = "chosen") -> list[tuple]:
 
 
 def campaign_chart(plan, folder, _arg):
+    return campaign_chart_of(plan.visibility, folder)
+
+
+def campaign_chart_of(visibility, folder):
+    """The campaign chart from the visibility alone (it can be drawn before the rest of the plan is known)."""
     from kncast.planner.figures.campaign import campaign_figure
 
-    return {"title": "Campaign", "path": _save(campaign_figure(plan.visibility), folder, "campaign"),
+    return {"title": "Campaign", "path": _save(campaign_figure(visibility), folder, "campaign"),
             "caption": "Observing windows per site across the campaign, shaded by airmass, with moonlight."}
 
 

@@ -53,3 +53,20 @@ def test_no_process_outlives_a_failed_plan(tmp_path, run_cli, demo_event_path):
     assert status == 2, err
     assert not multiprocessing.active_children()
     assert not (tmp_path / "out").exists()
+
+
+def test_the_server_leaves_no_staging_folder_and_writes_nothing_before_the_plan_is_complete(
+        tmp_path, run_cli, demo_event_path, monkeypatch):
+    import tempfile
+
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    monkeypatch.setattr(tempfile, "tempdir", str(scratch))  # where the (forked) server stages its figures
+    for extra, status_wanted in (((), 0), (("--setups", "nowhere/x/y"), 2)):
+        out = tmp_path / f"out{status_wanted}"
+        status, _, err = run_cli(*PLAN, "--event", demo_event_path, "--out", out, *extra)
+        assert status == status_wanted, err
+        assert not list(scratch.iterdir())
+        assert not multiprocessing.active_children()
+    assert sorted(p.name for p in (tmp_path / "out0" / "figures").iterdir())
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["out0", "scratch"]

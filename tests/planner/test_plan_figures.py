@@ -127,3 +127,42 @@ def test_block_fluxes_in_one_evaluation_equal_one_evaluation_per_block(demo_plan
         assert flux == pytest.approx(float(alone), rel=1e-12)
         checked += 1
     assert checked > 10
+
+
+def test_figures_already_drawn_are_kept_in_report_order_and_not_drawn_again(demo_plan, tmp_path, monkeypatch):
+    # the figure process draws the campaign chart from the visibility alone, before the plan arrives
+    (tmp_path / "figures").mkdir()
+    early = folder.campaign_chart_of(demo_plan.visibility, tmp_path)
+    drawn_png = (tmp_path / early["path"]).read_bytes()
+
+    def never(*_args):
+        raise AssertionError("drawn again")
+
+    monkeypatch.setitem(folder.FIGURES, "campaign", never)
+    monkeypatch.setattr(folder, "use_pool", lambda costs, workers: False)  # in this process: the patch holds
+    with folder.start_figures(demo_plan, tmp_path, drawn={("campaign", None): early}) as run:
+        results = run.finish()
+    assert [r["path"] for r in results] == run.paths and results[0] == early
+    assert (tmp_path / early["path"]).read_bytes() == drawn_png
+
+
+def test_build_plan_tells_when_the_visibility_and_the_choices_are_final():
+    from kncast.planner.commands.demo import demo_event_path
+    from kncast.planner.events.eventfile import load_event
+    from kncast.planner.plan.core import build_plan
+    from kncast.planner.sites import SiteRegistry
+
+    registry = SiteRegistry.load()
+    told = []
+
+    def ready(part, value):
+        # what each part is when told: the windows, then the plan with every choice and no ensemble yet
+        nights = value.nights if part == "choices" else []
+        told.append((part, value, [p.choice for p in nights], [p.ensemble for p in nights]))
+
+    plan = build_plan(load_event(demo_event_path()), registry.select(["paranal", "pachon"]), nights=2,
+                      registry=registry, draws=20, ready=ready)
+    assert [t[0] for t in told] == ["visibility", "choices"]
+    assert told[0][1] is plan.visibility
+    assert told[1][1] is plan and told[1][2] == [p.choice for p in plan.nights]
+    assert all(e is None for e in told[1][3]) and any(p.ensemble for p in plan.nights)
