@@ -8,6 +8,7 @@ Column lists: docs/commands/plan.md, section "ECSV columns".
 """
 from __future__ import annotations
 
+import functools
 from pathlib import Path
 
 import numpy as np
@@ -94,14 +95,17 @@ def _missing(v) -> bool:
 def _column(rows: list[dict], name: str, kind, unit, description):
     """A masked column (or a Time column) of ``rows[*][name]``; None and NaN are masked.
 
-    A column with nothing missing is a plain Column: the ECSV text is the same, and astropy writes a
-    MaskedColumn item by item through numpy.ma (about 1 s for the demo's tables instead of 0.3 s).
+    A column with nothing missing is a plain Column (the ECSV text is the same either way).
     """
     from astropy.table import Column, MaskedColumn
     from astropy.time import Time
 
     values = [r[name] for r in rows]
-    mask = np.array([_missing(v) for v in values], dtype=bool)
+    if kind is float:
+        data = np.array(values, dtype=float).reshape(len(values))  # None becomes NaN
+        mask = np.isnan(data)
+    else:
+        mask = np.array([_missing(v) for v in values], dtype=bool)
     if kind is TIME:
         t = Time([("2000-01-01T00:00:00" if m else str(v).rstrip("Z")) for v, m in zip(values, mask)] or [],
                  format="isot", scale="utc", precision=0)
@@ -109,9 +113,10 @@ def _column(rows: list[dict], name: str, kind, unit, description):
             t[mask] = np.ma.masked
         t.info.description = description
         return t
-    fill = {float: np.nan, int: 0, bool: False, str: ""}[kind]
-    dtype = {float: float, int: np.int64, bool: bool, str: str}[kind]
-    data = np.array([fill if m else v for v, m in zip(values, mask)], dtype=dtype)
+    if kind is not float:
+        fill = {int: 0, bool: False, str: ""}[kind]
+        dtype = {int: np.int64, bool: bool, str: str}[kind]
+        data = np.array([fill if m else v for v, m in zip(values, mask)], dtype=dtype)
     if not mask.any():
         return Column(data, unit=unit, description=description)
     return MaskedColumn(data, mask=mask, unit=unit, description=description)
@@ -153,8 +158,57 @@ def write_table(columns: dict, units: dict, path: Path, description: str, meta: 
             t[name].unit = unit
     t.meta["description"] = description
     t.meta.update(meta or {})
+    text = ecsv_text(t)
     with atomic_path(path, suffix=".ecsv") as tmp:
-        t.write(tmp, format="ascii.ecsv", overwrite=True)
+        with open(tmp, "w", newline="") as f:  # the line ends as written (os.linesep), as astropy writes them
+            f.write(text)
+
+
+def ecsv_text(table) -> str:
+    """The ECSV text of ``table``, byte for byte what ``table.write(path, format="ascii.ecsv")`` writes.
+
+    astropy's ECSV writer formats every value on its own (``str(column[i])``), through numpy.ma for a
+    masked column (~10 us a value: 0.2 s for a plan's tables).  Its writer class is kept, header and all;
+    only the data values of 1-d float64, integer, boolean and text columns are formatted a column at a
+    time: ``str`` of the Python value is the same text as ``str`` of the numpy scalar for these types,
+    and a masked value is an empty field, as astropy writes it (tested against astropy's writer)."""
+    import os
+
+    from astropy.table import Table
+
+    lines = _writer_class()().write(Table(table, copy=False))
+    return os.linesep.join(lines) + os.linesep
+
+
+_FAST_KINDS = frozenset("biuU")  # column kinds whose Python values print as their numpy scalars do
+
+
+@functools.lru_cache(maxsize=1)
+def _writer_class():
+    """astropy's ECSV writer, its data values formatted a column at a time (see :func:`ecsv_text`)."""
+    from astropy.io.ascii import ecsv
+
+    class ColumnwiseData(ecsv.EcsvData):
+        def str_vals(self):
+            if not all(_columnwise(col) for col in self.cols):
+                return super().str_vals()
+            for col in self.cols:
+                col.str_vals = [str(v) for v in np.asarray(col).tolist()]
+                mask = getattr(col, "mask", None)
+                if mask is not None:
+                    for idx in np.flatnonzero(mask):
+                        col.str_vals[idx] = ""
+            return [col.str_vals for col in self.cols]
+
+    class ColumnwiseEcsv(ecsv.Ecsv):
+        data_class = ColumnwiseData
+
+    return ColumnwiseEcsv
+
+
+def _columnwise(col) -> bool:
+    dtype = col.info.dtype
+    return len(col.shape) == 1 and (dtype.kind in _FAST_KINDS or dtype == np.float64)
 
 
 def _table(rows, spec, path, description, meta):
