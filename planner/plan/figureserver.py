@@ -177,7 +177,7 @@ def _serve(conn, parents_end) -> None:
         drawn = {}
         while True:
             try:
-                kind, *message = pickle.loads(conn.recv_bytes())
+                kind, *message = _load(conn.recv_bytes())
             except (EOFError, OSError):
                 return  # no plan is coming (the parent stopped or drew the figures itself)
             if kind == "visibility":
@@ -192,6 +192,20 @@ def _serve(conn, parents_end) -> None:
         conn.close()
         shutil.rmtree(staging, ignore_errors=True)
         os._exit(0)  # no interpreter teardown in a forked copy of the parent
+
+
+def _load(data: bytes):
+    """Unpickle a message with the garbage collector paused, then exempt what it holds from later
+    collections (the plan is ~10^5 objects that live until the end: each full collection would walk them
+    all, in the server and in each worker forked from it)."""
+    import gc
+
+    gc.disable()
+    try:
+        return pickle.loads(data)
+    finally:
+        gc.freeze()
+        gc.enable()
 
 
 def _early_campaign(plan_outputs, visibility, staging: Path) -> dict:
