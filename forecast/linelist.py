@@ -7,6 +7,7 @@ feature (a multiplet, or lines close enough to merge at kilonova velocities).
 """
 from __future__ import annotations
 
+import functools
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -119,8 +120,20 @@ class LineList:
 
     @classmethod
     def load(cls, path=None) -> "LineList":
-        """Read and validate a line-list ECSV file (default: the bundled list)."""
+        """Read and validate a line-list ECSV file (default: the bundled list).
+
+        A file is read once per process while it is unchanged (same size and modification time): a plan
+        asks for the bundled list in many places, each read costing ~25 ms.  The list returned is shared,
+        its arrays read-only."""
         path = Path(path) if path is not None else DEFAULT_PATH
+        try:
+            stat = path.stat()
+        except OSError:
+            return cls._read(path)  # the reader names the missing file
+        return _cached_list(cls, str(path), stat.st_size, stat.st_mtime_ns)
+
+    @classmethod
+    def _read(cls, path: Path) -> "LineList":
         table = _read_ecsv(path)
         cols = {}
         for name, (kind, required) in _COLUMNS.items():
@@ -169,6 +182,15 @@ class LineList:
             out.append(Feature(fid, species, idx, tuple(float(self.wavelength_A[i]) for i in idx),
                                bool(np.any(self.uncertain[list(idx)])), bool(np.all(self.lte[list(idx)]))))
         return out
+
+
+@functools.lru_cache(maxsize=8)
+def _cached_list(cls, path: str, _size: int, _mtime_ns: int) -> LineList:
+    lines = cls._read(Path(path))
+    for value in vars(lines).values():
+        if isinstance(value, np.ndarray):
+            value.setflags(write=False)
+    return lines
 
 
 def _read_ecsv(path: Path):

@@ -169,3 +169,19 @@ def test_lte_flag_from_the_file_or_the_rule(tmp_path):
     assert not mine.lte[0] and not mine.features()[0].lte
     merged = LineList.merge([LineList.load(), mine])
     assert merged.lte.size == len(merged) and not merged.lte[-1] and merged.lte[0]
+
+
+def test_a_file_is_read_once_while_unchanged_and_its_arrays_are_read_only(tmp_path, text):
+    assert LineList.load() is LineList.load(DEFAULT_PATH)
+    path = _write(tmp_path, text)
+    first = LineList.load(path)
+    assert LineList.load(path) is first
+    with pytest.raises(ValueError, match="read-only"):
+        first.wavelength_A[0] = 1.0
+    import os
+
+    shorter = "\n".join(line for line in text.splitlines() if "sr2-nir" not in line) + "\n"
+    path.write_text(shorter)
+    os.utime(path, ns=(1, 1))  # a changed file (size and time) is read again
+    again = LineList.load(path)
+    assert again is not first and "sr2-nir" in set(first.feature) and "sr2-nir" not in set(again.feature)
