@@ -47,3 +47,14 @@ def test_run_exits_with_mains_status(status):
             "c.run()\n")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
     assert done.returncode == status and "handler ran" in done.stdout
+
+
+def test_the_command_raises_the_collector_thresholds_and_the_library_leaves_them(tmp_path):
+    # kncast.planner._early: the command's process only; the interpreter's defaults stay for a library user
+    from kncast.planner._early import COLLECTOR_THRESHOLDS
+
+    as_command = ("import gc, sys; sys.argv[0] = 'kncast'; import kncast.planner; print(gc.get_threshold())")
+    as_library = "import gc; before = gc.get_threshold(); import kncast.planner; print(gc.get_threshold() == before)"
+    for code, expected in ((as_command, str(COLLECTOR_THRESHOLDS)), (as_library, "True")):
+        done = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, capture_output=True, text=True, timeout=120)
+        assert done.stdout.strip() == expected, done.stderr
