@@ -50,6 +50,7 @@ class Block:
     slit_advice: str = ""
     standard_airmass: float | None = None
     standard_latest_mjd: float | None = None
+    on_source_s: float = 0.0            # exposure time on the source (the N x t total), s
 
 
 def plan_blocks(plan) -> list[Block]:
@@ -57,7 +58,11 @@ def plan_blocks(plan) -> list[Block]:
     refs = {r.id: r for r in plan.setup_refs}
     chosen = [(p, o) for p in plan.nights for o in getattr(p, "choices", []) or []]
     fluxes = _reference_fluxes(plan, chosen)
-    out = [_block(plan, p, o, refs[o.setup], f) for (p, o), f in zip(chosen, fluxes)]
+    out = [_timed_block(plan, p, o) for p, o in chosen]
+    _through_the_blocks(plan, out)
+    _exposure_figures(plan, out, refs, fluxes)
+    _refractions(out, refs)
+    _standard_hints(plan, out)
     return sorted(out, key=lambda b: b.start_mjd)
 
 
@@ -83,7 +88,8 @@ def _reference_fluxes(plan, chosen: list) -> list:
     return out
 
 
-def _block(plan, p, o, ref, flux) -> Block:
+def _timed_block(plan, p, o) -> Block:
+    """The block of choice ``o`` on night ``p``: its place in the window and its exposures."""
     w = p.window
     # a detection block holds the exposures reaching the target significance; a classification block
     # (nothing detected yet) takes the usable time
@@ -93,98 +99,122 @@ def _block(plan, p, o, ref, flux) -> Block:
     start, end, best = w.start.utc.mjd, w.end.utc.mjd, w.best_time.utc.mjd
     length_d = min(length_d, end - start)
     t0 = float(np.clip(best - 0.5 * length_d, start, end - length_d))
-    b = Block(night=p, outcome=o, start_mjd=t0, end_mjd=t0 + length_d, n_exp=n_exp, exp_s=on_source / n_exp,
-              kind="detection" if o.detected else "classification")
-    _through_the_block(plan, p, b)
-    _exposure_figures(plan, p, o, ref, b, on_source, flux)
-    _refraction(p, ref, b)
-    _standard_hint(plan, p, b)
-    return b
+    return Block(night=p, outcome=o, start_mjd=t0, end_mjd=t0 + length_d, n_exp=n_exp, exp_s=on_source / n_exp,
+                 kind="detection" if o.detected else "classification", on_source_s=on_source)
 
 
-def _target_at(plan, site, mjd):
-    """(altitude deg, airmass, parallactic angle deg) of the plan's target at ``mjd`` (array) from ``site``."""
+def _targets_at(plan, blocks: list, mjd: np.ndarray):
+    """(altitude deg, airmass, parallactic angle deg) of the plan's target from each block's site at the
+    times ``mjd`` (shape (n_blocks, n_times), a row per block), all in one evaluation."""
     from kncast.forecast.airmass import airmass_from_altitude
     from kncast.planner.visibility import sky
     from kncast.planner.visibility.parallactic import parallactic_angle_ephemeris_deg
 
-    mjd = np.asarray(mjd, dtype=float)
-    sites = sky.SiteArrays.of([site])
+    sites = sky.SiteArrays.of([b.night.site for b in blocks])
     alt, _az = sky.target_altaz_deg(plan.visibility.ephemeris, sites, mjd)
-    alt = np.ravel(alt)
     q = parallactic_angle_ephemeris_deg(plan.visibility.ephemeris, sites, mjd)
     with np.errstate(invalid="ignore"):
         x = np.where(alt > 0, airmass_from_altitude(np.clip(alt, 1e-3, 90.0)), np.inf)
-    return alt, x, np.ravel(q)
+    return alt, x, q
 
 
-def _through_the_block(plan, p, b: Block) -> None:
-    mid = 0.5 * (b.start_mjd + b.end_mjd)
-    alt, x, q = _target_at(plan, p.site, [b.start_mjd, mid, b.end_mjd])
-    b.altitude_deg = [round(float(a), 2) for a in alt]
-    b.airmass = [round(float(v), 3) for v in x]
-    b.parallactic_angle_deg = [round(float(v), 1) for v in q]
-
-
-def _exposure_figures(plan, p, o, ref, b: Block, on_source: float, flux) -> None:
-    """Continuum S/N per bin and significance of this exposure at the reference trough, where the source
-    has F_lambda ``flux`` (None: no reference trough to measure)."""
-    rec = _reference_record(o)
-    if rec is None:
+def _through_the_blocks(plan, blocks: list) -> None:
+    """Altitude, airmass and parallactic angle at the start, middle and end of every block."""
+    if not blocks:
         return
+    start, end = (np.array([getattr(b, k) for b in blocks]) for k in ("start_mjd", "end_mjd"))
+    alt, x, q = _targets_at(plan, blocks, np.stack([start, 0.5 * (start + end), end], axis=1))
+    for b, a_row, x_row, q_row in zip(blocks, alt.tolist(), x.tolist(), q.tolist()):
+        b.altitude_deg = [round(a, 2) for a in a_row]
+        b.airmass = [round(v, 3) for v in x_row]
+        b.parallactic_angle_deg = [round(v, 1) for v in q_row]
+
+
+def _exposure_figures(plan, blocks: list, refs: dict, fluxes: list) -> None:
+    """Continuum S/N per bin and significance of each block's exposure at its reference trough, where the
+    source has F_lambda ``fluxes[i]`` (None: no reference trough to measure); one evaluation per setup,
+    its blocks along the wavelength axis (each sample with its own night's conditions)."""
+    groups: dict[str, list] = {}
+    for b, flux in zip(blocks, fluxes):
+        rec = _reference_record(b.outcome)
+        if rec is not None:
+            groups.setdefault(b.outcome.setup, []).append((b, rec, flux))
+    for setup_id, members in groups.items():
+        _setup_exposures(plan, refs[setup_id], members)
+
+
+def _setup_exposures(plan, ref, members: list) -> None:
+    """:func:`_exposure_figures` for the (block, reference record, flux) ``members`` of one setup."""
     from kncast.forecast import exposure
     from kncast.forecast.detect import bin_width_A, significance, snr_per_bin
     from kncast.planner.observation import batched_conditions
 
-    lam = np.array([rec["measured_A"]])
-    atm = plan.atmospheres[p.site.id]
-    cond = batched_conditions([p.window], atm)
+    blocks = [m[0] for m in members]
+    lam = np.array([m[1]["measured_A"] for m in members], dtype=float)
+    cond = batched_conditions([b.night.window for b in blocks], plan.atmospheres[ref.site.id])
     grid = exposure.setup_grid(ref.telescope, ref.instrument, ref.setup, wavelength_A=lam)
-    r = exposure.rates(np.array([[flux]]), grid, cond, plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm))
-    res = exposure.expose(r, on_source, b.n_exp)
-    s_bin = float(np.ravel(snr_per_bin(res.snr_per_pixel, r.dispersion_A_per_pix, bin_width_A(
-        lam, plan.settings["bin_kms"])))[0])
-    b.snr_bin = s_bin
-    b.significance = float(significance(rec["depth"] or 0.0, s_bin, rec["n_bins"] or 0.0))
+    telluric = plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm)
+    r = exposure.rates(np.array([[m[2] for m in members]], dtype=float), grid, cond, telluric)
+    res = exposure.expose(r, np.array([b.on_source_s for b in blocks]), np.array([b.n_exp for b in blocks]))
+    s_bin = np.ravel(snr_per_bin(res.snr_per_pixel, r.dispersion_A_per_pix, bin_width_A(lam, plan.settings["bin_kms"])))
+    depth = np.array([m[1]["depth"] or 0.0 for m in members], dtype=float)
+    n_bins = np.array([m[1]["n_bins"] or 0.0 for m in members], dtype=float)
+    sig = np.ravel(significance(depth, s_bin, n_bins))
+    for b, s, g in zip(blocks, s_bin.tolist(), sig.tolist()):
+        b.snr_bin, b.significance = s, g
 
 
-def _refraction(p, ref, b: Block) -> None:
+def _refractions(blocks: list, refs: dict) -> None:
+    """Differential refraction across each block's setup and against the guide wavelength at the middle of
+    the block (typical air at the site's elevation), and the slit advice it implies; all blocks at once."""
+    shown = [b for b in blocks if np.isfinite(b.airmass[1])]
+    if not shown:
+        return
     from kncast.forecast.airmass import zenith_from_airmass
     from kncast.forecast.refraction import differential_refraction_arcsec, slit_advice, typical_conditions
 
-    x = b.airmass[1]
-    if not np.isfinite(x):
-        return
-    air = typical_conditions(p.site.elevation_m)
-    z = float(zenith_from_airmass(x))
-    ends = np.clip([ref.setup.min_A, ref.setup.max_A], 2000.0, 25000.0)  # the index formula's range
+    setups = [refs[b.outcome.setup] for b in shown]
+    air = typical_conditions(np.array([b.night.site.elevation_m for b in shown]))
+    z = zenith_from_airmass(np.array([b.airmass[1] for b in shown]))
+    ends = np.clip([[r.setup.min_A, r.setup.max_A] for r in setups], 2000.0, 25000.0)  # the index formula's range
 
     def adr(lam, ref_A):
-        return differential_refraction_arcsec(lam, ref_A, z, air.pressure_hpa, air.temperature_C,
-                                              air.water_vapour_hpa)
+        return np.asarray(differential_refraction_arcsec(lam, ref_A, z, air.pressure_hpa, air.temperature_C,
+                                                         air.water_vapour_hpa))
 
-    across = adr(ends[0], ends[1])
-    guide = [adr(lam, GUIDE_A) for lam in ends]
-    b.adr_arcsec = round(abs(float(across)), 3)
-    b.adr_guide_arcsec = round(max(abs(float(g)) for g in guide), 3)
-    if getattr(ref.instrument, "kind", "slit") == "fibre":
-        b.slit_advice = (f"fibre of {ref.instrument.slit_width_arcsec:g} arcsec: guide at {GUIDE_A:.0f} A; the ends "
-                         f"of the setup sit up to {b.adr_guide_arcsec:g} arcsec from the guided position")
-    else:
-        b.slit_advice = slit_advice(b.adr_arcsec, ref.instrument.slit_width_arcsec)
+    across = np.abs(adr(ends[:, 0], ends[:, 1]))
+    guide = np.maximum(np.abs(adr(ends[:, 0], GUIDE_A)), np.abs(adr(ends[:, 1], GUIDE_A)))
+    for b, r, a_across, a_guide in zip(shown, setups, across.tolist(), guide.tolist()):
+        b.adr_arcsec = round(a_across, 3)
+        b.adr_guide_arcsec = round(a_guide, 3)
+        if getattr(r.instrument, "kind", "slit") == "fibre":
+            b.slit_advice = (f"fibre of {r.instrument.slit_width_arcsec:g} arcsec: guide at {GUIDE_A:.0f} A; the "
+                             f"ends of the setup sit up to {b.adr_guide_arcsec:g} arcsec from the guided position")
+        else:
+            b.slit_advice = slit_advice(b.adr_arcsec, r.instrument.slit_width_arcsec)
 
 
-def _standard_hint(plan, p, b: Block) -> None:
-    """Airmass to match and the latest time (MJD) the target's airmass stays within STANDARD_DAIRMASS of it."""
-    x_mid = b.airmass[1]
-    if not np.isfinite(x_mid):
+def _standard_hints(plan, blocks: list) -> None:
+    """For every block with a finite airmass: the airmass to match and the latest time (MJD) the target's
+    airmass stays within STANDARD_DAIRMASS of it, on STEP_D steps from the block's end to the window's."""
+    hinted = [b for b in blocks if np.isfinite(b.airmass[1])]
+    if not hinted:
         return
-    w_end = p.window.end.utc.mjd
-    times = np.arange(b.end_mjd, w_end + STEP_D, STEP_D)
-    _alt, x, _q = _target_at(plan, p.site, times)
-    far = np.flatnonzero(np.abs(x - x_mid) > STANDARD_DAIRMASS)
-    b.standard_airmass = round(float(x_mid), 2)
-    b.standard_latest_mjd = float(times[far[0]] if far.size else min(times[-1], w_end))
+    w_end = np.array([b.night.window.end.utc.mjd for b in hinted])
+    b_end = np.array([b.end_mjd for b in hinted])
+    # the times np.arange(b_end, w_end + STEP_D, STEP_D) gives each block, as rows padded with the last one
+    steps = np.maximum(np.ceil((w_end + STEP_D - b_end) / STEP_D).astype(int), 1)
+    k = np.arange(steps.max())
+    delta = (b_end + STEP_D) - b_end  # numpy's arange steps by the difference of its first two values
+    times = b_end[:, None] + k * delta[:, None]
+    _alt, x, _q = _targets_at(plan, hinted, np.minimum(times, (b_end + (steps - 1) * delta)[:, None]))
+    x_mid = np.array([b.airmass[1] for b in hinted])
+    far = (np.abs(x - x_mid[:, None]) > STANDARD_DAIRMASS) & (k < steps[:, None])
+    for i, b in enumerate(hinted):
+        hits = np.flatnonzero(far[i])
+        last = float(times[i, steps[i] - 1])
+        b.standard_airmass = round(float(x_mid[i]), 2)
+        b.standard_latest_mjd = float(times[i, hits[0]] if hits.size else min(last, w_end[i]))
 
 
 def _iso(mjd):

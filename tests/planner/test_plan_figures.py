@@ -129,6 +129,55 @@ def test_block_fluxes_in_one_evaluation_equal_one_evaluation_per_block(demo_plan
     assert checked > 10
 
 
+def test_blocks_evaluated_together_equal_each_block_evaluated_alone(demo_plan):
+    # every block's geometry (one sky evaluation for all blocks), exposure figures (one per setup) and
+    # telluric-standard time against the same quantities evaluated for that block alone, as they were before
+    from kncast.forecast import exposure
+    from kncast.forecast.airmass import airmass_from_altitude
+    from kncast.forecast.detect import bin_width_A, significance, snr_per_bin
+    from kncast.planner.observation import batched_conditions
+    from kncast.planner.plan import blocks
+    from kncast.planner.visibility import sky
+
+    refs = {r.id: r for r in demo_plan.setup_refs}
+    eph = demo_plan.visibility.ephemeris
+
+    def airmass_alone(site, mjd):
+        alt, _ = sky.target_altaz_deg(eph, sky.SiteArrays.of([site]), np.asarray(mjd, dtype=float))
+        alt = np.ravel(alt)
+        with np.errstate(invalid="ignore"):
+            return np.where(alt > 0, airmass_from_altitude(np.clip(alt, 1e-3, 90.0)), np.inf)
+
+    planned = blocks.plan_blocks(demo_plan)
+    chosen = [(p, o) for p in demo_plan.nights for o in getattr(p, "choices", []) or []]
+    fluxes = dict(zip(map(id, (o for _, o in chosen)), blocks._reference_fluxes(demo_plan, chosen)))  # tested above
+    measured = 0
+    for b in planned:
+        p, o = b.night, b.outcome
+        mid = 0.5 * (b.start_mjd + b.end_mjd)
+        assert b.airmass == [round(float(x), 3) for x in airmass_alone(p.site, [b.start_mjd, mid, b.end_mjd])]
+        times = np.arange(b.end_mjd, p.window.end.utc.mjd + blocks.STEP_D, blocks.STEP_D)
+        far = np.flatnonzero(np.abs(airmass_alone(p.site, times) - b.airmass[1]) > blocks.STANDARD_DAIRMASS)
+        assert b.standard_latest_mjd == (times[far[0]] if far.size else min(times[-1], p.window.end.utc.mjd))
+        rec = blocks._reference_record(o)
+        if rec is None:
+            assert b.snr_bin is None
+            continue
+        ref, lam = refs[o.setup], np.array([rec["measured_A"]])
+        cond = batched_conditions([p.window], demo_plan.atmospheres[p.site.id])
+        flux = np.array([[fluxes[id(o)]]])
+        r = exposure.rates(flux, exposure.setup_grid(ref.telescope, ref.instrument, ref.setup, wavelength_A=lam),
+                           cond, demo_plan.tellurics.transmission(lam, cond.airmass, cond.pwv_mm))
+        res = exposure.expose(r, b.on_source_s, b.n_exp)
+        alone = float(np.ravel(snr_per_bin(res.snr_per_pixel, r.dispersion_A_per_pix,
+                                           bin_width_A(lam, demo_plan.settings["bin_kms"])))[0])
+        assert b.snr_bin == pytest.approx(alone, rel=1e-12)
+        assert b.significance == pytest.approx(float(significance(rec["depth"] or 0.0, alone, rec["n_bins"] or 0.0)),
+                                               rel=1e-12)
+        measured += 1
+    assert measured > 10
+
+
 def test_figures_already_drawn_are_kept_in_report_order_and_not_drawn_again(demo_plan, tmp_path, monkeypatch):
     # the figure process draws the campaign chart from the visibility alone, before the plan arrives
     (tmp_path / "figures").mkdir()
