@@ -26,7 +26,7 @@ GUIDE_A = 6000.0          # guide-camera wavelength assumed for the refraction o
 STANDARD_DAIRMASS = 0.1   # a telluric standard within 0.1 airmass of the target (common practice)
 STEP_D = 2.0 / 1440.0     # time step for the telluric-standard limit, days (2 min)
 
-__all__ = ["Block", "plan_blocks", "block_record", "GUIDE_A", "STANDARD_DAIRMASS"]
+__all__ = ["Block", "plan_blocks", "block_record", "block_records", "GUIDE_A", "STANDARD_DAIRMASS"]
 
 
 @dataclass
@@ -256,15 +256,29 @@ def _exposure_range(p, b: Block) -> dict | None:
     return {k: round(v, 1) for k, v in ens["time_to_sigma_s"].items()}
 
 
-def block_record(plan, b: Block) -> dict:
-    """The plan.json record of one block (keys in docs/json.md, section "blocks")."""
+def block_records(plan, blocks: list) -> list[dict]:
+    """The plan.json records of ``blocks`` (keys in docs/json.md, section "blocks"); their UTC times
+    converted in one pass."""
+    from kncast.planner.output import iso_utc_mjds
+
+    mjds = [m for b in blocks for m in (b.start_mjd, b.end_mjd, b.standard_latest_mjd)]
+    utc = iter(iso_utc_mjds(mjds))
+    target = plan.event.targets()[0]
+    ra_dec = sexagesimal(target.ra_deg, target.dec_deg)
+    return [block_record(plan, b, (next(utc), next(utc), next(utc)), ra_dec) for b in blocks]
+
+
+def block_record(plan, b: Block, utc=None, ra_dec=None) -> dict:
+    """The plan.json record of one block (keys in docs/json.md, section "blocks"); ``utc``: the ISO UTC of
+    its start, end and telescope-standard time, ``ra_dec``: the target's sexagesimal RA and Dec, when known."""
     p, o = b.night, b.outcome
     target = plan.event.targets()[0]
-    ra_hms, dec_dms = sexagesimal(target.ra_deg, target.dec_deg)
+    ra_hms, dec_dms = ra_dec or sexagesimal(target.ra_deg, target.dec_deg)
+    start_utc, end_utc, latest_utc = utc or (_iso(b.start_mjd), _iso(b.end_mjd), _iso(b.standard_latest_mjd))
     return {
         "site": p.site.id, "telescope": o.telescope, "setup": o.setup, "night": p.record.night.isoformat(),
         "kind": b.kind, "phase_d": round(0.5 * (b.start_mjd + b.end_mjd) - float(plan.event.t0.utc.mjd), 4),
-        "start_utc": _iso(b.start_mjd), "end_utc": _iso(b.end_mjd),
+        "start_utc": start_utc, "end_utc": end_utc,
         "start_local": _local(b.start_mjd, p.site.tz), "end_local": _local(b.end_mjd, p.site.tz),
         "n_exp": b.n_exp, "exp_s": round(b.exp_s, 1), "snr": _round(b.snr_bin, 2),
         "significance": _round(b.significance, 2), "feature": o.feature, "detected": list(o.detected),
@@ -274,6 +288,6 @@ def block_record(plan, b: Block) -> dict:
         "ra_hms": ra_hms, "dec_dms": dec_dms, "ra_deg": target.ra_deg, "dec_deg": target.dec_deg,
         "exposure_range_s": _exposure_range(p, b),
         "target": target.id,
-        "telluric_standard": {"airmass": b.standard_airmass, "latest_utc": _iso(b.standard_latest_mjd),
+        "telluric_standard": {"airmass": b.standard_airmass, "latest_utc": latest_utc,
                               "within_airmass": STANDARD_DAIRMASS},
     }

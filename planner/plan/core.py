@@ -705,11 +705,11 @@ def plan_document(plan: Plan, files: dict | None = None, references=None, assump
     sites = [{"id": s.id, "name": s.name, "latitude_deg": s.latitude_deg, "longitude_deg": s.longitude_deg,
               "elevation_m": s.elevation_m, "setups": [sid for sid in plan.settings["setups"]
                                                        if sid.split("/")[0] == s.id]} for s in plan.sites]
-    from kncast.planner.plan.blocks import block_record
+    from kncast.planner.plan.blocks import block_records
 
     return document("plan", event=plan.event.summary(), settings=dict(plan.settings, score=choice_rule(
                         plan.settings["sigma"], plan.settings["min_depth"], plan.settings["bin_kms"])),
                     model=plan.model, sites=sites, nights=[night_summary(p, plan.settings["sigma"]) for p in plan.nights],
                     campaign=plan.campaign, candidates=[c.summary() for c in plan.candidates], files=files or {}, assumptions=list(assumptions or []),
                     references=list(references or []), cautions=list(CAUTIONS),
-                    blocks=[block_record(plan, b) for b in plan.blocks], ensemble=_sig(plan.ensemble, SIG_ENSEMBLE) or None)
+                    blocks=block_records(plan, plan.blocks), ensemble=_sig(plan.ensemble, SIG_ENSEMBLE) or None)
