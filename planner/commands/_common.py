@@ -143,12 +143,10 @@ def check_output_file(option: str, path) -> None:
 
 def emit_json(path, doc: dict) -> None:
     """Write ``doc`` to PATH atomically, or to stdout for '-'."""
-    import json
-
-    from kncast.planner.output import to_jsonable, write_json
+    from kncast.planner.output import json_text, write_json
 
     if path == "-":
-        sys.stdout.write(json.dumps(to_jsonable(doc), indent=2, allow_nan=False) + "\n")
+        sys.stdout.write(json_text(doc) + "\n")
     else:
         write_json(path, doc)
 
