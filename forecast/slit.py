@@ -12,8 +12,13 @@ PSFs are circular, centred on the slit:
   (Moffat 1969, A&A 3, 455); beta = 4.765 matches Kolmogorov seeing (Trujillo
   et al. 2001, MNRAS 328, 977).  Fibre: 1 - (1 + (d/2)^2 / a^2)^(1 - beta);
   rectangle: closed form across the slit (incomplete beta function), Gauss-Legendre
-  along it, tabulated once over (w/FWHM, L/FWHM) on a logarithmic grid and
-  interpolated (the fraction is smooth in both).
+  along it, tabulated over (w/FWHM, L/FWHM) on a logarithmic grid and interpolated
+  (the fraction is smooth in both).  For the default beta the table is read from
+  ``data/moffat_slit.ecsv`` (written by ``data/make_moffat_slit.py`` with this module's
+  :func:`moffat_rectangle`; the tests recompute it); another beta is tabulated when asked.
+
+The error function is the standard library's (``math.erf``, element by element): scipy.special,
+whose import costs ~0.1 s, is loaded only to tabulate another beta.
 
 The extraction aperture along the slit is ``extraction_fwhm`` x FWHM (default 2,
 common practice) rounded up to whole pixels; that sets the number of spatial
@@ -22,9 +27,10 @@ pixels whose sky and detector noise enter the CCD equation.
 from __future__ import annotations
 
 import functools
+import math
+from pathlib import Path
 
 import numpy as np
-from scipy.special import erf
 
 from kncast.forecast.errors import check_range
 from kncast.forecast.references import MOFFAT_1969, TRUJILLO_2001
@@ -34,8 +40,16 @@ REFERENCES = (MOFFAT_1969, TRUJILLO_2001)
 
 SEEING_REFERENCE_A = 5000.0
 MOFFAT_BETA = 4.765
+MOFFAT_GRID = (0.01, 20.0, 72)  # half width and half length of the tabulated rectangles: geomspace, in FWHM
+MOFFAT_TABLE_PATH = Path(__file__).resolve().parent / "data" / "moffat_slit.ecsv"
 PROFILES = ("gaussian", "moffat")
 _SQRT_LN2 = np.sqrt(np.log(2.0))
+_ERF = np.frompyfunc(math.erf, 1, 1)
+
+
+def erf(x):
+    """The error function of ``x`` (any shape), element by element with ``math.erf``."""
+    return np.asarray(_ERF(np.asarray(x, dtype=float)), dtype=float)
 
 
 def seeing_fwhm_arcsec(seeing_arcsec, airmass, wavelength_A):
@@ -66,7 +80,7 @@ def fibre_fraction(diameter_arcsec, fwhm_arcsec, profile="gaussian", beta=MOFFAT
     return 1.0 - (1.0 + (0.5 * d / a) ** 2) ** (1.0 - beta)
 
 
-def _moffat_rect(half_w, half_l, beta, n=64):
+def moffat_rectangle(half_w, half_l, beta, n=64):
     """Moffat flux fraction in |x| < half_w, |y| < half_l (units of FWHM).
 
     The x integral is closed form: with s^2 = a^2 + y^2,
@@ -103,11 +117,32 @@ def slit_fraction(width_arcsec, length_arcsec, fwhm_arcsec, profile="gaussian", 
     return _moffat_table(beta)(0.5 * w / fw, 0.5 * length / fw)
 
 
+def moffat_grid() -> np.ndarray:
+    """The half widths (and half lengths) of the tabulated rectangles, in FWHM (MOFFAT_GRID)."""
+    return np.geomspace(*MOFFAT_GRID)
+
+
+def _read_moffat_table(path: Path = MOFFAT_TABLE_PATH) -> np.ndarray:
+    """The fractions of ``moffat_slit.ecsv`` as (half width, half length) on :func:`moffat_grid`."""
+    from kncast.forecast.datafiles import read_ecsv
+    from kncast.forecast.errors import DataFileError
+
+    t = read_ecsv(path, "the Moffat slit table (data/make_moffat_slit.py)",
+                  ("half_width_fwhm", "half_length_fwhm", "fraction"))
+    u = moffat_grid()
+    hw, hl = np.meshgrid(u, u, indexing="ij")
+    if (len(t) != u.size**2 or t.meta.get("beta") != MOFFAT_BETA
+            or not np.allclose(t["half_width_fwhm"], hw.ravel(), rtol=1e-12)
+            or not np.allclose(t["half_length_fwhm"], hl.ravel(), rtol=1e-12)):
+        raise DataFileError(path, "", "not the table of MOFFAT_BETA on MOFFAT_GRID", "run data/make_moffat_slit.py")
+    return np.asarray(t["fraction"], dtype=float).reshape(u.size, u.size)
+
+
 @functools.lru_cache(maxsize=4)
 def _moffat_table(beta):
     """Interpolator of the Moffat rectangle fraction over (half width, half length) in FWHM units."""
-    u = np.geomspace(0.01, 20.0, 72)
-    table = _moffat_rect(u[:, None], u[None, :], beta)
+    u = moffat_grid()
+    table = _read_moffat_table() if beta == MOFFAT_BETA else moffat_rectangle(u[:, None], u[None, :], beta)
     log_u = np.log(u)
 
     def frac(half_w, half_l):

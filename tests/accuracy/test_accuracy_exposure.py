@@ -105,6 +105,25 @@ def test_moffat_rectangle_matches_closed_forms():
     assert inner < box < outer
 
 
+def test_bundled_moffat_table_is_the_rectangle_integral_and_another_beta_is_computed():
+    # data/moffat_slit.ecsv (read at run time) against moffat_rectangle recomputed here with scipy's
+    # incomplete beta function (reference library: scipy.special.betainc); a beta other than the
+    # table's is tabulated on demand and differs
+    u = slit.moffat_grid()
+    recomputed = slit.moffat_rectangle(u[:, None], u[None, :], slit.MOFFAT_BETA)
+    np.testing.assert_allclose(slit._read_moffat_table(), recomputed, rtol=1e-14, atol=0.0)
+    assert float(slit.slit_fraction(1.0, 2.0, 1.0, "moffat", beta=2.5)) != float(slit.slit_fraction(1.0, 2.0, 1.0, "moffat"))
+
+
+def test_erf_is_scipys():
+    # Reference library: scipy.special.erf; kncast's erf is math.erf element by element (shape kept)
+    from scipy.special import erf as scipy_erf
+
+    x = np.linspace(-6.0, 6.0, 4001).reshape(4001, 1)
+    assert slit.erf(x).shape == x.shape
+    np.testing.assert_allclose(slit.erf(x), scipy_erf(x), rtol=1e-15, atol=1e-16)
+
+
 def test_seeing_scaling():
     # common practice: FWHM ~ X^0.6 lambda^-0.2 (Kolmogorov)
     assert slit.seeing_fwhm_arcsec(1.0, 2.0, 5000.0) == pytest.approx(2 ** 0.6)

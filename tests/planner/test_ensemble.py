@@ -45,6 +45,21 @@ def test_distance_draws_equal_scipy_truncnorm_draws(distance, sigma):
     np.testing.assert_allclose(ours, ref, rtol=1e-12)
 
 
+def test_distance_quantiles_keep_their_digits_near_both_ends():
+    # 1 - Phi(x) = (1 - q) Phi(-a) for the normal truncated to [a, inf): the upper tail from its own
+    # probability (reference library: scipy.special.ndtri, ndtr), to 1e-12 even as q -> 1, where the
+    # log-space form of truncnorm loses digits; and the lower end is a itself
+    from scipy.special import ndtr, ndtri
+
+    from kncast.planner.draws import _truncated_normal_ppf
+
+    q = np.array([0.0, 1e-9, 0.25, 0.5, 0.9, 1 - 1e-9, 1 - 1e-12, np.nextafter(1.0, 0.0)])
+    for a in (-0.01, -1.3, -5.0, -20.0):
+        exact = np.where(q < 0.5, ndtri(ndtr(a) + q * ndtr(-a)), -ndtri((1.0 - q) * ndtr(-a)))
+        np.testing.assert_allclose(_truncated_normal_ppf(q, a), exact, rtol=1e-12)
+        assert _truncated_normal_ppf(np.array([0.0]), a)[0] == pytest.approx(a, rel=1e-12)
+
+
 def test_distance_only_magnitude_percentiles_are_the_distance_modulus_of_the_distance_percentiles(south):
     # m(D') = m(D) + 5 log10(D'/D) (inverse-square law, AB magnitudes: Oke & Gunn 1983); percentiles of
     # order statistics commute with this monotonic map
