@@ -155,6 +155,7 @@ def instrumented_main(out: str, report: str) -> None:
 
     stages = Stages()
     t0 = time.perf_counter()
+    sys.argv[0] = "kncast"  # set up this process as the kncast command sets up its own (kncast.planner._early)
     builtins.__import__ = stages.wrap_import(builtins.__import__)
     import kncast.planner.cli as cli
     from kncast.planner import output
@@ -194,6 +195,9 @@ def figure_seconds(plan, out: Path) -> dict[str, float]:
     from kncast.planner.plan.figureserver import _warm_up
 
     _warm_up(folder)  # matplotlib and the figure modules, loaded by the figure process in a real run
+    import gc
+
+    gc.freeze()  # as the figure process does with the plan it receives: no collection walks it
     seconds = {}
     for name, arg, _ in folder.figure_jobs(plan):
         t = time.perf_counter()

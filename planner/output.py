@@ -311,6 +311,9 @@ def write_json(path, doc: dict) -> None:
 # zlib level 1: encodes a 1000 x 900 chart ~3.5x faster than PIL's default 6 (0.05 against 0.16 s,
 # measured), files ~25% larger
 PNG_OPTIONS = {"pil_kwargs": {"compress_level": 1}}
+# glyphs drawn without FreeType's hinting: a text-heavy chart (the campaign feature map) draws in 0.25 s
+# instead of 0.30 (measured), the letters as legible at the saved sizes
+DRAWING_RC = {"text.hinting": "none"}
 
 
 def save_figure(fig, path, **kwargs) -> None:
@@ -321,7 +324,7 @@ def save_figure(fig, path, **kwargs) -> None:
     fmt = path.suffix.lstrip(".") or "png"
     options = {"dpi": 120, "bbox_inches": "tight", **(PNG_OPTIONS if fmt == "png" else {}), **kwargs}
     try:
-        with atomic_path(path) as tmp:
+        with atomic_path(path) as tmp, plt.rc_context(DRAWING_RC):
             try:
                 fig.savefig(tmp, format=fmt, **options)
             except ValueError:  # a text matplotlib cannot typeset as mathtext: draw every text as written
