@@ -285,12 +285,26 @@ def json_text(doc) -> str:
     import orjson
 
     try:
-        return orjson.dumps(doc, default=_json_default,
-                            option=orjson.OPT_INDENT_2 | orjson.OPT_SERIALIZE_NUMPY).decode()
+        text = orjson.dumps(doc, default=_json_default, option=orjson.OPT_INDENT_2 | orjson.OPT_SERIALIZE_NUMPY).decode()
     except TypeError:  # orjson.JSONEncodeError
         import json
 
         return json.dumps(to_jsonable(doc), indent=2, allow_nan=False)
+    # ASCII as the standard library writes it (non-ASCII characters, which occur only inside strings, as
+    # \uXXXX escapes): the files and the terminal need no particular encoding
+    return text if text.isascii() else _NON_ASCII.sub(_json_escape, text)
+
+
+_NON_ASCII = re.compile(r"[^\x00-\x7f]")
+
+
+def _json_escape(match) -> str:
+    """A non-ASCII character as JSON escapes (a surrogate pair beyond U+FFFF), lower-case hex as ``json``."""
+    n = ord(match.group())
+    if n < 0x10000:
+        return f"\\u{n:04x}"
+    n -= 0x10000
+    return f"\\u{0xd800 | (n >> 10):04x}\\u{0xdc00 | (n & 0x3ff):04x}"
 
 
 def _json_default(obj):

@@ -3,8 +3,8 @@
 * :func:`kncast.planner.output.json_text` (orjson) against ``json.dumps(to_jsonable(doc), indent=2,
   allow_nan=False)`` (Python's own encoder) on generated documents: nested dicts and lists, numpy
   scalars and arrays, non-finite floats, booleans, unicode, astropy Times.  The same value once parsed,
-  strict JSON (no NaN or Infinity) and the same layout (one line per value, two-space indents); numbers
-  may be spelled differently (1e+16 or 1e16).
+  strict JSON (no NaN or Infinity), ASCII (other characters escaped) and the same layout (one line per
+  value, two-space indents); numbers may be spelled differently (1e+16 or 1e16).
 * :func:`kncast.planner.output.iso_utc` against astropy's ``Time.strftime`` at random instants,
   near second boundaries and in a leap second.
 """
@@ -42,6 +42,7 @@ def test_json_text_is_the_standard_librarys_document(doc):
 
 
 def _same_document(ours: str, reference: str) -> None:
+    assert ours.isascii()  # as the standard library writes it: no particular encoding needed to store it
     assert json.loads(ours, parse_constant=_no_constant) == json.loads(reference)
     indents = lambda text: [len(line) - len(line.lstrip(" ")) for line in text.splitlines()]  # noqa: E731
     assert indents(ours) == indents(reference)
