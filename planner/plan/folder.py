@@ -40,7 +40,7 @@ FIGURE_SETS = ("chosen", "all")
 # Seconds to draw and save each kind of figure (bench/plan.py on the 2-core machine, demo plan; a feature
 # map, of the campaign or of one day, as "spectrum"): they decide whether the worker processes pay for
 # themselves and which figure starts first.
-FIGURE_COST_S = {"campaign": 0.15, "lightcurve": 0.20, "spectrum": 0.27, "snr": 0.12, "snr-campaign": 0.19}
+FIGURE_COST_S = {"campaign": 0.15, "lightcurve": 0.14, "spectrum": 0.25, "snr": 0.09, "snr-campaign": 0.16}
 POOL_OVERHEAD_S = 0.05  # forking two workers, handing out the jobs, collecting the results (measured: 0.02-0.04)
 
 
