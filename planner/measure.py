@@ -25,6 +25,7 @@ from kncast.forecast.defaults import (DEFAULT_BIN_KMS, DEFAULT_MAX_EXPOSURE_S, D
                                       UV_CUTOFF_MAG_PER_AIRMASS, CORRECTABLE_TRANSMISSION)
 
 TROUGH_SAMPLES = 9  # places across the trough (v_phot .. v_max) where the continuum S/N may be measured
+DRAW_CHUNK_VALUES = 2**16  # draws x setups x epochs x features per chunk of the draws' detection
 
 __all__ = ["Measurements", "measure", "feature_record", "feature_words", "diagnostic_mask"]
 
@@ -110,13 +111,20 @@ def measure(transient, fc, rows, cols, refs, conditions, airmass, pwv_mm, time_s
     draws = {}
     if flux_scale is not None:
         scale = np.asarray(flux_scale, dtype=float)
-        r_d = _scaled(r, scale)
-        d = detect(r_d, ex.expose(r_d, t_flat, nexp), depth.ravel()[None, :], lo.ravel()[None, :],
-                   hi.ravel()[None, :], np.moveaxis(usable, -1, 0).reshape(n_cols, -1), sigma=sigma,
-                   bin_kms=bin_kms, max_exposure_s=max_exposure_s)
-        per_draw = lambda a: np.moveaxis(np.asarray(a).reshape(scale.size, n_cols, n_rows, n_feat), 1, -1)  # noqa: E731
-        draws = {"draw_significance": per_draw(d.significance), "draw_snr_bin": per_draw(d.snr_bin),
-                 "draw_time_to_sigma_s": per_draw(d.time_to_sigma_s)}
+        usable_flat = np.moveaxis(usable, -1, 0).reshape(n_cols, -1)
+        # the draws in chunks of at most DRAW_CHUNK_VALUES values per array: a detection's temporaries
+        # stay a few MB however many epochs and draws (the results are the same, chunk by chunk)
+        step = max(1, DRAW_CHUNK_VALUES // max(1, n_cols * n_rows * n_feat))
+        parts = []
+        for start in range(0, scale.size, step):
+            r_d = _scaled(r, scale[start:start + step])
+            d = detect(r_d, ex.expose(r_d, t_flat, nexp), depth.ravel()[None, :], lo.ravel()[None, :],
+                       hi.ravel()[None, :], usable_flat, sigma=sigma, bin_kms=bin_kms, max_exposure_s=max_exposure_s)
+            n = min(step, scale.size - start)
+            parts.append([np.reshape(a, (n, n_cols, n_rows, n_feat)) for a in (d.significance, d.snr_bin,
+                                                                              d.time_to_sigma_s)])
+        joined = [np.moveaxis(np.concatenate(arrays), 1, -1) for arrays in zip(*parts)]  # (n_draws, R, F, C)
+        draws = dict(zip(("draw_significance", "draw_snr_bin", "draw_time_to_sigma_s"), joined))
     arms = np.stack([_take(_arm_names(g).reshape(-1, k), pick[j]) for j, g in enumerate(grids)])
     arms = np.where(r.on_detector, arms, "")
     return Measurements(

@@ -191,6 +191,14 @@ def _run_job(job):
         return {"error": f"figure {name!r} ({arg}): {type(err).__name__}: {err}", "trace": traceback.format_exc()}
 
 
+def figure_view(plan):
+    """``plan`` as its figures need it: without the feature forecast and the feature rows, which only the
+    tables and the ensemble read (three quarters of a pickled plan)."""
+    import dataclasses
+
+    return dataclasses.replace(plan, forecast=None, features=[])
+
+
 def figure_jobs(plan, figures: str = "chosen") -> list[tuple]:
     """(figure kind, argument, estimated seconds) in report order."""
     cost = FIGURE_COST_S

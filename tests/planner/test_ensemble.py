@@ -142,3 +142,25 @@ def test_exposure_ranges_bracket_the_central_time(run_cli, tmp_path):
     assert doc["draws"] == 100 and r["p16"] <= r["p50"] <= r["p84"]
     # a farther draw needs more time, a nearer one less: the central distance's time lies inside the range
     assert r["p16"] < doc["time_for_target_s"] < r["p84"]
+
+
+def test_draws_measured_in_chunks_equal_all_draws_at_once(monkeypatch):
+    # kncast.planner.measure.DRAW_CHUNK_VALUES bounds the arrays of the draws' detection; chunks of a few
+    # draws give exactly the percentiles of one chunk holding them all
+    from kncast.planner import measure
+    from kncast.planner.commands.demo import demo_event_path
+    from kncast.planner.events.eventfile import load_event
+    from kncast.planner.plan.core import build_plan
+    from kncast.planner.sites import SiteRegistry
+
+    reg = SiteRegistry.load()
+    sites = reg.select(["paranal", "pachon"])
+
+    def ensembles():
+        plan = build_plan(load_event(demo_event_path()), sites, nights=2, registry=reg, draws=37, seed=4)
+        return [p.ensemble for p in plan.nights if p.ensemble]
+
+    monkeypatch.setattr(measure, "DRAW_CHUNK_VALUES", 10**12)
+    whole = ensembles()
+    monkeypatch.setattr(measure, "DRAW_CHUNK_VALUES", 1)  # one draw per chunk
+    assert whole and ensembles() == whole
