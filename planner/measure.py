@@ -332,3 +332,4 @@ def measure_sites(plan, fc, epochs: list, by_site: dict, refs: list, transient, 
                     plan.tellurics, atm, sigma=st["sigma"], bin_kms=st["bin_kms"],
                     telluric_threshold=st["telluric_threshold"], flux_scale=flux_scale)
         yield site_id, site_refs, rows, seconds, m
+        del m  # one site's measurements alive at a time (with draws: MBs per site)

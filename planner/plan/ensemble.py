@@ -70,6 +70,7 @@ def run_ensemble(plan, epochs: list, by_site: dict, n_draws: int, seed: int | No
                 if f is not None:
                     chosen_sig[mine, i] = m.draw_significance[:, k, f, c]
                     chosen_time[mine, i] = m.draw_time_to_sigma_s[:, k, f, c]
+            del m, hit  # before the next site is measured
     nights = {}
     for i, p in enumerate(epochs):
         t = chosen_time[:, i]
