@@ -51,10 +51,9 @@ def _truncated_normal_ppf(q: np.ndarray, a: float) -> np.ndarray:
         upper_a = 0.5 * math.erfc(a / math.sqrt(2.0))  # Phi(-a) = 1 - Phi(a)
         q = np.asarray(q, dtype=float)
         below = lower_a + q * upper_a      # Phi(x)
-        above = (1.0 - q) * upper_a        # 1 - Phi(x)
-        x = np.where(below < 0.5, _NORMAL_PPF(np.where(below < 0.5, below, 0.5)),
-                     -_NORMAL_PPF(np.where(below < 0.5, 0.5, above)))
-        return np.asarray(x, dtype=float)
+        lower_half = below < 0.5
+        tail = np.where(lower_half, below, (1.0 - q) * upper_a)  # Phi(x), else 1 - Phi(x)
+        return np.where(lower_half, 1.0, -1.0) * np.asarray(_NORMAL_PPF(tail), dtype=float)
     from scipy.special import log_ndtr, ndtri_exp
 
     if a < 0:

@@ -217,14 +217,6 @@ def _standard_hints(plan, blocks: list) -> None:
         b.standard_latest_mjd = float(times[i, hits[0]] if hits.size else min(last, w_end[i]))
 
 
-def _iso(mjd):
-    from astropy.time import Time
-
-    from kncast.planner.output import iso_utc
-
-    return None if mjd is None else iso_utc(Time(mjd, format="mjd", scale="utc"))
-
-
 def _local(mjd, tz) -> str:
     import datetime as dt
 
@@ -268,13 +260,13 @@ def block_records(plan, blocks: list) -> list[dict]:
     return [block_record(plan, b, (next(utc), next(utc), next(utc)), ra_dec) for b in blocks]
 
 
-def block_record(plan, b: Block, utc=None, ra_dec=None) -> dict:
+def block_record(plan, b: Block, utc: tuple, ra_dec: tuple) -> dict:
     """The plan.json record of one block (keys in docs/json.md, section "blocks"); ``utc``: the ISO UTC of
-    its start, end and telescope-standard time, ``ra_dec``: the target's sexagesimal RA and Dec, when known."""
+    its start, end and telluric-standard time, ``ra_dec``: the target's sexagesimal RA and Dec."""
     p, o = b.night, b.outcome
     target = plan.event.targets()[0]
-    ra_hms, dec_dms = ra_dec or sexagesimal(target.ra_deg, target.dec_deg)
-    start_utc, end_utc, latest_utc = utc or (_iso(b.start_mjd), _iso(b.end_mjd), _iso(b.standard_latest_mjd))
+    ra_hms, dec_dms = ra_dec
+    start_utc, end_utc, latest_utc = utc
     return {
         "site": p.site.id, "telescope": o.telescope, "setup": o.setup, "night": p.record.night.isoformat(),
         "kind": b.kind, "phase_d": round(0.5 * (b.start_mjd + b.end_mjd) - float(plan.event.t0.utc.mjd), 4),

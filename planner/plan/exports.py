@@ -1,6 +1,6 @@
 """The planned blocks in forms that travel: plain text for pasting and an iCalendar file (RFC 5545).
 
-Both are made from the ``blocks`` records of ``plan.json`` (:func:`kncast.planner.plan.blocks.block_record`),
+Both are made from the ``blocks`` records of ``plan.json`` (:func:`kncast.planner.plan.blocks.block_records`),
 so they say exactly what the plan says.
 """
 from __future__ import annotations
